@@ -1,0 +1,263 @@
+//! Acquisition: turns a source (WAV, raw binary file, growing file, stdin, TCP, the built-in
+//! demo generator) into blocks of calibrated-in-volts samples of one channel, on its own thread.
+//!
+//! Readers implement [`SampleReader`] (pull, one block at a time, a `Result` per block, shaped
+//! like hound's reader). [`Acquisition`] runs a reader on a named thread and hands
+//! [`AcqEvent`]s to the consumer over a *bounded* crossbeam channel.
+//!
+//! Volts: WAV integers of b bits are divided by 2^(b−1) (full scale ±1) and then multiplied by
+//! `volts_per_unit`; raw integers are not divided (volts = count × `volts_per_unit`); floats
+//! are multiplied by `volts_per_unit`.
+//!
+//! Non-finite samples are passed through unchanged (as NaN/±Inf) and counted in
+//! [`ReaderStats::non_finite_samples`]; the Welch averager skips any segment containing one.
+
+mod error;
+
+pub use error::{AcquireError, Result};
+
+use std::path::PathBuf;
+
+/// Binary layout of one raw sample.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum SampleFormat {
+    /// Signed 16-bit integer.
+    I16,
+    /// Signed 24-bit integer, packed in 3 bytes.
+    I24,
+    /// Signed 32-bit integer.
+    I32,
+    /// IEEE 754 binary32.
+    F32,
+    /// IEEE 754 binary64.
+    F64,
+}
+
+impl SampleFormat {
+    /// Bytes one sample occupies in a raw stream.
+    pub fn bytes(self) -> usize {
+        match self {
+            Self::I16 => 2,
+            Self::I24 => 3,
+            Self::I32 | Self::F32 => 4,
+            Self::F64 => 8,
+        }
+    }
+
+    /// The command-line spelling (`i16`, `i24`, `i32`, `f32`, `f64`).
+    pub fn name(self) -> &'static str {
+        match self {
+            Self::I16 => "i16",
+            Self::I24 => "i24",
+            Self::I32 => "i32",
+            Self::F32 => "f32",
+            Self::F64 => "f64",
+        }
+    }
+
+    /// Parses the command-line spelling.
+    pub fn parse(text: &str) -> Option<Self> {
+        match text {
+            "i16" => Some(Self::I16),
+            "i24" => Some(Self::I24),
+            "i32" => Some(Self::I32),
+            "f32" => Some(Self::F32),
+            "f64" => Some(Self::F64),
+            _ => None,
+        }
+    }
+}
+
+/// Byte order of a raw stream.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Endian {
+    /// Least significant byte first (the default).
+    #[default]
+    Little,
+    /// Most significant byte first.
+    Big,
+}
+
+/// Where samples come from.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum SourceSpec {
+    /// A file: `.wav` (case-insensitive) is read as WAV, anything else as raw binary.
+    Path(PathBuf),
+    /// Raw samples on standard input (`-` on the command line).
+    Stdin,
+    /// Raw samples from a TCP server, `HOST:PORT` (from `tcp://HOST:PORT`).
+    Tcp(String),
+    /// The built-in synthesiser, generating a scenario live (see [`crate::synth`]).
+    Demo {
+        /// Scenario name as `stillpoint synth` spells it.
+        scenario: String,
+        /// RNG seed.
+        seed: u64,
+    },
+}
+
+impl SourceSpec {
+    /// Parses a SOURCE argument: `-` → stdin, `tcp://HOST:PORT` → TCP, else a path.
+    pub fn parse(text: &str) -> Self {
+        if text == "-" {
+            Self::Stdin
+        } else if let Some(rest) = text.strip_prefix("tcp://") {
+            Self::Tcp(rest.to_string())
+        } else {
+            Self::Path(PathBuf::from(text))
+        }
+    }
+
+    /// True for a path ending in `.wav` (any case).
+    pub fn is_wav(&self) -> bool {
+        match self {
+            Self::Path(p) => p
+                .extension()
+                .and_then(|e| e.to_str())
+                .is_some_and(|e| e.eq_ignore_ascii_case("wav")),
+            _ => false,
+        }
+    }
+
+    /// True for sources whose samples arrive in real time (stdin, TCP, a followed file is
+    /// decided by [`SourceConfig::follow`]).
+    pub fn is_live(&self) -> bool {
+        matches!(self, Self::Stdin | Self::Tcp(_))
+    }
+}
+
+/// Everything needed to open a source (the "source options" of the command-line contract).
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct SourceConfig {
+    /// Where the samples come from.
+    pub spec: SourceSpec,
+    /// Raw sample layout; required for raw sources, ignored for WAV.
+    pub sample_format: Option<SampleFormat>,
+    /// Raw byte order.
+    pub endian: Endian,
+    /// Interleaved channels in a raw stream (WAV: from the header).
+    pub channels: usize,
+    /// Channel to analyse, 0-based.
+    pub channel: usize,
+    /// Sample rate; required for raw sources, overrides nothing for WAV unless given.
+    pub rate_hz: Option<f64>,
+    /// Volts per unit (see the module docs for integer scaling).
+    pub volts_per_unit: f64,
+    /// Keep reading as the file grows.
+    pub follow: bool,
+}
+
+impl SourceConfig {
+    /// A configuration with the contract's defaults for the given source.
+    pub fn new(spec: SourceSpec) -> Self {
+        Self {
+            spec,
+            sample_format: None,
+            endian: Endian::Little,
+            channels: 1,
+            channel: 0,
+            rate_hz: None,
+            volts_per_unit: 1.0,
+            follow: false,
+        }
+    }
+}
+
+/// Counters a reader keeps about what it read and what it had to skip.
+#[derive(Debug, Clone, Copy, Default, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct ReaderStats {
+    /// Samples of the selected channel delivered so far.
+    pub samples: u64,
+    /// Delivered samples that were NaN or ±Inf.
+    pub non_finite_samples: u64,
+    /// Delivered samples at or beyond integer full scale (clipping).
+    pub clipped_samples: u64,
+    /// Bytes dropped at the end of the stream because they did not make a whole frame.
+    pub partial_frame_bytes: u64,
+    /// True if a WAV data chunk ended before its header said it would.
+    pub truncated: bool,
+    /// Times a live source reconnected or a followed file was reopened.
+    pub reconnects: u64,
+}
+
+/// A pull reader of one channel's samples in volts.
+pub trait SampleReader: Send {
+    /// Samples per second of the stream.
+    fn sample_rate_hz(&self) -> f64;
+
+    /// Reads up to `out.len()` samples into `out`; returns how many were written.
+    /// `Ok(0)` means the stream has ended (for a followed file or live source: only when
+    /// it is closed for good).
+    ///
+    /// # Errors
+    /// I/O or format errors of the underlying stream.
+    fn read_block(&mut self, out: &mut [f64]) -> Result<usize>;
+
+    /// What has been read and skipped so far.
+    fn stats(&self) -> ReaderStats;
+
+    /// A one-line human description ("WAV, 2 ch, 24-bit int, 250 kHz, channel 0").
+    fn describe(&self) -> String;
+}
+
+/// Opens a reader for `config`.
+///
+/// # Errors
+/// Missing file, malformed header, inconsistent options (raw without `--rate`, channel out
+/// of range, …), connection refused.
+pub fn open(config: &SourceConfig) -> Result<Box<dyn SampleReader>> {
+    let _ = config;
+    Err(AcquireError::Unsupported("sources are not implemented yet".into()))
+}
+
+/// Worker → consumer messages.
+#[derive(Debug)]
+pub enum AcqEvent {
+    /// A block of samples in volts, in stream order.
+    Block(Vec<f64>),
+    /// Periodic status: counters and rates.
+    Status(AcqStatus),
+    /// The stream ended: `None` when it ended normally, `Some(error)` otherwise.
+    Stopped(Option<AcquireError>),
+}
+
+/// Periodic status of a running acquisition.
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct AcqStatus {
+    /// Reader counters.
+    pub reader: ReaderStats,
+    /// Blocks dropped because the consumer's channel was full (drop policy only).
+    pub dropped_blocks: u64,
+    /// Samples in the dropped blocks.
+    pub dropped_samples: u64,
+    /// Sample rate of the stream.
+    pub sample_rate_hz: f64,
+    /// Human description of the source.
+    pub description: String,
+}
+
+/// Consumer → worker messages.
+#[derive(Debug, Clone, PartialEq)]
+pub enum AcqCommand {
+    /// Pause delivery (the reader stops reading; live sources keep draining and count drops).
+    Pause,
+    /// Resume delivery.
+    Resume,
+    /// Set playback speed for recordings (1.0 = real time; `None` = as fast as possible).
+    Speed(Option<f64>),
+    /// Stop and end the thread.
+    Shutdown,
+}
+
+/// What the worker does when the consumer's channel is full.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Backpressure {
+    /// Wait for room (no sample is ever lost; the source is slowed down). Headless default.
+    Block,
+    /// Drop the block and count it in [`AcqStatus::dropped_blocks`]. The window's default for
+    /// live sources, so acquisition never waits on the UI.
+    DropAndCount,
+}

@@ -1,0 +1,21 @@
+//! Errors of the spectral estimator.
+
+/// Result alias for spectral estimation.
+pub type Result<T> = std::result::Result<T, DspError>;
+
+/// Invalid Welch settings or not enough data.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[non_exhaustive]
+pub enum DspError {
+    /// A setting is out of range (message names it and the allowed range).
+    #[error("{0}")]
+    Config(String),
+    /// Fewer samples than one segment.
+    #[error("not enough data: {samples} samples, but one segment needs {segment}")]
+    TooShort {
+        /// Samples available.
+        samples: u64,
+        /// Segment length.
+        segment: usize,
+    },
+}

@@ -1,0 +1,24 @@
+//! stillpoint: calibrated displacement spectra of mechanical resonators, live.
+//!
+//! The library holds every piece of logic; the `stillpoint` binary only parses arguments and
+//! calls [`cli::run`] (headless commands) or `ui::run` (the window, `gui` feature).
+//!
+//! Pipeline: [`acquire`] reads detector voltage (WAV, raw binary, growing file, stdin, TCP,
+//! the built-in demo) on its own thread → [`dsp`] Welch averager (one-sided PSD, V²/Hz) →
+//! [`physics`] calibration, mode fit, quantum references, sidebands, stray peaks →
+//! [`report`] (the `analyze` JSON) and [`snapshot`] (saved spectra) → [`model`] (live state
+//! for the window, no egui) → `ui` (eframe/egui_plot, only with the `gui` feature).
+//!
+//! Conventions: SI units everywhere, names carry their unit (`frequency_hz`, `mass_kg`);
+//! every spectral density is single-sided in ordinary frequency (∫₀^∞ S df = variance).
+
+pub mod acquire;
+pub mod cli;
+pub mod dsp;
+pub mod model;
+pub mod physics;
+pub mod report;
+pub mod snapshot;
+pub mod synth;
+#[cfg(feature = "gui")]
+pub mod ui;

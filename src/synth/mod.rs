@@ -1,0 +1,10 @@
+//! Our own synthesiser of invented detector-voltage records (demo and tests), with fixed
+//! seeds. SKELETON: the generator trait is the agreed interface.
+
+/// A generator of one channel of detector voltage, block by block, without end.
+pub trait Generator: Send {
+    /// Sample rate of the generated stream.
+    fn sample_rate_hz(&self) -> f64;
+    /// Fills `out` with the next samples (volts).
+    fn fill(&mut self, out: &mut [f64]);
+}
