@@ -8,3 +8,13 @@ pub trait Generator: Send {
     /// Fills `out` with the next samples (volts).
     fn fill(&mut self, out: &mut [f64]);
 }
+
+/// Names of the scenarios `stillpoint synth` knows, in help order.
+pub const SCENARIOS: &[&str] = &[];
+
+/// A live generator for `scenario` with `seed`, or `None` for an unknown scenario.
+/// Used by the acquisition layer for [`crate::acquire::SourceSpec::Demo`].
+pub fn generator(scenario: &str, seed: u64) -> Option<Box<dyn Generator>> {
+    let _ = (scenario, seed);
+    None
+}
