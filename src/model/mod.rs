@@ -1,2 +1,131 @@
-//! Live application state with no egui dependency: the engine thread (acquisition → Welch →
-//! fit), ring buffers for the waterfall and trend strips, snapshots in memory. SKELETON.
+//! Live application state with no egui dependency: the [`Engine`] thread (acquisition →
+//! Welch → analysis, frames over a bounded channel), the bounded history of a session
+//! ([`Waterfall`], [`TrendBuffer`]), the window's persisted settings ([`AppState`]), the
+//! reference curves drawn over the spectrum, and plot preparation ([`decimate_minmax`]).
+//!
+//! The window (`crate::ui`) owns a [`LiveState`] and an [`Engine`]; each repaint it drains the
+//! engine's frames into the live state and draws from it.
+
+pub mod curves;
+pub mod decimate;
+pub mod engine;
+pub mod history;
+pub mod state;
+
+pub use decimate::{bench_plot_prep, decimate_minmax, log_columns_max};
+pub use engine::{Engine, EngineCommand, EngineConfig, EngineNotice, EngineStatus, Frame, Waker};
+pub use history::{TrendBuffer, TrendPoint, Waterfall, WaterfallRow};
+pub use state::{
+    AppState, AveragingChoice, CalibrationInputs, CalibrationMethod, Overlays, WelchSettings,
+};
+
+/// Result alias of the model.
+pub type Result<T> = std::result::Result<T, ModelError>;
+
+/// Why the engine could not start or a source could not be opened.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum ModelError {
+    /// A thread could not be created.
+    #[error("cannot start a thread: {0}")]
+    Spawn(std::io::Error),
+    /// The source could not be opened.
+    #[error("{0}")]
+    Source(#[from] crate::acquire::AcquireError),
+}
+
+/// Waterfall rows kept (at one row per second: 15 minutes).
+pub const WATERFALL_ROWS: usize = 900;
+/// Trend points kept (thinned by half when full, so the strips always span the session).
+pub const TREND_POINTS: usize = 4096;
+
+/// What the window draws from: the newest frame and the session's bounded history.
+#[derive(Debug, Clone)]
+pub struct LiveState {
+    /// The newest frame.
+    pub frame: Option<Frame>,
+    /// Waterfall rows.
+    pub waterfall: Waterfall,
+    /// Trend strips.
+    pub trends: TrendBuffer,
+    /// Frames applied since start.
+    pub frames_applied: u64,
+    generation: u64,
+}
+
+impl Default for LiveState {
+    fn default() -> Self {
+        Self::new()
+    }
+}
+
+impl LiveState {
+    /// Empty state with the default capacities.
+    pub fn new() -> Self {
+        Self {
+            frame: None,
+            waterfall: Waterfall::new(WATERFALL_ROWS),
+            trends: TrendBuffer::new(TREND_POINTS),
+            frames_applied: 0,
+            generation: 0,
+        }
+    }
+
+    /// Takes in one frame: keeps it as the newest and appends its history rows. A frame of a
+    /// new source generation clears the history.
+    pub fn apply(&mut self, mut frame: Frame) {
+        if frame.generation != self.generation {
+            self.generation = frame.generation;
+            self.waterfall.clear();
+            self.trends.clear();
+        }
+        if let Some(row) = frame.waterfall_row.take() {
+            self.waterfall.push(row);
+        }
+        if let Some(p) = frame.trend.take() {
+            self.trends.push(p);
+        }
+        self.frames_applied += 1;
+        self.frame = Some(frame);
+    }
+
+    /// The newest status, if any frame arrived.
+    pub fn status(&self) -> Option<&EngineStatus> {
+        self.frame.as_ref().map(|f| &f.status)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn live_state_clears_history_on_new_source() {
+        let mut live = LiveState::new();
+        let frame = |generation: u64, t: f64| Frame {
+            generation,
+            spectrum: None,
+            report: None,
+            analysis_error: None,
+            band_hz: None,
+            status: EngineStatus::default(),
+            waterfall_row: Some(WaterfallRow {
+                time_s: t,
+                range_hz: (1.0, 10.0),
+                log_psd: vec![0.0; 4],
+            }),
+            trend: Some(TrendPoint {
+                time_s: t,
+                ..TrendPoint::default()
+            }),
+        };
+        live.apply(frame(1, 0.0));
+        live.apply(frame(1, 1.0));
+        assert_eq!(live.waterfall.rows().len(), 2);
+        assert_eq!(live.trends.points().len(), 2);
+        live.apply(frame(2, 2.0));
+        assert_eq!(live.waterfall.rows().len(), 1);
+        assert_eq!(live.trends.points().len(), 1);
+        assert!(live.frame.as_ref().unwrap().waterfall_row.is_none());
+    }
+}

@@ -1,0 +1,781 @@
+//! The engine: a named thread that owns the acquisition, feeds its blocks into the streaming
+//! Welch averager, runs the analysis (calibration, mode fit, quantum references, sidebands,
+//! stray peaks) every publish interval, and hands a [`Frame`] to the window over a *bounded*
+//! channel (drop-oldest, counted), waking it with a caller-supplied closure. The window
+//! never computes a spectrum or a fit; it only draws frames and sends [`EngineCommand`]s.
+
+use std::sync::Arc;
+use std::thread::JoinHandle;
+use std::time::{Duration, Instant};
+
+use crossbeam_channel::{Receiver, Sender, TrySendError, bounded, never, select};
+
+use super::decimate::log_columns_max;
+use super::history::{TrendPoint, WaterfallRow};
+use super::state::WelchSettings;
+use super::{ModelError, Result};
+use crate::acquire::{
+    self, AcqCommand, AcqEvent, AcqOptions, AcqStatus, Acquisition, SourceConfig,
+};
+use crate::dsp::{Spectrum, Welch};
+use crate::report::{self, AnalysisOptions, Report};
+
+/// Closure that wakes the window (the window passes `ctx.request_repaint()`).
+pub type Waker = Box<dyn Fn() + Send + Sync>;
+
+/// How the engine starts.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EngineConfig {
+    /// Source to open.
+    pub source: SourceConfig,
+    /// Welch settings (the sample rate comes from the source).
+    pub welch: WelchSettings,
+    /// Calibration/mode/heterodyne options.
+    pub analysis: AnalysisOptions,
+    /// Let the fit band follow the fitted mode as it drifts (and pick one automatically
+    /// around the strongest line when none is given).
+    pub follow_mode: bool,
+    /// Playback speed of recordings (1 = real time, `None` = as fast as possible).
+    pub playback_speed: Option<f64>,
+    /// Interval between frames.
+    pub publish_interval: Duration,
+    /// Interval between waterfall rows and trend points.
+    pub history_interval: Duration,
+    /// Columns of a waterfall row.
+    pub waterfall_columns: usize,
+}
+
+impl EngineConfig {
+    /// Defaults (150 ms frames, 1 s history, 480 waterfall columns, real-time playback).
+    pub fn new(source: SourceConfig) -> Self {
+        Self {
+            source,
+            welch: WelchSettings::default(),
+            analysis: AnalysisOptions::default(),
+            follow_mode: true,
+            playback_speed: Some(1.0),
+            publish_interval: Duration::from_millis(150),
+            history_interval: Duration::from_secs(1),
+            waterfall_columns: 480,
+        }
+    }
+}
+
+/// Window → engine.
+#[derive(Debug, Clone, PartialEq)]
+pub enum EngineCommand {
+    /// Forget the averaged data and start a new average.
+    RestartAverage,
+    /// Freeze: stop reading the recording (live sources keep draining) and stop updating.
+    Pause,
+    /// Resume after [`EngineCommand::Pause`].
+    Resume,
+    /// New Welch settings (restarts the average).
+    SetWelch(WelchSettings),
+    /// New calibration/mode/heterodyne options (re-analyses the current spectrum at once).
+    SetAnalysis {
+        /// The options.
+        options: AnalysisOptions,
+        /// Band follows the mode.
+        follow_mode: bool,
+    },
+    /// Playback speed of recordings (`None` = as fast as possible).
+    SetSpeed(Option<f64>),
+    /// Close the current source and open another.
+    OpenSource(SourceConfig),
+    /// End the engine thread.
+    Shutdown,
+}
+
+/// Counters and settings shown in the status line.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct EngineStatus {
+    /// Human description of the source.
+    pub source: String,
+    /// Sample rate, Hz.
+    pub sample_rate_hz: f64,
+    /// Segments in the current average.
+    pub averages: usize,
+    /// Overlap-corrected independent averages.
+    pub k_eff: f64,
+    /// Segment length N.
+    pub segment: usize,
+    /// Bin spacing Δf, Hz.
+    pub resolution_hz: f64,
+    /// Resolution bandwidth (ENBW), Hz.
+    pub rbw_hz: f64,
+    /// Time from the arrival of the block that completed the newest segment to this frame.
+    pub latency_s: f64,
+    /// Acquisition blocks dropped because the engine fell behind.
+    pub dropped_blocks: u64,
+    /// Samples in those blocks.
+    pub dropped_samples: u64,
+    /// Frames dropped because the window fell behind.
+    pub dropped_frames: u64,
+    /// Segments skipped because they held NaN/Inf.
+    pub skipped_segments: usize,
+    /// Samples received.
+    pub samples: u64,
+    /// Reader warnings (non-finite samples, clipping, truncation, partial frames).
+    pub warnings: Vec<String>,
+    /// Paused by the user.
+    pub paused: bool,
+    /// Set when the stream ended ("end of recording", or the error).
+    pub ended: Option<String>,
+    /// True when `ended` is an error.
+    pub failed: bool,
+    /// Seconds since the engine started.
+    pub elapsed_s: f64,
+    /// Wall time of the last analysis, s.
+    pub analysis_s: f64,
+}
+
+/// One update for the window.
+#[derive(Debug, Clone)]
+pub struct Frame {
+    /// Bumped whenever a new source is opened (the window then clears its history).
+    pub generation: u64,
+    /// The current spectrum (shared, not copied).
+    pub spectrum: Option<Arc<Spectrum>>,
+    /// Analysis of that spectrum.
+    pub report: Option<Arc<Report>>,
+    /// Why the analysis failed (bad options), if it did.
+    pub analysis_error: Option<String>,
+    /// The fit band in use (after following the mode), Hz.
+    pub band_hz: Option<(f64, f64)>,
+    /// Status line.
+    pub status: EngineStatus,
+    /// A new waterfall row, about once per history interval.
+    pub waterfall_row: Option<WaterfallRow>,
+    /// A new trend point, about once per history interval.
+    pub trend: Option<TrendPoint>,
+}
+
+/// A message that must not be lost (sent on its own channel).
+#[derive(Debug, Clone, PartialEq)]
+pub enum EngineNotice {
+    /// A source was opened.
+    Opened(String),
+    /// Something failed (opening a source, bad settings); shown in red.
+    Error(String),
+}
+
+/// Handle of the running engine; dropping it shuts the thread down and joins it.
+pub struct Engine {
+    commands: Sender<EngineCommand>,
+    frames: Receiver<Frame>,
+    notices: Receiver<EngineNotice>,
+    thread: Option<JoinHandle<()>>,
+}
+
+impl std::fmt::Debug for Engine {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Engine").finish_non_exhaustive()
+    }
+}
+
+const FRAME_QUEUE: usize = 8;
+const NOTICE_QUEUE: usize = 64;
+const COMMAND_QUEUE: usize = 64;
+
+impl Engine {
+    /// Starts the engine thread; the source is opened on that thread (a failure arrives as
+    /// an [`EngineNotice::Error`]).
+    ///
+    /// # Errors
+    /// [`ModelError::Spawn`] if the thread cannot be created.
+    pub fn start(config: EngineConfig, waker: Waker) -> Result<Self> {
+        let (cmd_tx, cmd_rx) = bounded(COMMAND_QUEUE);
+        let (frame_tx, frame_rx) = bounded(FRAME_QUEUE);
+        let (notice_tx, notice_rx) = bounded(NOTICE_QUEUE);
+        let drop_rx = frame_rx.clone();
+        let thread = std::thread::Builder::new()
+            .name("stillpoint-engine".into())
+            .spawn(move || {
+                let mut worker = Worker::new(config, frame_tx, drop_rx, notice_tx, waker);
+                worker.run(&cmd_rx);
+            })
+            .map_err(ModelError::Spawn)?;
+        Ok(Self {
+            commands: cmd_tx,
+            frames: frame_rx,
+            notices: notice_rx,
+            thread: Some(thread),
+        })
+    }
+
+    /// Sends a command; false if the engine has stopped or its queue is full.
+    pub fn send(&self, command: EngineCommand) -> bool {
+        self.commands.try_send(command).is_ok()
+    }
+
+    /// Every frame waiting, oldest first (each may carry a waterfall row and a trend point).
+    pub fn drain_frames(&self) -> Vec<Frame> {
+        self.frames.try_iter().collect()
+    }
+
+    /// Every notice waiting, oldest first.
+    pub fn drain_notices(&self) -> Vec<EngineNotice> {
+        self.notices.try_iter().collect()
+    }
+
+    /// Waits up to `timeout` for the next frame (tests and headless use).
+    pub fn recv_frame_timeout(&self, timeout: Duration) -> Option<Frame> {
+        self.frames.recv_timeout(timeout).ok()
+    }
+}
+
+impl Drop for Engine {
+    fn drop(&mut self) {
+        let _ = self
+            .commands
+            .send_timeout(EngineCommand::Shutdown, Duration::from_secs(1));
+        if let Some(t) = self.thread.take() {
+            let _ = t.join();
+        }
+    }
+}
+
+/// A running source: A's acquisition thread plus whether it is live.
+struct Source {
+    acquisition: Acquisition,
+    live: bool,
+}
+
+/// Events of the acquisition queue.
+const SOURCE_QUEUE: usize = 64;
+
+/// Opens `config` and starts its acquisition thread with
+/// [`Backpressure::DropAndCount`](crate::acquire::Backpressure): the engine never makes the
+/// reader wait, blocks it cannot take in time are dropped and counted. Recordings and the demo
+/// are paced at `speed` × real time; live sources come as fast as they come.
+fn start_source(config: &SourceConfig, speed: Option<f64>) -> Result<(Source, f64, String)> {
+    let reader = acquire::open(config).map_err(ModelError::Source)?;
+    let live = reader.is_live() || config.spec.is_live() || config.follow;
+    let rate = reader.sample_rate_hz();
+    let options = AcqOptions {
+        channel_capacity: SOURCE_QUEUE,
+        block_samples: ((rate * 0.02) as usize).clamp(256, 1 << 16),
+        speed,
+        ..AcqOptions::window()
+    };
+    let acquisition = Acquisition::spawn(reader, options, None).map_err(ModelError::Source)?;
+    let description = acquisition.description().to_string();
+    Ok((Source { acquisition, live }, rate, description))
+}
+
+/// Everything the engine thread owns.
+struct Worker {
+    config: EngineConfig,
+    frames: Sender<Frame>,
+    frames_drop: Receiver<Frame>,
+    notices: Sender<EngineNotice>,
+    waker: Waker,
+    started: Instant,
+    source: Option<Source>,
+    welch: Option<Welch>,
+    sample_rate_hz: f64,
+    generation: u64,
+    status: EngineStatus,
+    band_hz: Option<(f64, f64)>,
+    spectrum: Option<Arc<Spectrum>>,
+    report: Option<Arc<Report>>,
+    analysis_error: Option<String>,
+    segments_at_analysis: usize,
+    dirty: bool,
+    last_publish: Instant,
+    last_history: Option<Instant>,
+    last_segment_arrival: Option<Instant>,
+}
+
+impl Worker {
+    fn new(
+        config: EngineConfig,
+        frames: Sender<Frame>,
+        frames_drop: Receiver<Frame>,
+        notices: Sender<EngineNotice>,
+        waker: Waker,
+    ) -> Self {
+        let band_hz = config.analysis.mode_band_hz;
+        Self {
+            config,
+            frames,
+            frames_drop,
+            notices,
+            waker,
+            started: Instant::now(),
+            source: None,
+            welch: None,
+            sample_rate_hz: 0.0,
+            generation: 0,
+            status: EngineStatus::default(),
+            band_hz,
+            spectrum: None,
+            report: None,
+            analysis_error: None,
+            segments_at_analysis: 0,
+            dirty: false,
+            last_publish: Instant::now(),
+            last_history: None,
+            last_segment_arrival: None,
+        }
+    }
+
+    fn notice(&self, notice: EngineNotice) {
+        let _ = self.notices.try_send(notice);
+        (self.waker)();
+    }
+
+    fn run(&mut self, commands: &Receiver<EngineCommand>) {
+        let source = self.config.source.clone();
+        self.open(&source);
+        loop {
+            let wait = self
+                .config
+                .publish_interval
+                .saturating_sub(self.last_publish.elapsed());
+            let events = self
+                .source
+                .as_ref()
+                .map_or_else(never, |s| s.acquisition.events().clone());
+            select! {
+                recv(commands) -> cmd => match cmd {
+                    Ok(EngineCommand::Shutdown) | Err(_) => break,
+                    Ok(cmd) => self.command(cmd),
+                },
+                recv(events) -> ev => match ev {
+                    Ok(ev) => self.event(ev),
+                    Err(_) => {
+                        // The source thread went away without a Stopped event.
+                        if self.status.ended.is_none() {
+                            self.status.ended = Some("source closed".into());
+                        }
+                        self.source = None;
+                        self.dirty = true;
+                    }
+                },
+                default(wait) => {}
+            }
+            if self.last_publish.elapsed() >= self.config.publish_interval {
+                self.publish();
+            }
+        }
+        self.source = None;
+    }
+
+    fn open(&mut self, config: &SourceConfig) {
+        self.source = None;
+        self.generation += 1;
+        self.spectrum = None;
+        self.report = None;
+        self.analysis_error = None;
+        self.last_history = None;
+        self.band_hz = self.config.analysis.mode_band_hz;
+        self.status = EngineStatus::default();
+        match start_source(config, self.config.playback_speed) {
+            Ok((source, rate, description)) => {
+                self.sample_rate_hz = rate;
+                self.status.source = description.clone();
+                self.status.sample_rate_hz = rate;
+                self.source = Some(source);
+                self.config.source = config.clone();
+                self.rebuild_welch();
+                self.notice(EngineNotice::Opened(description));
+            }
+            Err(e) => {
+                self.status.ended = Some(format!("cannot open source: {e}"));
+                self.status.failed = true;
+                self.notice(EngineNotice::Error(format!("cannot open source: {e}")));
+            }
+        }
+        self.dirty = true;
+    }
+
+    fn rebuild_welch(&mut self) {
+        let cfg = self.config.welch.to_config(self.sample_rate_hz);
+        match Welch::new(cfg) {
+            Ok(w) => {
+                self.welch = Some(w);
+                self.segments_at_analysis = 0;
+            }
+            Err(e) => {
+                self.welch = None;
+                self.notice(EngineNotice::Error(format!("Welch settings: {e}")));
+            }
+        }
+        self.status.segment = self.config.welch.segment;
+        self.dirty = true;
+    }
+
+    fn command(&mut self, command: EngineCommand) {
+        match command {
+            EngineCommand::RestartAverage => {
+                if let Some(w) = self.welch.as_mut() {
+                    w.restart();
+                }
+                self.segments_at_analysis = 0;
+                self.dirty = true;
+            }
+            EngineCommand::Pause => {
+                self.status.paused = true;
+                if let Some(s) = &self.source {
+                    s.acquisition.send(AcqCommand::Pause);
+                }
+                self.dirty = true;
+            }
+            EngineCommand::Resume => {
+                self.status.paused = false;
+                if let Some(s) = &self.source {
+                    s.acquisition.send(AcqCommand::Resume);
+                }
+                self.dirty = true;
+            }
+            EngineCommand::SetWelch(settings) => {
+                self.config.welch = settings;
+                if self.sample_rate_hz > 0.0 {
+                    self.rebuild_welch();
+                }
+            }
+            EngineCommand::SetAnalysis {
+                options,
+                follow_mode,
+            } => {
+                self.band_hz = options.mode_band_hz;
+                self.config.analysis = options;
+                self.config.follow_mode = follow_mode;
+                self.analyse();
+                self.dirty = true;
+            }
+            EngineCommand::SetSpeed(speed) => {
+                self.config.playback_speed = speed;
+                if let Some(s) = &self.source {
+                    s.acquisition.send(AcqCommand::Speed(speed));
+                }
+            }
+            EngineCommand::OpenSource(config) => self.open(&config),
+            EngineCommand::Shutdown => {}
+        }
+    }
+
+    fn event(&mut self, event: AcqEvent) {
+        match event {
+            AcqEvent::Block(block) => {
+                self.status.samples += block.len() as u64;
+                if self.status.paused {
+                    return;
+                }
+                if let Some(w) = self.welch.as_mut()
+                    && w.push(&block) > 0
+                {
+                    self.last_segment_arrival = Some(Instant::now());
+                }
+            }
+            AcqEvent::Status(s) => {
+                self.status.dropped_blocks = s.dropped_blocks;
+                self.status.dropped_samples = s.dropped_samples;
+                self.status.warnings = reader_warnings(&s);
+                if !s.description.is_empty() {
+                    self.status.source = s.description;
+                }
+            }
+            AcqEvent::Stopped(None) => {
+                self.status.ended = Some(if self.source.as_ref().is_some_and(|s| s.live) {
+                    "stream closed".into()
+                } else {
+                    "end of recording".into()
+                });
+                self.dirty = true;
+            }
+            AcqEvent::Stopped(Some(e)) => {
+                let text = format!("source stopped: {e}");
+                self.status.ended = Some(text.clone());
+                self.status.failed = true;
+                self.notice(EngineNotice::Error(text));
+                self.dirty = true;
+            }
+        }
+    }
+
+    /// Runs the analysis on the newest spectrum (on this thread), following the mode.
+    fn analyse(&mut self) {
+        let Some(spectrum) = self.spectrum.clone() else {
+            return;
+        };
+        let t0 = Instant::now();
+        let mut options = self.config.analysis.clone();
+        options.mode_band_hz = self.band_hz;
+        let mut result = report::analyze(&spectrum, &options);
+        if self.config.follow_mode
+            && let Ok(r) = &result
+        {
+            let new_band = match self.band_hz {
+                None => auto_band(&spectrum, r, &options),
+                Some(band) => follow_band(band, r, &spectrum),
+            };
+            if new_band.is_some() && new_band != self.band_hz {
+                self.band_hz = new_band;
+                options.mode_band_hz = new_band;
+                result = report::analyze(&spectrum, &options);
+            }
+        }
+        match result {
+            Ok(r) => {
+                self.report = Some(Arc::new(r));
+                self.analysis_error = None;
+            }
+            Err(e) => {
+                self.analysis_error = Some(e.to_string());
+            }
+        }
+        self.status.analysis_s = t0.elapsed().as_secs_f64();
+    }
+
+    fn publish(&mut self) {
+        self.last_publish = Instant::now();
+        let segments = self.welch.as_ref().map_or(0, Welch::segments);
+        let fresh = segments != self.segments_at_analysis;
+        if fresh && let Some(w) = &self.welch {
+            self.spectrum = w.spectrum().map(Arc::new);
+            self.segments_at_analysis = segments;
+            self.analyse();
+        }
+        if !fresh && !self.dirty {
+            return;
+        }
+        self.dirty = false;
+        if let Some(w) = &self.welch {
+            self.status.skipped_segments = w.skipped_segments();
+        }
+        if let Some(s) = &self.spectrum {
+            self.status.averages = s.averages;
+            self.status.k_eff = s.k_eff;
+            self.status.segment = s.segment;
+            self.status.resolution_hz = s.resolution_hz;
+            self.status.rbw_hz = s.enbw_hz;
+        } else {
+            self.status.averages = 0;
+        }
+        self.status.latency_s = self
+            .last_segment_arrival
+            .map_or(0.0, |t| t.elapsed().as_secs_f64());
+        self.status.elapsed_s = self.started.elapsed().as_secs_f64();
+
+        let mut waterfall_row = None;
+        let mut trend = None;
+        let history_due = self
+            .last_history
+            .is_none_or(|t| t.elapsed() >= self.config.history_interval);
+        if fresh
+            && history_due
+            && !self.status.paused
+            && let Some(s) = &self.spectrum
+        {
+            self.last_history = Some(Instant::now());
+            waterfall_row =
+                waterfall_row_of(s, self.config.waterfall_columns, self.status.elapsed_s);
+            trend = self
+                .report
+                .as_ref()
+                .map(|r| trend_point(r, self.status.elapsed_s));
+        }
+        let frame = Frame {
+            generation: self.generation,
+            spectrum: self.spectrum.clone(),
+            report: self.report.clone(),
+            analysis_error: self.analysis_error.clone(),
+            band_hz: self.band_hz,
+            status: self.status.clone(),
+            waterfall_row,
+            trend,
+        };
+        if let Err(TrySendError::Full(frame)) = self.frames.try_send(frame) {
+            let _ = self.frames_drop.try_recv();
+            self.status.dropped_frames += 1;
+            let _ = self.frames.try_send(frame);
+        }
+        (self.waker)();
+    }
+}
+
+/// One-line warnings from the reader's counters.
+fn reader_warnings(status: &AcqStatus) -> Vec<String> {
+    let r = &status.reader;
+    let mut w = Vec::new();
+    if r.non_finite_samples > 0 {
+        w.push(format!("{} non-finite samples", r.non_finite_samples));
+    }
+    if r.clipped_samples > 0 {
+        w.push(format!("{} clipped samples", r.clipped_samples));
+    }
+    if r.truncated {
+        w.push("WAV data ended early".into());
+    }
+    if r.partial_frame_bytes > 0 {
+        w.push(format!(
+            "{} bytes of a partial frame skipped",
+            r.partial_frame_bytes
+        ));
+    }
+    if r.reconnects > 0 {
+        w.push(format!("{} reconnects", r.reconnects));
+    }
+    w
+}
+
+/// Waterfall row over (Δf, Nyquist).
+fn waterfall_row_of(s: &Spectrum, columns: usize, time_s: f64) -> Option<WaterfallRow> {
+    let lo = s.resolution_hz;
+    let hi = s.frequency_hz(s.len().saturating_sub(1));
+    if !(lo > 0.0 && hi > lo) {
+        return None;
+    }
+    let freqs = s.frequencies_hz();
+    Some(WaterfallRow {
+        time_s,
+        range_hz: (lo, hi),
+        log_psd: log_columns_max(&freqs, &s.psd_v2_per_hz, (lo, hi), columns),
+    })
+}
+
+fn trend_point(r: &Report, time_s: f64) -> TrendPoint {
+    let finite = |v: Option<f64>| v.filter(|x| x.is_finite());
+    TrendPoint {
+        time_s,
+        frequency_hz: finite(r.mode.frequency_hz),
+        linewidth_hz: finite(r.mode.linewidth_hz),
+        occupancy: finite(r.quantum.occupancy),
+        m_per_v: finite(r.calibration.m_per_v),
+        effective_temperature_k: finite(r.quantum.effective_temperature_k),
+    }
+}
+
+/// A fit band around the strongest stray line (not the calibration tone), when no band was
+/// given: ±max(25 γ, 12 RBW).
+fn auto_band(s: &Spectrum, r: &Report, options: &AnalysisOptions) -> Option<(f64, f64)> {
+    let tone = options
+        .tone_frequency_hz
+        .or(r.calibration.tone_frequency_hz);
+    let guard_hz = 10.0 * s.enbw_hz.max(s.resolution_hz);
+    let carrier = options.carrier_hz;
+    let best = r
+        .peaks
+        .iter()
+        .filter(|p| tone.is_none_or(|t| (p.frequency_hz - t).abs() > guard_hz))
+        .filter(|p| p.frequency_hz.is_finite() && p.frequency_hz > 0.0)
+        .max_by(|a, b| a.height_over_floor_db.total_cmp(&b.height_over_floor_db))?;
+    // With a carrier the band is of f_m itself: the offset of the line from the carrier.
+    let centre = match carrier {
+        Some(c) => (best.frequency_hz - c).abs(),
+        None => best.frequency_hz,
+    };
+    let half = (25.0 * best.linewidth_hz).max(12.0 * s.enbw_hz.max(s.resolution_hz));
+    let lo = (centre - half).max(s.resolution_hz);
+    let hi = centre + half;
+    (centre > 0.0 && hi > lo).then_some((lo, hi))
+}
+
+/// Recentres `band` on the fitted f_m when the mode has moved by more than 5 % of the width
+/// (keeping the width), so the fit window tracks a drifting mode.
+fn follow_band(band: (f64, f64), r: &Report, s: &Spectrum) -> Option<(f64, f64)> {
+    let f = r
+        .sidebands
+        .as_ref()
+        .and_then(|sb| sb.mechanical_frequency_hz)
+        .or(r.mode.frequency_hz)
+        .filter(|f| f.is_finite())?;
+    let (lo, hi) = band;
+    let width = hi - lo;
+    if width.is_nan() || width <= 0.0 || f < lo || f > hi {
+        return Some(band);
+    }
+    let centre = 0.5 * (lo + hi);
+    if (f - centre).abs() <= 0.05 * width {
+        return Some(band);
+    }
+    let new_lo = (f - 0.5 * width).max(s.resolution_hz);
+    Some((new_lo, new_lo + width))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::report::PeakReport;
+
+    fn spectrum() -> Spectrum {
+        Spectrum {
+            sample_rate_hz: 1000.0,
+            segment: 1000,
+            overlap: 0.5,
+            window: crate::dsp::WindowKind::Hann,
+            detrend: crate::dsp::Detrend::Mean,
+            averaging: crate::dsp::Averaging::Linear,
+            averages: 1,
+            k_eff: 1.0,
+            resolution_hz: 1.0,
+            enbw_hz: 1.5,
+            psd_v2_per_hz: vec![1.0; 501],
+        }
+    }
+
+    #[test]
+    fn band_follows_a_drifting_mode_and_keeps_its_width() {
+        let s = spectrum();
+        let mut r = Report::default();
+        r.mode.frequency_hz = Some(108.0);
+        let b = follow_band((90.0, 110.0), &r, &s).unwrap();
+        assert!((b.0 - 98.0).abs() < 1e-12 && (b.1 - 118.0).abs() < 1e-12);
+        // small moves do not shake the band; a fit outside the band is not trusted
+        r.mode.frequency_hz = Some(100.5);
+        assert_eq!(follow_band((90.0, 110.0), &r, &s), Some((90.0, 110.0)));
+        r.mode.frequency_hz = Some(300.0);
+        assert_eq!(follow_band((90.0, 110.0), &r, &s), Some((90.0, 110.0)));
+    }
+
+    #[test]
+    fn auto_band_takes_strongest_line_but_not_the_tone() {
+        let s = spectrum();
+        let r = Report {
+            peaks: vec![
+                PeakReport {
+                    frequency_hz: 200.0,
+                    height_over_floor_db: 40.0,
+                    linewidth_hz: 1.0,
+                    new_since_reference: None,
+                },
+                PeakReport {
+                    frequency_hz: 120.0,
+                    height_over_floor_db: 30.0,
+                    linewidth_hz: 2.0,
+                    new_since_reference: None,
+                },
+            ],
+            ..Report::default()
+        };
+        let opts = AnalysisOptions {
+            tone_frequency_hz: Some(200.0),
+            ..AnalysisOptions::default()
+        };
+        let (lo, hi) = auto_band(&s, &r, &opts).unwrap();
+        assert!((0.5 * (lo + hi) - 120.0).abs() < 1e-9);
+        assert!((hi - lo - 100.0).abs() < 1e-9); // ±50 Hz = 25 γ
+        assert!(auto_band(&s, &Report::default(), &opts).is_none());
+    }
+
+    #[test]
+    fn bad_source_reports_an_error_and_no_panic() {
+        let cfg = EngineConfig::new(SourceConfig::new(crate::acquire::SourceSpec::Path(
+            "/nonexistent/stillpoint-test.wav".into(),
+        )));
+        let engine = Engine::start(cfg, Box::new(|| {})).unwrap();
+        let mut got = None;
+        for _ in 0..50 {
+            if let Some(n) = engine.drain_notices().into_iter().next() {
+                got = Some(n);
+                break;
+            }
+            std::thread::sleep(Duration::from_millis(20));
+        }
+        assert!(matches!(got, Some(EngineNotice::Error(_))), "{got:?}");
+        drop(engine); // joins without hanging
+    }
+}

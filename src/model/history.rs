@@ -1,0 +1,236 @@
+//! Bounded history for hours-long sessions: the waterfall (rows of log10 PSD on a fixed
+//! logarithmic frequency grid, a ring of fixed capacity) and the trend strips (fitted f_m, γ,
+//! n̄, m/V, T_eff against wall-clock time, thinned by half whenever full so the whole session
+//! stays visible at coarser resolution). Memory never grows with session length.
+
+use std::collections::VecDeque;
+
+/// One waterfall row: log10 of the PSD (V²/Hz) on `columns` log-spaced frequency columns.
+#[derive(Debug, Clone, PartialEq)]
+pub struct WaterfallRow {
+    /// Seconds since the engine started when the row was taken.
+    pub time_s: f64,
+    /// Frequency span of the columns, Hz (lower edge of the first, upper edge of the last).
+    pub range_hz: (f64, f64),
+    /// log10(PSD / (V²/Hz)) per column; NaN where there was no data.
+    pub log_psd: Vec<f32>,
+}
+
+/// A ring of the newest waterfall rows.
+#[derive(Debug, Clone)]
+pub struct Waterfall {
+    capacity: usize,
+    rows: VecDeque<WaterfallRow>,
+    /// Total rows ever pushed (lets a texture update only what is new).
+    pushed: u64,
+    /// Bumped whenever the grid changes and old rows are discarded.
+    epoch: u64,
+}
+
+impl Waterfall {
+    /// An empty waterfall keeping at most `capacity` rows (at least 1).
+    pub fn new(capacity: usize) -> Self {
+        Self {
+            capacity: capacity.max(1),
+            rows: VecDeque::with_capacity(capacity.max(1)),
+            pushed: 0,
+            epoch: 0,
+        }
+    }
+
+    /// Adds a row. A row on a different grid (span or column count) than the ones held
+    /// clears the history first.
+    pub fn push(&mut self, row: WaterfallRow) {
+        if let Some(last) = self.rows.back()
+            && (last.range_hz != row.range_hz || last.log_psd.len() != row.log_psd.len())
+        {
+            self.clear();
+        }
+        if self.rows.len() == self.capacity {
+            self.rows.pop_front();
+        }
+        self.rows.push_back(row);
+        self.pushed += 1;
+    }
+
+    /// Forgets every row.
+    pub fn clear(&mut self) {
+        self.rows.clear();
+        self.epoch += 1;
+    }
+
+    /// Rows held, oldest first.
+    pub fn rows(&self) -> &VecDeque<WaterfallRow> {
+        &self.rows
+    }
+
+    /// Maximum rows held.
+    pub fn capacity(&self) -> usize {
+        self.capacity
+    }
+
+    /// Rows pushed since creation.
+    pub fn pushed(&self) -> u64 {
+        self.pushed
+    }
+
+    /// Changes whenever the history is cleared.
+    pub fn epoch(&self) -> u64 {
+        self.epoch
+    }
+
+    /// Robust colour range (2nd percentile, maximum) of log10 PSD over the held rows, or
+    /// `None` with no finite data.
+    pub fn value_range(&self) -> Option<(f32, f32)> {
+        let mut all: Vec<f32> = self
+            .rows
+            .iter()
+            .flat_map(|r| r.log_psd.iter().copied())
+            .filter(|v| v.is_finite())
+            .collect();
+        if all.is_empty() {
+            return None;
+        }
+        all.sort_by(f32::total_cmp);
+        let lo = all.get(all.len() / 50).copied()?;
+        let hi = all.last().copied()?;
+        Some((lo, hi.max(lo + 1e-3)))
+    }
+}
+
+/// One trend sample (any value may be missing when the fit or an input was missing).
+#[derive(Debug, Clone, Copy, Default, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct TrendPoint {
+    /// Seconds since the engine started.
+    pub time_s: f64,
+    /// Fitted mode frequency f_m.
+    pub frequency_hz: Option<f64>,
+    /// Fitted FWHM linewidth γ.
+    pub linewidth_hz: Option<f64>,
+    /// Phonon occupancy n̄ from the calibrated area.
+    pub occupancy: Option<f64>,
+    /// Calibration, metres per volt.
+    pub m_per_v: Option<f64>,
+    /// Mode temperature T_eff.
+    pub effective_temperature_k: Option<f64>,
+}
+
+/// Trend history with fixed capacity: when full, every other point is dropped, so the
+/// strips always span the whole session and memory stays bounded.
+#[derive(Debug, Clone)]
+pub struct TrendBuffer {
+    capacity: usize,
+    points: Vec<TrendPoint>,
+    /// Current thinning: keep one point in `stride` of those offered.
+    stride: u64,
+    offered: u64,
+}
+
+impl TrendBuffer {
+    /// An empty buffer of at most `capacity` points (at least 4).
+    pub fn new(capacity: usize) -> Self {
+        let capacity = capacity.max(4);
+        Self {
+            capacity,
+            points: Vec::with_capacity(capacity),
+            stride: 1,
+            offered: 0,
+        }
+    }
+
+    /// Offers a point; kept according to the current thinning.
+    pub fn push(&mut self, point: TrendPoint) {
+        let keep = self.offered.is_multiple_of(self.stride);
+        self.offered += 1;
+        if !keep {
+            return;
+        }
+        if self.points.len() >= self.capacity {
+            let mut i = 0usize;
+            self.points.retain(|_| {
+                i += 1;
+                i % 2 == 1
+            });
+            self.stride *= 2;
+        }
+        self.points.push(point);
+    }
+
+    /// Points held, oldest first.
+    pub fn points(&self) -> &[TrendPoint] {
+        &self.points
+    }
+
+    /// Maximum points held.
+    pub fn capacity(&self) -> usize {
+        self.capacity
+    }
+
+    /// Forgets all points and resets the thinning.
+    pub fn clear(&mut self) {
+        self.points.clear();
+        self.stride = 1;
+        self.offered = 0;
+    }
+
+    /// `[time_s, value]` series of one quantity, skipping missing and non-finite values.
+    pub fn series(&self, pick: impl Fn(&TrendPoint) -> Option<f64>) -> Vec<[f64; 2]> {
+        self.points
+            .iter()
+            .filter_map(|p| pick(p).filter(|v| v.is_finite()).map(|v| [p.time_s, v]))
+            .collect()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn row(t: f64, cols: usize) -> WaterfallRow {
+        WaterfallRow {
+            time_s: t,
+            range_hz: (1.0, 1e3),
+            log_psd: vec![t as f32; cols],
+        }
+    }
+
+    #[test]
+    fn waterfall_is_a_bounded_ring() {
+        let mut w = Waterfall::new(10);
+        for i in 0..25 {
+            w.push(row(i as f64, 8));
+        }
+        assert_eq!(w.rows().len(), 10);
+        assert_eq!(w.rows().front().unwrap().time_s, 15.0);
+        assert_eq!(w.rows().back().unwrap().time_s, 24.0);
+        assert_eq!(w.pushed(), 25);
+        // a new grid clears
+        let e = w.epoch();
+        w.push(row(30.0, 16));
+        assert_eq!(w.rows().len(), 1);
+        assert_ne!(w.epoch(), e);
+        let (lo, hi) = w.value_range().unwrap();
+        assert!(lo <= hi);
+    }
+
+    #[test]
+    fn trends_stay_bounded_and_span_the_session() {
+        let mut t = TrendBuffer::new(100);
+        for i in 0..100_000 {
+            t.push(TrendPoint {
+                time_s: i as f64,
+                frequency_hz: Some(1e6 - i as f64),
+                ..TrendPoint::default()
+            });
+        }
+        assert!(t.points().len() <= 100);
+        assert!(t.points().len() >= 50);
+        assert_eq!(t.points()[0].time_s, 0.0);
+        let last = t.points().last().unwrap().time_s;
+        assert!(last > 90_000.0, "last kept point at {last}");
+        assert!(t.points().windows(2).all(|w| w[0].time_s < w[1].time_s));
+        let s = t.series(|p| p.frequency_hz);
+        assert_eq!(s.len(), t.points().len());
+        assert!(t.series(|p| p.occupancy).is_empty());
+    }
+}
