@@ -1,6 +1,7 @@
 //! Errors of the acquisition layer.
 
 use std::io;
+use std::path::PathBuf;
 
 /// Result alias for acquisition.
 pub type Result<T> = std::result::Result<T, AcquireError>;
@@ -21,4 +22,23 @@ pub enum AcquireError {
     /// Not available in this build or for this source.
     #[error("{0}")]
     Unsupported(String),
+    /// A file could not be opened (missing, no permission, …).
+    #[error("cannot open {}: {source}", path.display())]
+    Open {
+        /// The path as given.
+        path: PathBuf,
+        /// What the operating system said.
+        source: io::Error,
+    },
+    /// A TCP source could not be reached (refused, unknown host, timed out).
+    #[error("cannot connect to tcp://{address}: {source}")]
+    Connect {
+        /// `HOST:PORT` as given.
+        address: String,
+        /// What the operating system said.
+        source: io::Error,
+    },
+    /// The acquisition thread could not be started.
+    #[error("cannot start the acquisition thread: {0}")]
+    Thread(io::Error),
 }

@@ -2,8 +2,47 @@
 //! demo generator) into blocks of calibrated-in-volts samples of one channel, on its own thread.
 //!
 //! Readers implement [`SampleReader`] (pull, one block at a time, a `Result` per block, shaped
-//! like hound's reader). [`Acquisition`] runs a reader on a named thread and hands
-//! [`AcqEvent`]s to the consumer over a *bounded* crossbeam channel.
+//! like hound's reader). [`open`] picks the reader for a [`SourceConfig`]:
+//!
+//! | source | reader | notes |
+//! |---|---|---|
+//! | `*.wav` | [`WavReader`] | PCM 16/24/32-bit int, 32/64-bit float, plain or EXTENSIBLE, RF64 |
+//! | other path | [`RawReader`] | needs `sample_format` and `rate_hz` |
+//! | path + `follow` | [`FollowReader`] | polls every 50 ms, reopens on truncation/rotation |
+//! | `-` | [`RawReader::stdin`] | live |
+//! | `tcp://HOST:PORT` | [`TcpReader`] | live; `reconnect` retries with back-off |
+//! | demo | [`DemoReader`] | [`crate::synth`] generator, paced like a recording |
+//!
+//! [`Acquisition`] runs a reader on a thread named `stillpoint-acquire` and hands
+//! [`AcqEvent`]s to the consumer over a *bounded* crossbeam channel; [`AcqCommand`]s go the
+//! other way; a [`Waker`] (the window passes `request_repaint`, never an egui type) is called
+//! after each event. The last event is always [`AcqEvent::Stopped`], so the consumer learns why
+//! the stream ended.
+//!
+//! Back-pressure: headless commands use [`Backpressure::Block`] for every source (no sample is
+//! lost; a file is simply read as fast as the consumer takes it, a live source's kernel buffer
+//! fills). The window uses [`Backpressure::DropAndCount`] (see [`AcqOptions::window`]): the
+//! worker never waits on the UI; blocks that find the channel full are dropped and counted in
+//! [`AcqStatus::dropped_blocks`]/[`AcqStatus::dropped_samples`]. Recordings and the demo are
+//! paced to the playback speed ([`AcqOptions::speed`], changeable with [`AcqCommand::Speed`]);
+//! live sources ([`SampleReader::is_live`]: stdin, TCP, followed files) are never paced.
+//!
+//! ```no_run
+//! use stillpoint::acquire::{self, AcqEvent, AcqOptions, Acquisition, SourceConfig, SourceSpec};
+//!
+//! let config = SourceConfig::new(SourceSpec::parse("cooldown.wav"));
+//! let reader = acquire::open(&config)?;
+//! let acq = Acquisition::spawn(reader, AcqOptions::headless(), None)?;
+//! for event in acq.events() {
+//!     match event {
+//!         AcqEvent::Block(volts) => { /* feed the Welch averager */ let _ = volts; }
+//!         AcqEvent::Status(status) => eprintln!("{} samples", status.reader.samples),
+//!         AcqEvent::Stopped(None) => break,
+//!         AcqEvent::Stopped(Some(error)) => return Err(error.into()),
+//!     }
+//! }
+//! # Ok::<(), Box<dyn std::error::Error>>(())
+//! ```
 //!
 //! Volts: WAV integers of b bits are divided by 2^(b−1) (full scale ±1) and then multiplied by
 //! `volts_per_unit`; raw integers are not divided (volts = count × `volts_per_unit`); floats
@@ -11,12 +50,31 @@
 //!
 //! Non-finite samples are passed through unchanged (as NaN/±Inf) and counted in
 //! [`ReaderStats::non_finite_samples`]; the Welch averager skips any segment containing one.
+//! Integers at their most negative or most positive code are counted in
+//! [`ReaderStats::clipped_samples`].
+//!
+//! Memory: readers never allocate according to a header's claims; buffers are bounded by the
+//! block asked for (at most 1 MiB, or one frame if larger) and by the bytes really present.
 
+mod demo;
 mod error;
+mod follow;
+mod frames;
+mod raw;
+mod tcp;
+mod thread;
+mod wav;
 
+pub use demo::DemoReader;
 pub use error::{AcquireError, Result};
+pub use follow::{FollowReader, POLL_INTERVAL};
+pub use raw::{MAX_CHANNELS, RawFormat, RawReader};
+pub use tcp::{FIRST_BACKOFF, MAX_BACKOFF, TcpReader};
+pub use thread::{AcqOptions, Acquisition, Waker};
+pub use wav::{WavHeader, WavReader};
 
 use std::path::PathBuf;
+use std::time::Duration;
 
 /// Binary layout of one raw sample.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
@@ -148,6 +206,11 @@ pub struct SourceConfig {
     pub volts_per_unit: f64,
     /// Keep reading as the file grows.
     pub follow: bool,
+    /// TCP only: when the connection is lost, reconnect with back-off instead of ending the
+    /// stream (the window sets this; headless runs end at the peer's close). Ignored for
+    /// other sources.
+    #[serde(default)]
+    pub reconnect: bool,
 }
 
 impl SourceConfig {
@@ -162,6 +225,7 @@ impl SourceConfig {
             rate_hz: None,
             volts_per_unit: 1.0,
             follow: false,
+            reconnect: false,
         }
     }
 }
@@ -201,6 +265,25 @@ pub trait SampleReader: Send {
 
     /// A one-line human description ("WAV, 2 ch, 24-bit int, 250 kHz, channel 0").
     fn describe(&self) -> String;
+
+    /// Like [`SampleReader::read_block`], but waits at most about `timeout` for samples:
+    /// `Ok(None)` means none arrived in time and the stream is still open. Readers that can
+    /// wait (followed files, TCP) implement it so the acquisition thread stays responsive;
+    /// the default simply calls `read_block`.
+    ///
+    /// # Errors
+    /// As [`SampleReader::read_block`].
+    fn read_block_timeout(&mut self, out: &mut [f64], timeout: Duration) -> Result<Option<usize>> {
+        let _ = timeout;
+        self.read_block(out).map(Some)
+    }
+
+    /// True if samples arrive at their own real-time pace (stdin, TCP, a followed file), so
+    /// the acquisition thread must not pace them; false for recordings and the demo
+    /// generator, which are paced to the requested playback speed.
+    fn is_live(&self) -> bool {
+        false
+    }
 }
 
 /// Opens a reader for `config`.
@@ -209,8 +292,77 @@ pub trait SampleReader: Send {
 /// Missing file, malformed header, inconsistent options (raw without `--rate`, channel out
 /// of range, …), connection refused.
 pub fn open(config: &SourceConfig) -> Result<Box<dyn SampleReader>> {
-    let _ = config;
-    Err(AcquireError::Unsupported("sources are not implemented yet".into()))
+    check_rate(config.rate_hz)?;
+    check_volts_per_unit(config.volts_per_unit)?;
+    if config.follow && !matches!(config.spec, SourceSpec::Path(_)) {
+        return Err(AcquireError::Config(
+            "--follow applies only to a file".into(),
+        ));
+    }
+    let vpu = config.volts_per_unit;
+    Ok(match &config.spec {
+        SourceSpec::Path(path) if config.spec.is_wav() => {
+            if config.follow {
+                Box::new(FollowReader::wav(
+                    path,
+                    config.channel,
+                    vpu,
+                    config.rate_hz,
+                )?)
+            } else {
+                Box::new(WavReader::open(path, config.channel, vpu, config.rate_hz)?)
+            }
+        }
+        SourceSpec::Path(path) => {
+            let format = RawFormat::from_config(config)?;
+            if config.follow {
+                Box::new(FollowReader::raw(path, format)?)
+            } else {
+                Box::new(RawReader::open(path, format)?)
+            }
+        }
+        SourceSpec::Stdin => Box::new(RawReader::stdin(RawFormat::from_config(config)?)?),
+        SourceSpec::Tcp(address) => {
+            let format = RawFormat::from_config(config)?;
+            Box::new(TcpReader::connect(address, format, config.reconnect)?)
+        }
+        SourceSpec::Demo { scenario, seed } => Box::new(DemoReader::new(scenario, *seed, vpu)?),
+    })
+}
+
+/// A rate option must be a positive finite number of hertz.
+fn check_rate(rate_hz: Option<f64>) -> Result<()> {
+    match rate_hz {
+        Some(r) if !(r.is_finite() && r > 0.0) => Err(AcquireError::Config(format!(
+            "--rate must be a positive number of samples per second, got {r}"
+        ))),
+        _ => Ok(()),
+    }
+}
+
+/// `--volts-per-unit` must be finite and non-zero (negative inverts, which is allowed).
+fn check_volts_per_unit(volts_per_unit: f64) -> Result<()> {
+    if volts_per_unit.is_finite() && volts_per_unit != 0.0 {
+        Ok(())
+    } else {
+        Err(AcquireError::Config(format!(
+            "--volts-per-unit must be a finite, non-zero number, got {volts_per_unit}"
+        )))
+    }
+}
+
+/// "250 kHz", "44.1 kHz", "1.5 MHz", "12 Hz".
+pub(crate) fn format_rate(rate_hz: f64) -> String {
+    let (value, unit) = if rate_hz >= 1e6 {
+        (rate_hz / 1e6, "MHz")
+    } else if rate_hz >= 1e3 {
+        (rate_hz / 1e3, "kHz")
+    } else {
+        (rate_hz, "Hz")
+    };
+    let text = format!("{value:.6}");
+    let text = text.trim_end_matches('0').trim_end_matches('.');
+    format!("{text} {unit}")
 }
 
 /// Worker → consumer messages.

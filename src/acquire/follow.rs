@@ -1,0 +1,332 @@
+//! Following a growing file (raw or WAV), like a recorder writing it right now.
+//!
+//! At the end of the bytes written so far the reader waits and polls every
+//! [`POLL_INTERVAL`]. If the file shrinks (truncated in place) or the path now names another
+//! file (rotated: new inode), it reopens from the start, drops any partial frame and counts
+//! [`ReaderStats::reconnects`](super::ReaderStats::reconnects). For WAV the header's data size
+//! is ignored (recorders fill it in only when they close the file); a replacement WAV must
+//! have the same encoding, channels and rate.
+
+use std::fs::{self, File};
+use std::io::{self, Read, Seek, SeekFrom};
+use std::path::{Path, PathBuf};
+use std::thread;
+use std::time::{Duration, Instant};
+
+use super::frames::{ByteSource, Fill, FrameReader};
+use super::raw::RawFormat;
+use super::wav::{self, HeaderError, WavHeader};
+use super::{AcquireError, ReaderStats, Result, SampleReader};
+
+/// How often a followed file is polled for new bytes.
+pub const POLL_INTERVAL: Duration = Duration::from_millis(50);
+
+/// How long opening a followed WAV waits for a header that is still being written.
+const HEADER_WAIT: Duration = Duration::from_secs(2);
+
+/// Identity of a file (device, inode) where the platform has one.
+fn identity(meta: &fs::Metadata) -> Option<(u64, u64)> {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::MetadataExt;
+        Some((meta.dev(), meta.ino()))
+    }
+    #[cfg(not(unix))]
+    {
+        let _ = meta;
+        None
+    }
+}
+
+/// A growing file as a byte source.
+struct FollowSource {
+    path: PathBuf,
+    file: File,
+    id: Option<(u64, u64)>,
+    /// Absolute read position in `file`.
+    pos: u64,
+    /// For WAV: the header of the first file (a replacement must match it).
+    wav: Option<WavHeader>,
+    /// The current file still needs its WAV header parsed.
+    needs_header: bool,
+}
+
+fn open_error(path: &Path, source: io::Error) -> AcquireError {
+    AcquireError::Open {
+        path: path.to_path_buf(),
+        source,
+    }
+}
+
+impl FollowSource {
+    fn open(path: &Path, wav: bool) -> Result<Self> {
+        let file = File::open(path).map_err(|e| open_error(path, e))?;
+        let id = identity(&file.metadata()?);
+        Ok(Self {
+            path: path.to_path_buf(),
+            file,
+            id,
+            pos: 0,
+            wav: None,
+            needs_header: wav,
+        })
+    }
+
+    /// Parses the WAV header of the current file if it is complete. `Ok(None)`: not yet.
+    fn try_header(&mut self) -> Result<Option<WavHeader>> {
+        let len = self.file.metadata()?.len();
+        match wav::parse_header(&mut self.file, len) {
+            Ok(header) => {
+                self.file.seek(SeekFrom::Start(header.data_offset))?;
+                self.pos = header.data_offset;
+                self.needs_header = false;
+                Ok(Some(header))
+            }
+            Err(HeaderError::Incomplete(_)) => Ok(None),
+            Err(HeaderError::Bad(m)) => Err(AcquireError::Wav(m)),
+        }
+    }
+
+    /// Parses the header of a replacement file and checks it against the first one.
+    fn restart_header(&mut self) -> Result<bool> {
+        let Some(header) = self.try_header()? else {
+            return Ok(false);
+        };
+        if let Some(first) = self.wav {
+            let same = first.format == header.format
+                && first.channels == header.channels
+                && first.sample_rate_hz == header.sample_rate_hz;
+            if !same {
+                return Err(AcquireError::Wav(format!(
+                    "the followed file {} was replaced by one with a different format ({} ch, {} Hz instead of {} ch, {} Hz)",
+                    self.path.display(),
+                    header.channels,
+                    header.sample_rate_hz,
+                    first.channels,
+                    first.sample_rate_hz
+                )));
+            }
+        }
+        Ok(true)
+    }
+
+    /// At the end of the current bytes: reopens if the file was truncated or replaced.
+    /// Returns true if the stream restarted.
+    fn check_replaced(&mut self) -> Result<bool> {
+        let open_len = self.file.metadata()?.len();
+        if open_len < self.pos {
+            self.file.seek(SeekFrom::Start(0))?;
+            self.pos = 0;
+            self.needs_header = self.wav.is_some();
+            return Ok(true);
+        }
+        let Ok(meta) = fs::metadata(&self.path) else {
+            return Ok(false); // Rotation in progress: the new file is not there yet.
+        };
+        let new_id = identity(&meta);
+        if new_id.is_some() && new_id != self.id {
+            let Ok(file) = File::open(&self.path) else {
+                return Ok(false);
+            };
+            self.id = identity(&file.metadata()?);
+            self.file = file;
+            self.pos = 0;
+            self.needs_header = self.wav.is_some();
+            return Ok(true);
+        }
+        Ok(false)
+    }
+}
+
+/// Sleeps one poll interval, or until `deadline`; returns false if the deadline has passed.
+fn wait(deadline: Option<Instant>) -> bool {
+    let now = Instant::now();
+    let nap = match deadline {
+        Some(d) if d <= now => return false,
+        Some(d) => POLL_INTERVAL.min(d - now),
+        None => POLL_INTERVAL,
+    };
+    thread::sleep(nap);
+    true
+}
+
+impl ByteSource for FollowSource {
+    fn fill(&mut self, buf: &mut [u8], deadline: Option<Instant>) -> Result<Fill> {
+        loop {
+            if self.needs_header {
+                if self.restart_header()? {
+                    continue;
+                }
+                if !wait(deadline) {
+                    return Ok(Fill::Idle);
+                }
+                continue;
+            }
+            match self.file.read(buf) {
+                Ok(0) => {}
+                Ok(n) => {
+                    self.pos += n as u64;
+                    return Ok(Fill::Bytes(n));
+                }
+                Err(e) if e.kind() == io::ErrorKind::Interrupted => continue,
+                Err(e) => return Err(e.into()),
+            }
+            if self.check_replaced()? {
+                return Ok(Fill::Restarted);
+            }
+            if !wait(deadline) {
+                return Ok(Fill::Idle);
+            }
+        }
+    }
+}
+
+/// A growing raw or WAV file as a [`SampleReader`]; `read_block` waits for new bytes and
+/// returns 0 only on an error-free end, which a followed file never reaches.
+pub struct FollowReader {
+    frames: FrameReader,
+    sample_rate_hz: f64,
+    description: String,
+}
+
+impl FollowReader {
+    /// Follows a raw file with the given layout, from its first byte.
+    ///
+    /// # Errors
+    /// [`AcquireError::Open`] if the file cannot be opened, [`AcquireError::Config`] for an
+    /// inconsistent `format`.
+    pub fn raw(path: &Path, format: RawFormat) -> Result<Self> {
+        format.validate()?;
+        let source = FollowSource::open(path, false)?;
+        Ok(Self {
+            frames: FrameReader::new(Box::new(source), format.layout()),
+            sample_rate_hz: format.sample_rate_hz,
+            description: format!("following {}, raw {}", path.display(), format.describe()),
+        })
+    }
+
+    /// Follows a WAV file being written, from its first sample. Waits up to 2 s for a header
+    /// that is still incomplete.
+    ///
+    /// # Errors
+    /// [`AcquireError::Open`], [`AcquireError::Wav`] for a bad header (or one still incomplete
+    /// after the wait), [`AcquireError::Config`] for a channel out of range.
+    pub fn wav(
+        path: &Path,
+        channel: usize,
+        volts_per_unit: f64,
+        rate_hz: Option<f64>,
+    ) -> Result<Self> {
+        let mut source = FollowSource::open(path, true)?;
+        let started = Instant::now();
+        let header = loop {
+            if let Some(h) = source.try_header()? {
+                break h;
+            }
+            if started.elapsed() > HEADER_WAIT {
+                let len = source.file.metadata()?.len();
+                let why = match wav::parse_header(&mut source.file, len) {
+                    Err(HeaderError::Incomplete(m) | HeaderError::Bad(m)) => m,
+                    Ok(_) => "header changed while reading".into(),
+                };
+                return Err(AcquireError::Wav(format!(
+                    "{why} (waited {} s)",
+                    HEADER_WAIT.as_secs()
+                )));
+            }
+            thread::sleep(POLL_INTERVAL);
+        };
+        let sample_rate_hz = wav::check_options(&header, channel, rate_hz)?;
+        source.wav = Some(header);
+        Ok(Self {
+            frames: FrameReader::new(
+                Box::new(source),
+                wav::layout(&header, channel, volts_per_unit),
+            ),
+            sample_rate_hz,
+            description: format!(
+                "following {}",
+                wav::describe_header(&header, sample_rate_hz, channel)
+            ),
+        })
+    }
+}
+
+impl SampleReader for FollowReader {
+    fn sample_rate_hz(&self) -> f64 {
+        self.sample_rate_hz
+    }
+
+    fn read_block(&mut self, out: &mut [f64]) -> Result<usize> {
+        loop {
+            if let Some(n) = self.frames.read(out, None)? {
+                return Ok(n);
+            }
+        }
+    }
+
+    fn read_block_timeout(&mut self, out: &mut [f64], timeout: Duration) -> Result<Option<usize>> {
+        self.frames.read(out, Instant::now().checked_add(timeout))
+    }
+
+    fn stats(&self) -> ReaderStats {
+        self.frames.stats
+    }
+
+    fn describe(&self) -> String {
+        self.description.clone()
+    }
+
+    fn is_live(&self) -> bool {
+        true
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::acquire::{Endian, SampleFormat};
+    use std::io::Write;
+
+    #[test]
+    fn sees_appended_bytes_and_times_out_when_idle() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("grow.bin");
+        let mut f = File::create(&path).unwrap();
+        f.write_all(&1_i16.to_le_bytes()).unwrap();
+        let format = RawFormat {
+            sample_format: SampleFormat::I16,
+            endian: Endian::Little,
+            channels: 1,
+            channel: 0,
+            sample_rate_hz: 10.0,
+            volts_per_unit: 1.0,
+        };
+        let mut r = FollowReader::raw(&path, format).unwrap();
+        let mut out = [0.0; 4];
+        assert_eq!(
+            r.read_block_timeout(&mut out, Duration::from_millis(200))
+                .unwrap(),
+            Some(1)
+        );
+        assert_eq!(
+            r.read_block_timeout(&mut out, Duration::from_millis(120))
+                .unwrap(),
+            None
+        );
+        f.write_all(&[2, 0, 3]).unwrap(); // one frame and a half
+        assert_eq!(
+            r.read_block_timeout(&mut out, Duration::from_millis(200))
+                .unwrap(),
+            Some(1)
+        );
+        assert_eq!(out[0], 2.0);
+        f.write_all(&[0]).unwrap();
+        assert_eq!(
+            r.read_block_timeout(&mut out, Duration::from_millis(200))
+                .unwrap(),
+            Some(1)
+        );
+        assert_eq!(out[0], 3.0);
+    }
+}
