@@ -1,0 +1,123 @@
+//! `stillpoint analyze`: spectrum → calibration → mode fit → quantum references →
+//! sidebands → stray peaks, written as pretty JSON (the BRIEF.md key paths), with a short
+//! summary on stdout and the report's notes and warnings on stderr.
+
+use std::io::{self, Write};
+use std::process::ExitCode;
+
+use anyhow::{Context, Result};
+
+use crate::report::{self, Report};
+
+use super::args::AnalyzeArgs;
+use super::{config, note, output, pipeline, warn};
+
+/// Runs `stillpoint analyze`.
+///
+/// # Errors
+/// Bad options or input, an impossible analysis input, an unwritable output.
+pub fn run(args: &AnalyzeArgs) -> Result<ExitCode> {
+    let options =
+        config::analysis_options(&args.calibration, &args.heterodyne, args.peak_threshold)?;
+    output::check_output_path(&args.output)?;
+    let run = pipeline::compute_spectrum(&args.source, &args.welch)?;
+    let mut report = report::analyze(&run.spectrum, &options)?;
+    for warning in run.warnings.iter().rev() {
+        if !report.warnings.contains(warning) {
+            report.warnings.insert(0, warning.clone());
+        }
+    }
+    let json = serde_json::to_string_pretty(&report).context("cannot encode the report")?;
+    output::write_atomically(&args.output, |out| {
+        out.write_all(json.as_bytes())?;
+        out.write_all(b"\n")
+    })?;
+    for warning in &report.warnings {
+        warn(warning);
+    }
+    for text in &report.notes {
+        note(text);
+    }
+    if !args.quiet && args.output.as_os_str() != "-" {
+        let stdout = io::stdout();
+        let mut out = stdout.lock();
+        writeln!(out, "source: {}", run.description)
+            .context("cannot write the summary to stdout")?;
+        write_summary(&mut out, &report).context("cannot write the summary to stdout")?;
+        out.flush().context("cannot write the summary to stdout")?;
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `value ± err unit` with 4 significant digits, or `—` when absent.
+fn with_error(value: Option<f64>, error: Option<f64>, unit: &str) -> String {
+    match (value, error) {
+        (Some(v), Some(e)) => format!("{v:.4e} ± {e:.2e} {unit}"),
+        (Some(v), None) => format!("{v:.4e} {unit}"),
+        _ => "—".to_string(),
+    }
+}
+
+/// The short human summary.
+fn write_summary(out: &mut dyn Write, report: &Report) -> io::Result<()> {
+    let mode = &report.mode;
+    let quantum = &report.quantum;
+    let cal = &report.calibration;
+    writeln!(
+        out,
+        "Welch: N = {}, {} window, {} % overlap, {} averages, RBW {:.4e} Hz (ENBW {:.4e} Hz)",
+        report.welch.segment,
+        report.welch.window,
+        report.welch.overlap * 100.0,
+        report.welch.averages,
+        report.welch.resolution_hz,
+        report.welch.enbw_hz
+    )?;
+    writeln!(
+        out,
+        "mode frequency f_m      {}",
+        with_error(mode.frequency_hz, mode.frequency_hz_uncertainty, "Hz")
+    )?;
+    writeln!(
+        out,
+        "linewidth γ (FWHM)      {}",
+        with_error(mode.linewidth_hz, mode.linewidth_hz_uncertainty, "Hz")
+    )?;
+    writeln!(
+        out,
+        "quality factor Q        {}",
+        with_error(mode.quality_factor, mode.quality_factor_uncertainty, "")
+    )?;
+    let method = cal.method.as_deref().unwrap_or("none");
+    writeln!(
+        out,
+        "calibration ({method:<13}) {}",
+        with_error(cal.m_per_v, cal.m_per_v_uncertainty, "m/V")
+    )?;
+    writeln!(
+        out,
+        "occupancy n̄ (area)     {}",
+        with_error(quantum.occupancy, quantum.occupancy_uncertainty, "")
+    )?;
+    writeln!(
+        out,
+        "effective temperature   {}",
+        with_error(
+            quantum.effective_temperature_k,
+            quantum.effective_temperature_k_uncertainty,
+            "K"
+        )
+    )?;
+    let sideband = report.sidebands.as_ref();
+    writeln!(
+        out,
+        "occupancy n̄ (sideband) {}",
+        with_error(
+            sideband.and_then(|s| s.occupancy),
+            sideband.and_then(|s| s.occupancy_uncertainty),
+            ""
+        )
+    )?;
+    writeln!(out, "stray peaks             {}", report.peaks.len())?;
+    Ok(())
+}

@@ -1,0 +1,649 @@
+//! The command-line grammar (BRIEF.md "Command-line contract"), as clap derive structs.
+//!
+//! Only parsing and per-value checks live here; cross-option checks and the conversion into
+//! library configurations are in [`super::config`].
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand, ValueEnum};
+
+use crate::acquire::{Endian, SampleFormat};
+use crate::dsp::{Detrend, WindowKind};
+
+/// Default segment length when the record length is not known in advance (samples).
+pub const DEFAULT_SEGMENT: usize = 1 << 16;
+
+const LONG_ABOUT: &str = "\
+stillpoint turns a photodetector voltage (a live stream or a recording) into a calibrated \
+displacement spectral density of a mechanical resonator, fits the mode, and compares it with \
+the zero-point and standard-quantum-limit references.
+
+All spectral densities are single-sided in ordinary frequency (the integral over 0..inf Hz \
+is the variance). Without a subcommand the window opens on the built-in demo stream.";
+
+const EXAMPLES: &str = "\
+Examples:
+  stillpoint                                        window on the built-in demo cooldown
+  stillpoint monitor run.wav                        window on a recording
+  stillpoint spectrum run.wav --segment 65536 -o run.csv
+  stillpoint spectrum adc.bin --sample-format i16 --endian big --channels 2 --channel 1 \\
+      --rate 2e6 --volts-per-unit 3.05e-5 -o adc.csv
+  nc digitiser 5000 | stillpoint spectrum - --sample-format f32 --rate 1e6 --averages 200 -o live.csv
+  stillpoint analyze run.wav --mode-band 0.99e6:1.01e6 --mass 1e-13 --bath-temperature 4 -o run.json
+  stillpoint analyze het.wav --carrier 5e6 --lo-side above --mode-band 0.99e6:1.01e6 \\
+      --tone-freq 1.05e6 --pm-depth 1e-3 --freq-pull 1e18 --mass 1e-13 -o het.json
+  stillpoint synth cooldown --duration 10 -o demo.wav
+  stillpoint bench --rate 10e6 --segment 1048576
+
+Exit status: 0 success, 1 a runtime failure (I/O while running), 2 bad options or bad input.";
+
+/// `stillpoint`: calibrated displacement spectra, mode fits and quantum references.
+#[derive(Debug, Parser)]
+#[command(
+    name = "stillpoint",
+    version,
+    about = "Calibrated displacement spectra, mode fits and quantum references for mechanical \
+             resonators near their ground state",
+    long_about = LONG_ABOUT,
+    after_long_help = EXAMPLES,
+    propagate_version = true
+)]
+pub struct Cli {
+    /// What to do; none opens the window on the built-in demo stream.
+    #[command(subcommand)]
+    pub command: Option<Command>,
+}
+
+/// The subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Open the window on SOURCE (live spectrum, fit, waterfall, trends).
+    #[command(after_long_help = EXAMPLES)]
+    Monitor(MonitorArgs),
+    /// Welch PSD of SOURCE, written as CSV (frequency_hz, psd_v2_per_hz[, psd_m2_per_hz]).
+    #[command(
+        long_about = "Welch PSD of SOURCE, written as CSV with a header row and one row per \
+                      bin from DC to Nyquist inclusive: frequency_hz, psd_v2_per_hz and, when \
+                      a calibration is given, psd_m2_per_hz. Numbers are written in the \
+                      shortest form that reads back to the same double. The recording is \
+                      read as fast as possible (no real-time pacing).",
+        after_long_help = EXAMPLES
+    )]
+    Spectrum(SpectrumArgs),
+    /// Spectrum → calibration → mode fit → quantum references → sidebands → stray peaks, as JSON.
+    #[command(
+        long_about = "Computes the Welch PSD of SOURCE, calibrates it (given m/V, a tone of \
+                      known displacement, a phase-modulation tone, or equipartition at a known \
+                      bath temperature), fits the mechanical mode, derives x_zpf, the \
+                      occupancy, the effective temperature, the zero-point and SQL levels, \
+                      sideband-asymmetry thermometry (heterodyne) and a list of stray \
+                      resonances, and writes them as pretty JSON. A short summary goes to \
+                      stdout, notes and warnings to stderr.",
+        after_long_help = EXAMPLES
+    )]
+    Analyze(AnalyzeArgs),
+    /// Write an invented detector-voltage record of a named scenario as WAV (+ truth sidecar).
+    #[command(after_long_help = EXAMPLES)]
+    Synth(SynthArgs),
+    /// Can this machine keep up with a given sample rate and segment length?
+    #[command(
+        long_about = "Measures the sustained Welch throughput (mega-samples per second) for \
+                      the given segment, window and overlap, compares it with the requested \
+                      sample rate (headroom = throughput / rate; it keeps up when headroom > \
+                      1), and with the FFT-only floor (the same FFTs with no windowing, \
+                      detrending or averaging). Figures are medians of several runs.",
+        after_long_help = EXAMPLES
+    )]
+    Bench(BenchArgs),
+}
+
+/// Raw sample layout (`--sample-format`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum SampleFormatArg {
+    /// signed 16-bit integer
+    I16,
+    /// signed 24-bit integer, 3 bytes
+    I24,
+    /// signed 32-bit integer
+    I32,
+    /// IEEE 754 binary32 float
+    F32,
+    /// IEEE 754 binary64 float
+    F64,
+}
+
+impl From<SampleFormatArg> for SampleFormat {
+    fn from(value: SampleFormatArg) -> Self {
+        match value {
+            SampleFormatArg::I16 => Self::I16,
+            SampleFormatArg::I24 => Self::I24,
+            SampleFormatArg::I32 => Self::I32,
+            SampleFormatArg::F32 => Self::F32,
+            SampleFormatArg::F64 => Self::F64,
+        }
+    }
+}
+
+/// Raw byte order (`--endian`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum EndianArg {
+    /// least significant byte first
+    Little,
+    /// most significant byte first
+    Big,
+}
+
+impl From<EndianArg> for Endian {
+    fn from(value: EndianArg) -> Self {
+        match value {
+            EndianArg::Little => Self::Little,
+            EndianArg::Big => Self::Big,
+        }
+    }
+}
+
+/// Window (`--window`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum WindowArg {
+    /// rectangular (NENBW 1.00 bin)
+    Rect,
+    /// Hann (NENBW 1.50 bins)
+    Hann,
+    /// Hamming (NENBW 1.36 bins)
+    Hamming,
+    /// 4-term Blackman-Harris, -92 dB sidelobes (NENBW 2.00 bins)
+    BlackmanHarris,
+    /// flat-top HFT95, amplitude error <= 0.0044 dB (NENBW 3.81 bins)
+    Flattop,
+}
+
+impl From<WindowArg> for WindowKind {
+    fn from(value: WindowArg) -> Self {
+        match value {
+            WindowArg::Rect => Self::Rectangular,
+            WindowArg::Hann => Self::Hann,
+            WindowArg::Hamming => Self::Hamming,
+            WindowArg::BlackmanHarris => Self::BlackmanHarris,
+            WindowArg::Flattop => Self::FlatTop,
+        }
+    }
+}
+
+/// Detrending (`--detrend`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum DetrendArg {
+    /// nothing removed
+    None,
+    /// segment mean removed before windowing
+    Mean,
+    /// least-squares line removed before windowing
+    Linear,
+}
+
+impl From<DetrendArg> for Detrend {
+    fn from(value: DetrendArg) -> Self {
+        match value {
+            DetrendArg::None => Self::None,
+            DetrendArg::Mean => Self::Mean,
+            DetrendArg::Linear => Self::Linear,
+        }
+    }
+}
+
+/// How segment periodograms are combined (`--averaging`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum AveragingArg {
+    /// arithmetic mean of the segment powers (Welch)
+    Mean,
+    /// bin-wise median, bias-corrected as scipy's average='median'
+    Median,
+    /// bin-wise maximum (transients; not a noise PSD)
+    MaxHold,
+}
+
+/// Local-oscillator side of a heterodyne detection (`--lo-side`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum LoSideArg {
+    /// LO frequency above the laser
+    Above,
+    /// LO frequency below the laser
+    Below,
+}
+
+/// Sample format of a synthesised WAV (`synth --format`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum WavFormatArg {
+    /// 16-bit integer PCM
+    I16,
+    /// 24-bit integer PCM
+    I24,
+    /// 32-bit integer PCM
+    I32,
+    /// 32-bit float
+    F32,
+}
+
+/// Source options shared by every command that reads samples.
+#[derive(Debug, Clone, Args)]
+#[command(next_help_heading = "Source")]
+pub struct SourceArgs {
+    /// The samples: a path (.wav read as WAV, anything else as raw binary), `-` for raw
+    /// samples on stdin, or tcp://HOST:PORT for raw samples over TCP.
+    #[arg(value_name = "SOURCE")]
+    pub source: String,
+
+    /// Raw sample layout (required for raw sources; ignored for WAV).
+    #[arg(long, value_enum, value_name = "FORMAT")]
+    pub sample_format: Option<SampleFormatArg>,
+
+    /// Raw byte order.
+    #[arg(long, value_enum, default_value = "little", value_name = "ORDER")]
+    pub endian: EndianArg,
+
+    /// Interleaved channels in a raw stream (WAV: taken from the header).
+    #[arg(long, default_value_t = 1, value_name = "N",
+          value_parser = clap::value_parser!(u32).range(1..=65535))]
+    pub channels: u32,
+
+    /// Channel to analyse, 0-based.
+    #[arg(long, default_value_t = 0, value_name = "K")]
+    pub channel: u32,
+
+    /// Sample rate in Hz (required for raw sources; overrides the WAV header when given).
+    #[arg(long, value_name = "HZ", value_parser = parse_positive)]
+    pub rate: Option<f64>,
+
+    /// Volts per unit: WAV integers of b bits are first divided by 2^(b-1) (full scale ±1),
+    /// raw integers are not (volts = count × V), floats are multiplied by V.
+    #[arg(long, default_value_t = 1.0, value_name = "V", value_parser = parse_nonzero_finite)]
+    pub volts_per_unit: f64,
+
+    /// Keep reading as the file grows (a recording still being written); headless commands
+    /// then need --averages to know when to stop.
+    #[arg(long)]
+    pub follow: bool,
+}
+
+/// Welch averager options.
+#[derive(Debug, Clone, Args)]
+#[command(next_help_heading = "Welch averager")]
+pub struct WelchArgs {
+    /// Segment length in samples (FFT size; resolution = rate / N). Default: 65536, or the
+    /// largest power of two not above record length / 8 for a shorter recording of known
+    /// length.
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u64).range(1..))]
+    pub segment: Option<u64>,
+
+    /// Overlap of consecutive segments as a fraction, 0 <= F < 1 (hop = N - round(F·N)).
+    #[arg(long, default_value_t = 0.5, value_name = "F", value_parser = parse_overlap)]
+    pub overlap: f64,
+
+    /// Window applied to each segment.
+    #[arg(long, value_enum, default_value = "hann", value_name = "WINDOW")]
+    pub window: WindowArg,
+
+    /// Trend removed from each segment before windowing.
+    #[arg(long, value_enum, default_value = "mean", value_name = "TREND")]
+    pub detrend: DetrendArg,
+
+    /// Use at most K segments (default: all segments of the record).
+    #[arg(long, value_name = "K", value_parser = clap::value_parser!(u64).range(1..))]
+    pub averages: Option<u64>,
+
+    /// How segment periodograms are combined.
+    #[arg(long, value_enum, default_value = "mean", value_name = "HOW")]
+    pub averaging: AveragingArg,
+}
+
+/// Calibration and mode options (volts → metres).
+#[derive(Debug, Clone, Default, Args)]
+#[command(next_help_heading = "Calibration and mode")]
+pub struct CalibrationArgs {
+    /// Given calibration in metres per volt (m/V).
+    #[arg(long, value_name = "X", value_parser = parse_positive,
+          conflicts_with_all = ["tone_freq", "tone_rms_m", "pm_depth", "freq_pull", "bath_temperature"])]
+    pub m_per_v: Option<f64>,
+
+    /// Frequency of the calibration tone in Hz (with --tone-rms-m, or --pm-depth and
+    /// --freq-pull).
+    #[arg(long, value_name = "HZ", value_parser = parse_positive)]
+    pub tone_freq: Option<f64>,
+
+    /// Equivalent rms displacement of the calibration tone in metres.
+    #[arg(long, value_name = "X", value_parser = parse_positive, requires = "tone_freq",
+          conflicts_with_all = ["pm_depth", "freq_pull"])]
+    pub tone_rms_m: Option<f64>,
+
+    /// Phase-modulation depth β of the tone in radians (with --freq-pull).
+    #[arg(long, value_name = "RAD", value_parser = parse_positive,
+          requires_all = ["tone_freq", "freq_pull"])]
+    pub pm_depth: Option<f64>,
+
+    /// Frequency pull G/2π of the cavity in Hz per metre (with --pm-depth).
+    #[arg(long, value_name = "HZ_PER_M", value_parser = parse_positive,
+          requires_all = ["tone_freq", "pm_depth"])]
+    pub freq_pull: Option<f64>,
+
+    /// Bath temperature in kelvin: calibrates by equipartition on the mode (needs
+    /// --mode-band and --mass).
+    #[arg(long, value_name = "K", value_parser = parse_positive)]
+    pub bath_temperature: Option<f64>,
+
+    /// Band in Hz that contains the mechanical mode, LO:HI (with --carrier: band of the
+    /// mechanical frequency itself, not of the sideband positions).
+    #[arg(long, value_name = "LO:HI", value_parser = parse_band)]
+    pub mode_band: Option<(f64, f64)>,
+
+    /// Effective mass of the mode in kg (1 pg = 1e-15 kg, 1 fg = 1e-18 kg).
+    #[arg(long, value_name = "KG", value_parser = parse_positive)]
+    pub mass: Option<f64>,
+}
+
+/// Heterodyne (sideband-asymmetry) options.
+#[derive(Debug, Clone, Default, Args)]
+#[command(next_help_heading = "Heterodyne")]
+pub struct HeterodyneArgs {
+    /// Intermediate (carrier) frequency in Hz; motional sidebands at carrier ± f_m.
+    #[arg(long, value_name = "HZ", value_parser = parse_positive, requires = "lo_side")]
+    pub carrier: Option<f64>,
+
+    /// Is the local oscillator above or below the laser? Decides which electronic sideband
+    /// is the optical red (Stokes) one, carrying n+1. Required with --carrier.
+    #[arg(long, value_enum, value_name = "SIDE", requires = "carrier")]
+    pub lo_side: Option<LoSideArg>,
+}
+
+/// `stillpoint monitor`.
+#[derive(Debug, Clone, Args)]
+pub struct MonitorArgs {
+    /// Source options.
+    #[command(flatten)]
+    pub source: SourceArgs,
+    /// Welch options.
+    #[command(flatten)]
+    pub welch: WelchArgs,
+    /// Calibration options.
+    #[command(flatten)]
+    pub calibration: CalibrationArgs,
+    /// Heterodyne options.
+    #[command(flatten)]
+    pub heterodyne: HeterodyneArgs,
+    /// Playback speed of a recording relative to real time (1 = real time).
+    #[arg(long, default_value_t = 1.0, value_name = "FACTOR", value_parser = parse_positive,
+          help_heading = "Source")]
+    pub speed: f64,
+}
+
+/// `stillpoint spectrum`.
+#[derive(Debug, Clone, Args)]
+pub struct SpectrumArgs {
+    /// Source options.
+    #[command(flatten)]
+    pub source: SourceArgs,
+    /// Welch options.
+    #[command(flatten)]
+    pub welch: WelchArgs,
+    /// Calibration options (adds the psd_m2_per_hz column).
+    #[command(flatten)]
+    pub calibration: CalibrationArgs,
+    /// Output CSV file (`-` for stdout). Written atomically: an existing file is replaced
+    /// only by a complete, successful result.
+    #[arg(short, long, value_name = "OUT.csv")]
+    pub output: PathBuf,
+}
+
+/// `stillpoint analyze`.
+#[derive(Debug, Clone, Args)]
+pub struct AnalyzeArgs {
+    /// Source options.
+    #[command(flatten)]
+    pub source: SourceArgs,
+    /// Welch options.
+    #[command(flatten)]
+    pub welch: WelchArgs,
+    /// Calibration options.
+    #[command(flatten)]
+    pub calibration: CalibrationArgs,
+    /// Heterodyne options.
+    #[command(flatten)]
+    pub heterodyne: HeterodyneArgs,
+    /// Stray-peak threshold: height over the robust noise floor in dB (default 10 dB).
+    #[arg(long, value_name = "DB", value_parser = parse_positive,
+          help_heading = "Calibration and mode")]
+    pub peak_threshold: Option<f64>,
+    /// Do not print the summary on stdout.
+    #[arg(short, long)]
+    pub quiet: bool,
+    /// Output JSON file (`-` for stdout). Written atomically.
+    #[arg(short, long, value_name = "OUT.json")]
+    pub output: PathBuf,
+}
+
+/// `stillpoint synth`.
+#[derive(Debug, Clone, Args)]
+pub struct SynthArgs {
+    /// Scenario name (see the list in --help of this build, or an error message naming them).
+    #[arg(value_name = "SCENARIO")]
+    pub scenario: String,
+    /// Seed of the random-number generator (same seed, same record).
+    #[arg(long, default_value_t = 1, value_name = "SEED")]
+    pub seed: u64,
+    /// Length of the record in seconds.
+    #[arg(long, value_name = "SECS", value_parser = parse_positive)]
+    pub duration: Option<f64>,
+    /// Sample rate in Hz (default: the scenario's own).
+    #[arg(long, value_name = "HZ", value_parser = parse_positive)]
+    pub rate: Option<f64>,
+    /// WAV sample format.
+    #[arg(long, value_enum, default_value = "f32", value_name = "FORMAT")]
+    pub format: WavFormatArg,
+    /// Output WAV file; the truth sidecar is written next to it as OUT.truth.json.
+    #[arg(short, long, value_name = "OUT.wav")]
+    pub output: PathBuf,
+}
+
+/// `stillpoint bench`.
+#[derive(Debug, Clone, Args)]
+pub struct BenchArgs {
+    /// Sample rate to keep up with, in Hz.
+    #[arg(long, default_value_t = 1.0e6, value_name = "HZ", value_parser = parse_positive)]
+    pub rate: f64,
+    /// Segment length in samples.
+    #[arg(long, default_value_t = DEFAULT_SEGMENT as u64, value_name = "N",
+          value_parser = clap::value_parser!(u64).range(2..))]
+    pub segment: u64,
+    /// Window.
+    #[arg(long, value_enum, default_value = "hann", value_name = "WINDOW")]
+    pub window: WindowArg,
+    /// Overlap fraction, 0 <= F < 1.
+    #[arg(long, default_value_t = 0.5, value_name = "F", value_parser = parse_overlap)]
+    pub overlap: f64,
+    /// Seconds of measurement in total (split over several runs; the median is quoted).
+    #[arg(long, default_value_t = 3.0, value_name = "S", value_parser = parse_positive)]
+    pub seconds: f64,
+    /// Print machine-readable JSON instead of text.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// A number in SI or plain notation (`1e6`, `250000`, `2.5e-3`).
+fn parse_number(text: &str) -> Result<f64, String> {
+    let value: f64 = text
+        .trim()
+        .parse()
+        .map_err(|_| format!("`{text}` is not a number"))?;
+    if value.is_finite() {
+        Ok(value)
+    } else {
+        Err(format!("`{text}` is not a finite number"))
+    }
+}
+
+/// A finite number > 0.
+fn parse_positive(text: &str) -> Result<f64, String> {
+    let value = parse_number(text)?;
+    if value > 0.0 {
+        Ok(value)
+    } else {
+        Err(format!("must be greater than 0, got {text}"))
+    }
+}
+
+/// A finite number ≠ 0 (volts per unit may be negative: an inverting amplifier).
+fn parse_nonzero_finite(text: &str) -> Result<f64, String> {
+    let value = parse_number(text)?;
+    if value != 0.0 {
+        Ok(value)
+    } else {
+        Err("must not be 0".to_string())
+    }
+}
+
+/// An overlap fraction 0 ≤ F < 1.
+fn parse_overlap(text: &str) -> Result<f64, String> {
+    let value = parse_number(text)?;
+    if (0.0..1.0).contains(&value) {
+        Ok(value)
+    } else {
+        Err(format!(
+            "overlap is a fraction with 0 <= F < 1 (0.5 = 50 %), got {text}"
+        ))
+    }
+}
+
+/// A frequency band `LO:HI` in Hz with 0 ≤ LO < HI.
+fn parse_band(text: &str) -> Result<(f64, f64), String> {
+    let (lo, hi) = text
+        .split_once(':')
+        .ok_or_else(|| format!("expected LO:HI in Hz (e.g. 0.99e6:1.01e6), got `{text}`"))?;
+    let lo = parse_number(lo)?;
+    let hi = parse_number(hi)?;
+    if lo < 0.0 {
+        return Err(format!("band edges must be >= 0 Hz, got {lo}"));
+    }
+    if lo >= hi {
+        return Err(format!(
+            "band LO:HI needs LO < HI, got {lo}:{hi} (e.g. 0.99e6:1.01e6)"
+        ));
+    }
+    Ok((lo, hi))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use clap::CommandFactory;
+
+    #[test]
+    fn grammar_is_consistent() {
+        Cli::command().debug_assert();
+    }
+
+    #[test]
+    fn band_parser_accepts_and_rejects() {
+        assert_eq!(parse_band("1e3:2e3"), Ok((1000.0, 2000.0)));
+        assert!(parse_band("2e3:1e3").is_err());
+        assert!(parse_band("-1:2").is_err());
+        assert!(parse_band("1e3").is_err());
+        assert!(parse_band("a:b").is_err());
+        assert!(parse_band("0:inf").is_err());
+    }
+
+    #[test]
+    fn overlap_parser_bounds() {
+        assert_eq!(parse_overlap("0"), Ok(0.0));
+        assert_eq!(parse_overlap("0.75"), Ok(0.75));
+        assert!(parse_overlap("1").is_err());
+        assert!(parse_overlap("-0.1").is_err());
+        assert!(parse_overlap("nan").is_err());
+    }
+
+    #[test]
+    fn positive_parser_rejects_zero_negative_nonfinite() {
+        assert_eq!(parse_positive("2.5e6"), Ok(2.5e6));
+        assert!(parse_positive("0").is_err());
+        assert!(parse_positive("-1").is_err());
+        assert!(parse_positive("inf").is_err());
+        assert!(parse_positive("x").is_err());
+    }
+
+    #[test]
+    fn conflicting_calibrations_are_usage_errors() {
+        let bad = [
+            &[
+                "stillpoint",
+                "analyze",
+                "x.wav",
+                "-o",
+                "o.json",
+                "--m-per-v",
+                "1",
+                "--bath-temperature",
+                "4",
+            ][..],
+            &[
+                "stillpoint",
+                "analyze",
+                "x.wav",
+                "-o",
+                "o.json",
+                "--tone-rms-m",
+                "1e-12",
+            ][..],
+            &[
+                "stillpoint",
+                "analyze",
+                "x.wav",
+                "-o",
+                "o.json",
+                "--tone-freq",
+                "1e3",
+                "--tone-rms-m",
+                "1e-12",
+                "--pm-depth",
+                "1e-3",
+            ][..],
+            &[
+                "stillpoint",
+                "analyze",
+                "x.wav",
+                "-o",
+                "o.json",
+                "--carrier",
+                "5e6",
+            ][..],
+            &[
+                "stillpoint",
+                "analyze",
+                "x.wav",
+                "-o",
+                "o.json",
+                "--pm-depth",
+                "1e-3",
+                "--tone-freq",
+                "1e3",
+            ][..],
+        ];
+        for argv in bad {
+            assert!(Cli::try_parse_from(argv).is_err(), "{argv:?} parsed");
+        }
+        let good = Cli::try_parse_from([
+            "stillpoint",
+            "analyze",
+            "x.wav",
+            "-o",
+            "o.json",
+            "--tone-freq",
+            "1e3",
+            "--pm-depth",
+            "1e-3",
+            "--freq-pull",
+            "1e18",
+            "--carrier",
+            "5e6",
+            "--lo-side",
+            "below",
+        ]);
+        assert!(good.is_ok(), "{good:?}");
+    }
+}

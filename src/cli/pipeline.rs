@@ -1,0 +1,279 @@
+//! The headless pipeline shared by `spectrum` and `analyze`: open the source, feed every
+//! sample into the Welch averager as fast as the source delivers, report what was skipped.
+
+use std::io::IsTerminal;
+use std::path::Path;
+use std::time::{Duration, Instant};
+
+use anyhow::{Context, Result};
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+
+use crate::acquire::{
+    self, AcqEvent, AcqOptions, AcquireError, Acquisition, ReaderStats, SourceConfig, SourceSpec,
+    WavReader,
+};
+use crate::dsp::{Spectrum, Welch};
+
+use super::InputError;
+use super::args::{SourceArgs, WelchArgs};
+use super::config;
+
+/// Samples per block read from the source.
+const BLOCK_SAMPLES: usize = 1 << 16;
+
+/// A finished spectrum and what happened on the way.
+#[derive(Debug)]
+pub struct SpectrumRun {
+    /// The averaged PSD (V²/Hz), every value finite.
+    pub spectrum: Spectrum,
+    /// One line per problem with the input (truncation, skipped segments, clipping).
+    pub warnings: Vec<String>,
+    /// Human description of the source.
+    pub description: String,
+}
+
+/// Reads the source described by `source` and `welch` to the end (or to `--averages`
+/// segments) and returns the averaged spectrum.
+///
+/// # Errors
+/// Bad source options, unreadable source, too little data for one segment, no usable
+/// segment, a non-finite spectrum.
+pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<SpectrumRun> {
+    let source_config = config::source_config(source)?;
+    if source_config.follow && welch.averages.is_none() {
+        return Err(InputError(
+            "--follow reads a growing file without end; give --averages K to say when to stop"
+                .into(),
+        )
+        .into());
+    }
+    let reader = acquire::open(&source_config).map_err(|e| match e {
+        // These already name the path or address.
+        AcquireError::Open { .. } | AcquireError::Connect { .. } => anyhow::Error::from(e),
+        other => anyhow::Error::from(other)
+            .context(format!("cannot read {}", source_label(&source_config.spec))),
+    })?;
+    let sample_rate_hz = reader.sample_rate_hz();
+    let record_samples = known_length(&source_config);
+    let welch_config = config::welch_config(welch, sample_rate_hz, record_samples)?;
+    if let Some(len) = record_samples
+        && len < welch_config.segment as u64
+        && !source_config.follow
+    {
+        return Err(too_short(len, welch_config.segment).into());
+    }
+    let mut averager = Welch::new(welch_config.clone())?;
+    let progress = Progress::new(record_samples);
+    let description = reader.describe();
+    let acquisition = Acquisition::spawn(reader, headless_options(), None)?;
+    let stats = feed(&acquisition, &mut averager, &progress)
+        .with_context(|| format!("while reading {}", source_label(&source_config.spec)))?;
+    drop(acquisition);
+    progress.finish();
+    let warnings = reader_warnings(&stats, averager.skipped_segments());
+    let Some(spectrum) = averager.spectrum() else {
+        if stats.samples < welch_config.segment as u64 {
+            return Err(too_short(stats.samples, welch_config.segment).into());
+        }
+        return Err(InputError(format!(
+            "no usable segment: all {} segments held non-finite samples ({} NaN/Inf samples \
+             in the record)",
+            averager.skipped_segments(),
+            stats.non_finite_samples
+        ))
+        .into());
+    };
+    if let Some(k) = spectrum.psd_v2_per_hz.iter().position(|p| !p.is_finite()) {
+        return Err(InputError(format!(
+            "the spectrum is not finite at {} Hz (overflow: check --volts-per-unit)",
+            spectrum.frequency_hz(k)
+        ))
+        .into());
+    }
+    Ok(SpectrumRun {
+        spectrum,
+        warnings,
+        description,
+    })
+}
+
+/// Acquisition settings of the headless commands: block on a full channel (no sample is
+/// lost), no pacing, large blocks.
+fn headless_options() -> AcqOptions {
+    AcqOptions {
+        block_samples: BLOCK_SAMPLES,
+        channel_capacity: 16,
+        ..AcqOptions::headless()
+    }
+}
+
+/// Feeds the acquisition's blocks into `averager` until the stream ends or enough segments
+/// are averaged; returns the reader's last counters.
+fn feed(
+    acquisition: &Acquisition,
+    averager: &mut Welch,
+    progress: &Progress,
+) -> Result<ReaderStats> {
+    let limit = averager.config().max_averages;
+    let mut stats = ReaderStats::default();
+    let mut read_total: u64 = 0;
+    loop {
+        let Ok(event) = acquisition.events().recv() else {
+            anyhow::bail!("the acquisition thread ended without saying why");
+        };
+        match event {
+            AcqEvent::Block(block) => {
+                averager.push(&block);
+                read_total += block.len() as u64;
+                progress.set(read_total);
+                if averager.is_complete() || limit.is_some_and(|k| averager.segments() >= k) {
+                    // Enough: the counters cover what was read so far.
+                    stats.samples = stats.samples.max(read_total);
+                    return Ok(stats);
+                }
+            }
+            AcqEvent::Status(status) => stats = status.reader,
+            AcqEvent::Stopped(None) => {
+                stats.samples = stats.samples.max(read_total);
+                return Ok(stats);
+            }
+            AcqEvent::Stopped(Some(error)) => return Err(error.into()),
+        }
+    }
+}
+
+/// "record has L samples, shorter than one segment of N".
+fn too_short(samples: u64, segment: usize) -> InputError {
+    InputError(format!(
+        "record has {samples} samples, shorter than one segment of {segment} (give a smaller \
+         --segment)"
+    ))
+}
+
+/// How the source is named in messages.
+fn source_label(spec: &SourceSpec) -> String {
+    match spec {
+        SourceSpec::Path(p) => p.display().to_string(),
+        SourceSpec::Stdin => "stdin".to_string(),
+        SourceSpec::Tcp(addr) => format!("tcp://{addr}"),
+        SourceSpec::Demo { scenario, .. } => format!("demo stream `{scenario}`"),
+    }
+}
+
+/// Samples of the selected channel in a recording whose length is known before reading
+/// (a WAV or raw file that is not followed); `None` for streams.
+fn known_length(config: &SourceConfig) -> Option<u64> {
+    let SourceSpec::Path(path) = &config.spec else {
+        return None;
+    };
+    if config.follow {
+        return None;
+    }
+    if config.spec.is_wav() {
+        return wav_length(path);
+    }
+    let frame_bytes = config.sample_format?.bytes() as u64 * config.channels.max(1) as u64;
+    let bytes = std::fs::metadata(path).ok()?.len();
+    Some(bytes / frame_bytes)
+}
+
+/// Frames of a WAV file per its header, capped by what the file actually holds.
+fn wav_length(path: &Path) -> Option<u64> {
+    let header = WavReader::open(path, 0, 1.0, None).ok()?.header();
+    let frame_bytes = header.frame_bytes() as u64;
+    let file_bytes = std::fs::metadata(path).ok()?.len();
+    let present = file_bytes.saturating_sub(header.data_offset);
+    let bytes = header
+        .data_bytes_declared
+        .map_or(present, |d| d.min(present));
+    bytes.checked_div(frame_bytes)
+}
+
+/// One warning per problem the reader or the averager met.
+fn reader_warnings(stats: &ReaderStats, skipped_segments: usize) -> Vec<String> {
+    let mut warnings = Vec::new();
+    if stats.truncated {
+        warnings.push(format!(
+            "the WAV data ends before its header says (recording cut short?); analysed the {} \
+             samples present",
+            stats.samples
+        ));
+    }
+    if stats.partial_frame_bytes > 0 {
+        warnings.push(format!(
+            "dropped {} trailing byte{} that do not make a whole frame",
+            stats.partial_frame_bytes,
+            if stats.partial_frame_bytes == 1 {
+                ""
+            } else {
+                "s"
+            }
+        ));
+    }
+    if stats.non_finite_samples > 0 || skipped_segments > 0 {
+        warnings.push(format!(
+            "{} non-finite sample{} (NaN/Inf) → {} segment{} skipped",
+            stats.non_finite_samples,
+            if stats.non_finite_samples == 1 {
+                ""
+            } else {
+                "s"
+            },
+            skipped_segments,
+            if skipped_segments == 1 { "" } else { "s" }
+        ));
+    }
+    if stats.clipped_samples > 0 {
+        warnings.push(format!(
+            "{} sample{} at integer full scale (clipping distorts the spectrum)",
+            stats.clipped_samples,
+            if stats.clipped_samples == 1 { "" } else { "s" }
+        ));
+    }
+    warnings
+}
+
+/// A progress bar on stderr that appears only on a terminal and only after ~1 s.
+pub struct Progress {
+    bar: ProgressBar,
+    started: Instant,
+    visible: std::cell::Cell<bool>,
+    allowed: bool,
+}
+
+impl Progress {
+    /// A hidden bar for `total` samples (unknown total: a counter).
+    pub fn new(total: Option<u64>) -> Self {
+        let bar = ProgressBar::with_draw_target(total, ProgressDrawTarget::hidden());
+        let style = match total {
+            Some(_) => ProgressStyle::with_template(
+                "{elapsed_precise} [{bar:40}] {percent:>3}% {human_pos}/{human_len} samples, \
+                 eta {eta}",
+            ),
+            None => ProgressStyle::with_template("{elapsed_precise} {human_pos} samples"),
+        };
+        if let Ok(style) = style {
+            bar.set_style(style.progress_chars("=> "));
+        }
+        Self {
+            bar,
+            started: Instant::now(),
+            visible: std::cell::Cell::new(false),
+            allowed: std::io::stderr().is_terminal(),
+        }
+    }
+
+    /// Samples processed so far.
+    pub fn set(&self, position: u64) {
+        self.bar.set_position(position);
+        if self.allowed && !self.visible.get() && self.started.elapsed() > Duration::from_secs(1) {
+            self.bar.set_draw_target(ProgressDrawTarget::stderr());
+            self.visible.set(true);
+        }
+    }
+
+    /// Removes the bar.
+    pub fn finish(&self) {
+        self.bar.finish_and_clear();
+    }
+}

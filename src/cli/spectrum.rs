@@ -1,0 +1,71 @@
+//! `stillpoint spectrum`: the Welch PSD of a source as CSV (`frequency_hz`,
+//! `psd_v2_per_hz`, and with a calibration `psd_m2_per_hz`), written atomically.
+
+use std::process::ExitCode;
+
+use anyhow::Result;
+
+use crate::report::{self, AnalysisOptions};
+
+use super::args::{HeterodyneArgs, SpectrumArgs};
+use super::config::{self, CalibrationKind};
+use super::{InputError, output, pipeline, warn};
+
+/// Runs `stillpoint spectrum`.
+///
+/// # Errors
+/// Bad options or input, a failed calibration, an unwritable output.
+pub fn run(args: &SpectrumArgs) -> Result<ExitCode> {
+    let kind = config::calibration_kind(&args.calibration)?;
+    let options = config::analysis_options(&args.calibration, &HeterodyneArgs::default(), None)?;
+    output::check_output_path(&args.output)?;
+    let run = pipeline::compute_spectrum(&args.source, &args.welch)?;
+    for warning in &run.warnings {
+        warn(warning);
+    }
+    let m_per_v = calibrate(&run.spectrum, kind, &options)?;
+    let m2_per_v2 = m_per_v.map(|c| c * c);
+    let frequencies_hz = run.spectrum.frequencies_hz();
+    if let Some(c2) = m2_per_v2
+        && run
+            .spectrum
+            .psd_v2_per_hz
+            .iter()
+            .any(|p| !(p * c2).is_finite())
+    {
+        return Err(InputError(format!(
+            "the calibrated spectrum overflows (m/V = {m_per_v:?}); check the calibration"
+        ))
+        .into());
+    }
+    output::write_atomically(&args.output, |out| {
+        output::write_spectrum_csv(out, &frequencies_hz, &run.spectrum.psd_v2_per_hz, m2_per_v2)
+    })?;
+    Ok(ExitCode::SUCCESS)
+}
+
+/// Metres per volt for the chosen calibration (`None`: uncalibrated).
+fn calibrate(
+    spectrum: &crate::dsp::Spectrum,
+    kind: CalibrationKind,
+    options: &AnalysisOptions,
+) -> Result<Option<f64>> {
+    match kind {
+        CalibrationKind::None => Ok(None),
+        CalibrationKind::Given => Ok(options.m_per_v),
+        CalibrationKind::Tone | CalibrationKind::Equipartition => {
+            let report = report::analyze(spectrum, options)?;
+            match report.calibration.m_per_v {
+                Some(c) if c.is_finite() && c > 0.0 => Ok(Some(c)),
+                _ => {
+                    let why = if report.notes.is_empty() {
+                        "no reason given".to_string()
+                    } else {
+                        report.notes.join("; ")
+                    };
+                    Err(InputError(format!("the calibration failed: {why}")).into())
+                }
+            }
+        }
+    }
+}
