@@ -1,6 +1,35 @@
-//! The streaming Welch averager (METHODS.md §1). SKELETON: types and signatures are the
-//! agreed interface; bodies are being filled in.
+//! The streaming Welch averager (METHODS.md §1; Welch 1967; Heinzel et al. 2002 §9–§11).
+//!
+//! **Segments.** Samples are pushed in blocks of any size. Segment s covers samples
+//! `sD … sD + N − 1` of the stream, with hop `D = N − round(rN)`; a stream of L samples gives
+//! `K = ⌊(L − N)/D⌋ + 1` segments and the leftover samples wait for more data. Splitting the
+//! stream into different block sizes gives bit-identical results.
+//!
+//! **Per segment:** the trend ([`Detrend`]: none, the mean, or the least-squares line over the
+//! sample index, like `scipy.signal.detrend`) is removed *before* windowing, the segment is
+//! multiplied by the periodic window `w_j` and transformed with a real FFT (f64, `realfft`, one
+//! plan and all buffers made in [`Welch::new`]; nothing is allocated per segment except the
+//! stored periodograms of a median average):
+//! `Y_k = Σ_j w_j (x_j − trend_j) e^{−2πi jk/N}`, k = 0 … ⌊N/2⌋. A segment holding any NaN or
+//! ±Inf sample is skipped and counted ([`Welch::skipped_segments`]).
+//!
+//! **Averaging** ([`Averaging`]) combines the powers `|Y_k|²` in f64 — never amplitudes or dB.
+//!
+//! **Normalisation (one-sided PSD, V²/Hz).** `PSD_k = 2 P_k / (f_s S₂)` for 0 < k < N/2 and
+//! `P_k / (f_s S₂)` at k = 0 and, for even N, at k = N/2 (no mirror partner), where P_k is the
+//! averaged `|Y_k|²` and `S₂ = Σ w_j²`. White noise of variance σ² gives `2σ²/f_s` and
+//! `Σ_k PSD_k Δf ≈ σ²`. This is what `scipy.signal.welch(..., scaling='density',
+//! return_onesided=True)` returns for the same window (tested to 1e-9 relative).
+//!
+//! **Bins** run from DC to Nyquist in ascending frequency, `f_k = k f_s / N`, ⌊N/2⌋ + 1 of them.
+//! The [`Spectrum`] also carries `Δf = f_s/N`, `ENBW = f_s S₂/S₁²` and `K_eff`.
 
+use std::sync::Arc;
+
+use realfft::num_complex::Complex;
+use realfft::{RealFftPlanner, RealToComplex};
+
+use super::window::{k_eff_from_rho2, overlap_correlations_squared, sums};
 use super::{DspError, Result, WindowKind};
 
 /// Trend removed from each segment before windowing.
@@ -120,6 +149,26 @@ impl WelchConfig {
                 self.overlap
             )));
         }
+        if let Averaging::Exponential {
+            time_constant_segments,
+        } = self.averaging
+            && !(time_constant_segments.is_finite() && time_constant_segments >= 1.0)
+        {
+            return Err(DspError::Config(format!(
+                "exponential time constant must be at least 1 segment, got {time_constant_segments}"
+            )));
+        }
+        if self.max_averages == Some(0) {
+            return Err(DspError::Config(
+                "number of averages must be at least 1".to_string(),
+            ));
+        }
+        if self.segment > 1 << 28 {
+            return Err(DspError::Config(format!(
+                "segment must be at most 2^28 samples, got {}",
+                self.segment
+            )));
+        }
         Ok(())
     }
 }
@@ -141,7 +190,11 @@ pub struct Spectrum {
     pub averaging: Averaging,
     /// Segments combined (for exponential: segments seen since restart).
     pub averages: usize,
-    /// Effective number of independent averages K_eff (METHODS.md §1; overlap-corrected).
+    /// Effective number of independent averages K_eff (METHODS.md §1; overlap-corrected):
+    /// exact `K/[1 + 2Σ(1 − l/K)ρ_l²]` for a linear average of K consecutive segments; for the
+    /// exponential average `1/Σ_{s,t} a_s a_t ρ²_{|s−t|}` over its actual segment weights a_s;
+    /// for median and max-hold the linear value for the same K (their true variance differs:
+    /// the median's is larger by about π/2 for large K, max-hold is no PSD estimate of noise).
     pub k_eff: f64,
     /// Bin spacing Δf = f_s / N.
     pub resolution_hz: f64,
@@ -184,9 +237,353 @@ impl Spectrum {
 }
 
 /// Streaming Welch averager: push samples in any block sizes, read the current estimate.
-#[derive(Debug)]
+///
+/// ```
+/// use stillpoint::dsp::{Welch, WelchConfig};
+/// let mut welch = Welch::new(WelchConfig::new(1000.0, 256))?;
+/// let samples: Vec<f64> = (0..4096).map(|i| ((i * 7919) % 101) as f64 / 100.0 - 0.5).collect();
+/// welch.push(&samples[..1000]);
+/// welch.push(&samples[1000..]);
+/// let spectrum = welch.spectrum().expect("at least one segment");
+/// assert_eq!(spectrum.len(), 129);
+/// assert_eq!(spectrum.averages, (4096 - 256) / 128 + 1);
+/// # Ok::<(), stillpoint::dsp::DspError>(())
+/// ```
 pub struct Welch {
     config: WelchConfig,
+    engine: Engine,
+    /// Samples from the start of the next segment on (always fewer than N).
+    pending: Vec<f64>,
+}
+
+impl std::fmt::Debug for Welch {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Welch")
+            .field("config", &self.config)
+            .field("segments", &self.engine.segments)
+            .field("skipped_segments", &self.engine.skipped)
+            .field("pending_samples", &self.pending.len())
+            .finish_non_exhaustive()
+    }
+}
+
+/// Everything that turns one segment into an accumulated periodogram.
+struct Engine {
+    n: usize,
+    averaging: Averaging,
+    detrend: Detrend,
+    max_averages: Option<usize>,
+    window: Vec<f64>,
+    s2: f64,
+    /// ρ_l² for l = 1 … while segments overlap.
+    rho2: Vec<f64>,
+    fft: Arc<dyn RealToComplex<f64>>,
+    fft_in: Vec<f64>,
+    fft_out: Vec<Complex<f64>>,
+    scratch: Vec<Complex<f64>>,
+    /// Linear: Σ|Y_k|²; exponential: running mean of |Y_k|²; max-hold: max |Y_k|².
+    acc: Vec<f64>,
+    /// Median: stored |Y_k|² rows (bins each), a ring once `max_averages` rows exist.
+    history: Vec<f64>,
+    history_rows: usize,
+    history_next: usize,
+    /// Exponential: weights of the most recent segments (newest first) and Σ a_s a_t ρ².
+    ema_recent: Vec<f64>,
+    ema_variance: f64,
+    segments: usize,
+    skipped: usize,
+}
+
+impl Engine {
+    fn new(config: &WelchConfig) -> Self {
+        let n = config.segment;
+        let window = config.window.samples(n);
+        let (_, s2) = sums(&window);
+        let rho2 = overlap_correlations_squared(&window, config.hop());
+        let mut planner = RealFftPlanner::<f64>::new();
+        let fft = planner.plan_fft_forward(n);
+        let fft_in = fft.make_input_vec();
+        let fft_out = fft.make_output_vec();
+        let scratch = fft.make_scratch_vec();
+        let bins = n / 2 + 1;
+        let ema_recent = vec![0.0; rho2.len()];
+        Self {
+            n,
+            averaging: config.averaging,
+            detrend: config.detrend,
+            max_averages: config.max_averages,
+            window,
+            s2,
+            rho2,
+            fft,
+            fft_in,
+            fft_out,
+            scratch,
+            acc: vec![0.0; bins],
+            history: Vec::new(),
+            history_rows: 0,
+            history_next: 0,
+            ema_recent,
+            ema_variance: 0.0,
+            segments: 0,
+            skipped: 0,
+        }
+    }
+
+    fn bins(&self) -> usize {
+        self.acc.len()
+    }
+
+    fn is_complete(&self) -> bool {
+        matches!(self.averaging, Averaging::Linear)
+            && self.max_averages.is_some_and(|k| self.segments >= k)
+    }
+
+    fn restart(&mut self) {
+        self.acc.iter_mut().for_each(|a| *a = 0.0);
+        self.history.clear();
+        self.history_rows = 0;
+        self.history_next = 0;
+        self.ema_recent.iter_mut().for_each(|a| *a = 0.0);
+        self.ema_variance = 0.0;
+        self.segments = 0;
+        self.skipped = 0;
+    }
+
+    /// Processes the segment `head ++ tail` (exactly N samples). Returns true if accepted.
+    fn process(&mut self, head: &[f64], tail: &[f64]) -> bool {
+        if !self.transform(head, tail) {
+            self.skipped += 1;
+            return false;
+        }
+        self.accumulate();
+        self.segments += 1;
+        true
+    }
+
+    /// Loads, detrends, windows and transforms one segment into `fft_out`.
+    /// Returns false (and leaves `fft_out` unspecified) if the segment is not finite.
+    fn transform(&mut self, head: &[f64], tail: &[f64]) -> bool {
+        let n = self.n;
+        if head.len() + tail.len() != n {
+            return false;
+        }
+        let (a, b) = self.fft_in.split_at_mut(head.len());
+        a.copy_from_slice(head);
+        b.copy_from_slice(tail);
+        if !detrend_and_window(&mut self.fft_in, &self.window, self.detrend) {
+            return false;
+        }
+        // Lengths are fixed by the plan, so this cannot fail.
+        self.fft
+            .process_with_scratch(&mut self.fft_in, &mut self.fft_out, &mut self.scratch)
+            .is_ok()
+    }
+
+    fn accumulate(&mut self) {
+        match self.averaging {
+            Averaging::Linear => {
+                for (a, y) in self.acc.iter_mut().zip(&self.fft_out) {
+                    *a += y.re * y.re + y.im * y.im;
+                }
+            }
+            Averaging::Exponential {
+                time_constant_segments,
+            } => {
+                let count = (self.segments + 1) as f64;
+                let alpha = 1.0 / count.min(time_constant_segments.max(1.0));
+                for (a, y) in self.acc.iter_mut().zip(&self.fft_out) {
+                    let p = y.re * y.re + y.im * y.im;
+                    *a += (p - *a) * alpha;
+                }
+                // Var(E_n)/S² = (1−α)² Var(E_{n−1}) + α² + 2α(1−α) Σ_l a_{n−l} ρ_l².
+                let cross: f64 = self
+                    .ema_recent
+                    .iter()
+                    .zip(&self.rho2)
+                    .map(|(w, r2)| w * r2)
+                    .sum();
+                let keep = 1.0 - alpha;
+                self.ema_variance =
+                    keep * keep * self.ema_variance + alpha * alpha + 2.0 * alpha * keep * cross;
+                self.ema_recent.iter_mut().for_each(|w| *w *= keep);
+                if !self.ema_recent.is_empty() {
+                    self.ema_recent.rotate_right(1);
+                    if let Some(first) = self.ema_recent.first_mut() {
+                        *first = alpha;
+                    }
+                }
+            }
+            Averaging::MaxHold => {
+                let first = self.segments == 0;
+                for (a, y) in self.acc.iter_mut().zip(&self.fft_out) {
+                    let p = y.re * y.re + y.im * y.im;
+                    *a = if first { p } else { a.max(p) };
+                }
+            }
+            Averaging::Median => {
+                let bins = self.bins();
+                let row = match self.max_averages {
+                    Some(k) if self.history_rows >= k => {
+                        let r = self.history_next;
+                        self.history_next = (r + 1) % k.max(1);
+                        r
+                    }
+                    _ => {
+                        self.history.resize((self.history_rows + 1) * bins, 0.0);
+                        self.history_rows += 1;
+                        self.history_rows - 1
+                    }
+                };
+                if let Some(dst) = self.history.get_mut(row * bins..(row + 1) * bins) {
+                    for (d, y) in dst.iter_mut().zip(&self.fft_out) {
+                        *d = y.re * y.re + y.im * y.im;
+                    }
+                }
+            }
+        }
+    }
+
+    /// Number of periodograms the current estimate combines.
+    fn averages(&self) -> usize {
+        match self.averaging {
+            Averaging::Median => self.history_rows,
+            _ => self.segments,
+        }
+    }
+
+    fn k_eff(&self) -> f64 {
+        match self.averaging {
+            Averaging::Exponential { .. } if self.ema_variance > 0.0 => 1.0 / self.ema_variance,
+            _ => k_eff_from_rho2(&self.rho2, self.averages()),
+        }
+    }
+
+    /// Averaged |Y_k|² (P_k of METHODS.md §1) into `out`.
+    fn mean_power_into(&self, out: &mut [f64]) {
+        match self.averaging {
+            Averaging::Linear => {
+                let k = self.segments.max(1) as f64;
+                for (o, a) in out.iter_mut().zip(&self.acc) {
+                    *o = a / k;
+                }
+            }
+            Averaging::Exponential { .. } | Averaging::MaxHold => {
+                out.copy_from_slice(&self.acc);
+            }
+            Averaging::Median => {
+                let bins = self.bins();
+                let rows = self.history_rows;
+                let bias = median_bias(rows);
+                let mut column = vec![0.0; rows];
+                for (k, o) in out.iter_mut().enumerate() {
+                    for (r, c) in column.iter_mut().enumerate() {
+                        *c = self.history.get(r * bins + k).copied().unwrap_or(0.0);
+                    }
+                    *o = median(&mut column) / bias;
+                }
+            }
+        }
+    }
+}
+
+/// Removes the trend of `x` (in place) and multiplies by the window. Returns false if `x`
+/// holds a non-finite sample.
+fn detrend_and_window(x: &mut [f64], window: &[f64], detrend: Detrend) -> bool {
+    let n = x.len();
+    let nf = n as f64;
+    let centre = 0.5 * (nf - 1.0);
+    // Pass 1: sums (four interleaved accumulators; the order depends only on the index, so
+    // any split of the stream into blocks gives the same bits). `x·0` is 0 for every finite
+    // x and NaN otherwise, so `probe` flags non-finite samples without a branch.
+    let mut sum = [0.0f64; 4];
+    let mut moment = [0.0f64; 4];
+    let mut probe = [0.0f64; 4];
+    let linear = matches!(detrend, Detrend::Linear);
+    let mut chunks = x.chunks_exact(4);
+    let mut j = 0usize;
+    for c in &mut chunks {
+        for (i, &v) in c.iter().enumerate() {
+            sum[i] += v;
+            probe[i] += v * 0.0;
+            if linear {
+                moment[i] += ((j + i) as f64 - centre) * v;
+            }
+        }
+        j += 4;
+    }
+    for (i, &v) in chunks.remainder().iter().enumerate() {
+        sum[i] += v;
+        probe[i] += v * 0.0;
+        if linear {
+            moment[i] += ((j + i) as f64 - centre) * v;
+        }
+    }
+    let probe = (probe[0] + probe[1]) + (probe[2] + probe[3]);
+    if !probe.is_finite() {
+        return false;
+    }
+    let mean = ((sum[0] + sum[1]) + (sum[2] + sum[3])) / nf;
+    match detrend {
+        Detrend::None => {
+            for (v, w) in x.iter_mut().zip(window) {
+                *v *= w;
+            }
+        }
+        Detrend::Mean => {
+            for (v, w) in x.iter_mut().zip(window) {
+                *v = (*v - mean) * w;
+            }
+        }
+        Detrend::Linear => {
+            // Least-squares line over u_j = j − (N−1)/2: slope Σu x / Σu², Σu² = N(N²−1)/12.
+            let su2 = nf * (nf * nf - 1.0) / 12.0;
+            let slope = if su2 > 0.0 {
+                ((moment[0] + moment[1]) + (moment[2] + moment[3])) / su2
+            } else {
+                0.0
+            };
+            for (j, (v, w)) in x.iter_mut().zip(window).enumerate() {
+                *v = (*v - mean - slope * (j as f64 - centre)) * w;
+            }
+        }
+    }
+    true
+}
+
+/// numpy's median (mean of the two middle values for an even count); 0 for no values.
+fn median(values: &mut [f64]) -> f64 {
+    let m = values.len();
+    if m == 0 {
+        return 0.0;
+    }
+    let (_, upper, right) = values.select_nth_unstable_by(m / 2, f64::total_cmp);
+    let upper = *upper;
+    if !m.is_multiple_of(2) {
+        return upper;
+    }
+    // The lower middle value is the largest of the left part.
+    let _ = right;
+    let lower = values
+        .get(..m / 2)
+        .unwrap_or(&[])
+        .iter()
+        .copied()
+        .fold(f64::NEG_INFINITY, f64::max);
+    (lower + upper) / 2.0
+}
+
+/// scipy's median bias for `n` periodograms (`scipy.signal._spectral_py._median_bias`):
+/// `1 + Σ_{i=1}^{(n−1)//2} (1/(2i+1) − 1/(2i))`, the ratio of the median to the mean of χ²₂.
+pub fn median_bias(n: usize) -> f64 {
+    let m = n.saturating_sub(1) / 2;
+    let tail: f64 = (1..=m)
+        .map(|i| {
+            let two_i = 2.0 * i as f64;
+            1.0 / (two_i + 1.0) - 1.0 / two_i
+        })
+        .sum();
+    1.0 + tail
 }
 
 impl Welch {
@@ -196,7 +593,13 @@ impl Welch {
     /// [`DspError::Config`] if `config` is invalid.
     pub fn new(config: WelchConfig) -> Result<Self> {
         config.validate()?;
-        Ok(Self { config })
+        let engine = Engine::new(&config);
+        let pending = Vec::with_capacity(config.segment);
+        Ok(Self {
+            config,
+            engine,
+            pending,
+        })
     }
 
     /// The settings.
@@ -204,36 +607,143 @@ impl Welch {
         &self.config
     }
 
+    /// Hop D between segment starts, in samples.
+    pub fn hop(&self) -> usize {
+        self.config.hop()
+    }
+
+    /// Number of bins ⌊N/2⌋ + 1.
+    pub fn bins(&self) -> usize {
+        self.engine.bins()
+    }
+
+    /// Samples waiting for the next segment to fill (fewer than N).
+    pub fn pending_samples(&self) -> usize {
+        self.pending.len()
+    }
+
     /// Feeds samples (volts); completes and averages every segment they finish.
     /// Segments containing a non-finite sample are skipped and counted.
-    /// Returns the number of segments accepted by this call.
+    /// Returns the number of segments accepted by this call. Once a linear average is
+    /// complete ([`Welch::is_complete`]) further samples are ignored until [`Welch::restart`].
     pub fn push(&mut self, samples: &[f64]) -> usize {
-        let _ = samples;
-        0
+        let n = self.engine.n;
+        let hop = self.config.hop();
+        let mut accepted = 0;
+        let mut rest = samples;
+        loop {
+            if self.engine.is_complete() {
+                return accepted;
+            }
+            if self.pending.is_empty() {
+                // Whole segments straight from the caller's block: no copy.
+                while let Some(segment) = rest.get(..n) {
+                    if self.engine.is_complete() {
+                        return accepted;
+                    }
+                    if self.engine.process(segment, &[]) {
+                        accepted += 1;
+                    }
+                    rest = rest.get(hop..).unwrap_or(&[]);
+                }
+                self.pending.extend_from_slice(rest);
+                return accepted;
+            }
+            let need = n - self.pending.len();
+            let Some(tail) = rest.get(..need) else {
+                self.pending.extend_from_slice(rest);
+                return accepted;
+            };
+            if self.engine.process(&self.pending, tail) {
+                accepted += 1;
+            }
+            if hop < self.pending.len() {
+                self.pending.drain(..hop);
+            } else {
+                rest = rest.get(hop - self.pending.len()..).unwrap_or(&[]);
+                self.pending.clear();
+            }
+        }
     }
 
     /// Segments accepted since the last restart.
     pub fn segments(&self) -> usize {
-        0
+        self.engine.segments
     }
 
     /// Segments skipped since the last restart because they held NaN/Inf.
     pub fn skipped_segments(&self) -> usize {
-        0
+        self.engine.skipped
     }
 
     /// True when a linear average has reached `max_averages` and ignores further data.
     pub fn is_complete(&self) -> bool {
-        false
+        self.engine.is_complete()
     }
 
     /// The current estimate, or `None` before the first segment.
     pub fn spectrum(&self) -> Option<Spectrum> {
-        None
+        let mut spectrum = Spectrum {
+            sample_rate_hz: self.config.sample_rate_hz,
+            segment: self.config.segment,
+            overlap: self.config.overlap,
+            window: self.config.window,
+            detrend: self.config.detrend,
+            averaging: self.config.averaging,
+            averages: 0,
+            k_eff: 0.0,
+            resolution_hz: 0.0,
+            enbw_hz: 0.0,
+            psd_v2_per_hz: Vec::with_capacity(self.bins()),
+        };
+        self.spectrum_into(&mut spectrum).then_some(spectrum)
+    }
+
+    /// Writes the current estimate into `out`, reusing its PSD buffer (no allocation after
+    /// the first call, except a column buffer for the median). Returns false, leaving `out`
+    /// untouched, before the first segment.
+    pub fn spectrum_into(&self, out: &mut Spectrum) -> bool {
+        let averages = self.engine.averages();
+        if averages == 0 {
+            return false;
+        }
+        let c = &self.config;
+        let n = c.segment;
+        let bins = self.bins();
+        out.sample_rate_hz = c.sample_rate_hz;
+        out.segment = n;
+        out.overlap = c.overlap;
+        out.window = c.window;
+        out.detrend = c.detrend;
+        out.averaging = c.averaging;
+        out.averages = averages;
+        out.k_eff = self.engine.k_eff();
+        out.resolution_hz = c.sample_rate_hz / n as f64;
+        let (s1, s2) = sums(&self.engine.window);
+        out.enbw_hz = c.sample_rate_hz * s2 / (s1 * s1);
+        out.psd_v2_per_hz.resize(bins, 0.0);
+        self.engine.mean_power_into(&mut out.psd_v2_per_hz);
+        let single = 1.0 / (c.sample_rate_hz * self.engine.s2);
+        let double = 2.0 * single;
+        let last_unpaired = if n.is_multiple_of(2) {
+            bins - 1
+        } else {
+            usize::MAX
+        };
+        for (k, p) in out.psd_v2_per_hz.iter_mut().enumerate() {
+            *p *= if k == 0 || k == last_unpaired {
+                single
+            } else {
+                double
+            };
+        }
+        true
     }
 
     /// Forgets all averaged data (keeps the settings and the sample buffer position).
-    pub fn restart(&mut self) {}
+    pub fn restart(&mut self) {
+        self.engine.restart();
+    }
 }
 
 /// Welch PSD of a whole slice (convenience for tests and small records).
@@ -247,4 +757,126 @@ pub fn welch(samples: &[f64], config: &WelchConfig) -> Result<Spectrum> {
         samples: samples.len() as u64,
         segment: config.segment,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// splitmix64 → uniform in [−0.5, 0.5).
+    fn noise(len: usize, seed: u64) -> Vec<f64> {
+        let mut s = seed;
+        (0..len)
+            .map(|_| {
+                s = s.wrapping_add(0x9E37_79B9_7F4A_7C15);
+                let mut z = s;
+                z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+                z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+                z ^= z >> 31;
+                (z >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+            })
+            .collect()
+    }
+
+    /// Direct O(N²) DFT periodogram of one segment (reference for the FFT path).
+    fn naive_psd(x: &[f64], config: &WelchConfig) -> Vec<f64> {
+        let n = config.segment;
+        let w = config.window.samples(n);
+        let mean = x.iter().sum::<f64>() / n as f64;
+        let s2: f64 = w.iter().map(|v| v * v).sum();
+        (0..=n / 2)
+            .map(|k| {
+                let (mut re, mut im) = (0.0, 0.0);
+                for j in 0..n {
+                    let ph = -2.0 * std::f64::consts::PI * ((j * k) % n) as f64 / n as f64;
+                    let y = (x[j] - mean) * w[j];
+                    re += y * ph.cos();
+                    im += y * ph.sin();
+                }
+                let f = if k == 0 || (n.is_multiple_of(2) && k == n / 2) {
+                    1.0
+                } else {
+                    2.0
+                };
+                f * (re * re + im * im) / (config.sample_rate_hz * s2)
+            })
+            .collect()
+    }
+
+    #[test]
+    fn one_segment_matches_naive_dft() {
+        for n in [16usize, 17, 64] {
+            let mut c = WelchConfig::new(250.0, n);
+            c.window = WindowKind::BlackmanHarris;
+            let x: Vec<f64> = noise(n, 3).iter().map(|v| v + 2.0).collect();
+            let s = welch(&x, &c).unwrap();
+            let r = naive_psd(&x, &c);
+            assert_eq!(s.len(), n / 2 + 1);
+            for (a, b) in s.psd_v2_per_hz.iter().zip(&r) {
+                assert!((a - b).abs() <= 1e-12 * r.iter().cloned().fold(0.0, f64::max));
+            }
+        }
+    }
+
+    #[test]
+    fn segment_count_and_leftover() {
+        let c = WelchConfig::new(1.0, 100);
+        let mut w = Welch::new(c).unwrap();
+        // K = ⌊(L − N)/D⌋ + 1 = ⌊(349 − 100)/50⌋ + 1 = 5; 49 samples wait.
+        assert_eq!(w.push(&noise(349, 1)), 5);
+        assert_eq!(w.segments(), 5);
+        assert_eq!(w.pending_samples(), 349 - 250);
+        assert!(
+            Welch::new(WelchConfig::new(1.0, 100))
+                .unwrap()
+                .spectrum()
+                .is_none()
+        );
+        assert!(matches!(
+            welch(&noise(99, 1), &WelchConfig::new(1.0, 100)),
+            Err(DspError::TooShort { .. })
+        ));
+    }
+
+    #[test]
+    fn linear_detrend_removes_a_line_exactly() {
+        let mut c = WelchConfig::new(1.0, 64);
+        c.detrend = Detrend::Linear;
+        c.window = WindowKind::Rectangular;
+        let x: Vec<f64> = (0..64).map(|j| 3.0 - 0.25 * j as f64).collect();
+        let s = welch(&x, &c).unwrap();
+        assert!(
+            s.psd_v2_per_hz.iter().all(|p| *p < 1e-25),
+            "{:?}",
+            s.psd_v2_per_hz
+        );
+    }
+
+    #[test]
+    fn config_validation() {
+        let mut c = WelchConfig::new(1.0, 8);
+        c.averaging = Averaging::Exponential {
+            time_constant_segments: 0.5,
+        };
+        assert!(Welch::new(c).is_err());
+        let mut c = WelchConfig::new(1.0, 8);
+        c.max_averages = Some(0);
+        assert!(Welch::new(c).is_err());
+        assert!(Welch::new(WelchConfig::new(f64::NAN, 8)).is_err());
+        assert!(Welch::new(WelchConfig::new(1.0, 1)).is_err());
+    }
+
+    #[test]
+    fn median_bias_matches_scipy_values() {
+        // scipy.signal._spectral_py._median_bias: n = 1, 2 → 1; n = 3 → 1 + 1/3 − 1/2.
+        assert_eq!(median_bias(1), 1.0);
+        assert_eq!(median_bias(2), 1.0);
+        assert!((median_bias(3) - (1.0 + 1.0 / 3.0 - 0.5)).abs() < 1e-15);
+        // Large n → ln 2 (the median of χ²₂/2).
+        assert!((median_bias(100_001) - std::f64::consts::LN_2).abs() < 1e-5);
+        let mut v = [4.0, 1.0, 3.0, 2.0];
+        assert_eq!(median(&mut v), 2.5);
+        let mut v = [5.0, 1.0, 3.0];
+        assert_eq!(median(&mut v), 3.0);
+    }
 }
