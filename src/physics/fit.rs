@@ -1,0 +1,534 @@
+//! Least-squares fit of one mechanical line plus background to a PSD band (METHODS.md §2 "Fit
+//! model", "Honest fit uncertainties", "Model bias"):
+//! `S_model(f) = B [+ s (f − f_ref)] + A (2/π) f_m² γ / [(f_m² − f²)² + γ² f²]`
+//! (or the Lorentzian core), weighted with σ_k = S_model(f_k)/√K_eff iterated to convergence
+//! (the Gamma-likelihood fixed point, see the solver). The covariance is (JᵀWJ)⁻¹ scaled by
+//! χ²_red and inflated by 1 + 2Σρ_bin(l) for the correlation of neighbouring bins of the window.
+//!
+//! Units follow the spectrum: on a V²/Hz PSD the area is in V², on m²/Hz in m².
+
+use std::f64::consts::PI;
+
+use super::lsq::{self, Model, SolveFailure};
+use super::oscillator::{lorentzian_psd, oscillator_psd};
+use super::{Estimate, PhysicsError, Result, window_stats};
+use crate::dsp::Spectrum;
+
+/// Shape of the mechanical line.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum LineShape {
+    /// Damped-oscillator (Hz) form; unbiased at any Q (the default).
+    #[default]
+    Oscillator,
+    /// Lorentzian core; adequate for Q ≳ 100 and narrow bands.
+    Lorentzian,
+}
+
+/// Settings of the mode fit.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct FitOptions {
+    /// Line shape.
+    pub line_shape: LineShape,
+    /// Let the background have a linear slope across the band.
+    pub sloped_background: bool,
+    /// Frequency ranges (Hz) left out of the fit, e.g. a calibration tone inside the band.
+    pub exclude_hz: Vec<(f64, f64)>,
+    /// Minimum significance A/σ_A of the fitted area to accept a mode (default 3).
+    pub min_significance: f64,
+}
+
+impl Default for FitOptions {
+    fn default() -> Self {
+        Self {
+            line_shape: LineShape::Oscillator,
+            sloped_background: false,
+            exclude_hz: Vec::new(),
+            min_significance: 3.0,
+        }
+    }
+}
+
+/// A fitted mode, in the units of the spectrum that was fitted.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct ModeFit {
+    /// Resonance frequency f_m (Hz).
+    pub frequency_hz: Estimate,
+    /// FWHM linewidth γ (Hz).
+    pub linewidth_hz: Estimate,
+    /// Q = f_m/γ.
+    pub quality_factor: Estimate,
+    /// Line area A (PSD unit × Hz, e.g. V²), background excluded.
+    pub area: Estimate,
+    /// Peak of the line 2A/(πγ), background excluded (PSD unit).
+    pub peak_psd: Estimate,
+    /// Background at f_m (PSD unit).
+    pub background_psd: Estimate,
+    /// Background slope (PSD unit per Hz) when fitted.
+    pub background_slope_per_hz: Option<Estimate>,
+    /// Line shape used.
+    pub line_shape: LineShape,
+    /// Reduced χ² of the fit with model weights.
+    pub reduced_chi2: f64,
+    /// Bins used.
+    pub bins: usize,
+    /// Band fitted (Hz).
+    pub band_hz: (f64, f64),
+    /// Factor √(1+2Σρ_bin) applied to every 1σ for the window's bin correlation.
+    pub error_inflation: f64,
+    /// True when γ < 5·NENBW·Δf: the linewidth and peak are broadened by the resolution
+    /// (METHODS.md §2 "Resolution"); the area is still good.
+    pub resolution_limited: bool,
+    /// Reference frequency of the slope term (Hz).
+    pub slope_reference_hz: f64,
+}
+
+impl ModeFit {
+    /// The line alone (no background) at one frequency.
+    pub fn line_psd_at(&self, frequency_hz: f64) -> f64 {
+        line(
+            self.line_shape,
+            frequency_hz,
+            self.area.value,
+            self.frequency_hz.value,
+            self.linewidth_hz.value,
+        )
+    }
+
+    /// Background at one frequency.
+    pub fn background_psd_at(&self, frequency_hz: f64) -> f64 {
+        let s = self.background_slope_per_hz.map_or(0.0, |e| e.value);
+        // background_psd is stored at f_m.
+        self.background_psd.value + s * (frequency_hz - self.frequency_hz.value)
+    }
+
+    /// Fitted model (line + background) at one frequency.
+    pub fn model_psd_at(&self, frequency_hz: f64) -> f64 {
+        self.line_psd_at(frequency_hz) + self.background_psd_at(frequency_hz)
+    }
+
+    /// Fitted model on a frequency grid (for overlays).
+    pub fn model_curve(&self, frequencies_hz: &[f64]) -> Vec<f64> {
+        frequencies_hz
+            .iter()
+            .map(|&f| self.model_psd_at(f))
+            .collect()
+    }
+
+    /// Energy damping rate Γ = 2πγ (rad/s) with its 1σ.
+    pub fn damping_rad_s(&self) -> Estimate {
+        Estimate::new(
+            2.0 * PI * self.linewidth_hz.value,
+            2.0 * PI * self.linewidth_hz.sigma,
+        )
+    }
+
+    /// The same fit expressed on a PSD multiplied by `factor` (e.g. c² in m²/V²): area, peak
+    /// and background scale, frequency, linewidth and Q do not. The factor's own uncertainty
+    /// is not included (combine it separately).
+    pub fn scaled(&self, factor: f64) -> Self {
+        let sc = |e: Estimate| Estimate::new(e.value * factor, e.sigma * factor.abs());
+        Self {
+            area: sc(self.area),
+            peak_psd: sc(self.peak_psd),
+            background_psd: sc(self.background_psd),
+            background_slope_per_hz: self.background_slope_per_hz.map(sc),
+            ..self.clone()
+        }
+    }
+}
+
+fn line(shape: LineShape, f: f64, area: f64, center: f64, width: f64) -> f64 {
+    match shape {
+        LineShape::Oscillator => oscillator_psd(f, area, center, width),
+        LineShape::Lorentzian => lorentzian_psd(f, area, center, width),
+    }
+}
+
+/// Value and ∂/∂(A, f_m, γ) of a line shape.
+pub(crate) fn line_and_gradient(
+    shape: LineShape,
+    f: f64,
+    area: f64,
+    center: f64,
+    width: f64,
+) -> (f64, [f64; 3]) {
+    match shape {
+        LineShape::Oscillator => {
+            let m2 = center * center;
+            let f2 = f * f;
+            let dm = m2 - f2;
+            let den = dm * dm + width * width * f2;
+            let unit = (2.0 / PI) * m2 * width / den;
+            let s = area * unit;
+            let d_center = s * (2.0 / center - 4.0 * center * dm / den);
+            let d_width = s * (1.0 / width - 2.0 * width * f2 / den);
+            (s, [unit, d_center, d_width])
+        }
+        LineShape::Lorentzian => {
+            let d = f - center;
+            let den = d * d + 0.25 * width * width;
+            let unit = (width / (2.0 * PI)) / den;
+            let s = area * unit;
+            let d_center = s * 2.0 * d / den;
+            let d_width = s * (1.0 / width - 0.5 * width / den);
+            (s, [unit, d_center, d_width])
+        }
+    }
+}
+
+/// Parameters: [B, A, f_m, γ, (s)].
+struct ModeModel<'a> {
+    freqs: &'a [f64],
+    shape: LineShape,
+    sloped: bool,
+    f_ref: f64,
+}
+
+impl Model for ModeModel<'_> {
+    fn n_params(&self) -> usize {
+        if self.sloped { 5 } else { 4 }
+    }
+
+    fn eval(&self, p: &[f64], i: usize, grad: &mut [f64]) -> f64 {
+        let f = self.freqs.get(i).copied().unwrap_or(0.0);
+        let (b, a, c, w) = (p[0], p[1], p[2], p[3]);
+        let (s, g) = line_and_gradient(self.shape, f, a, c, w);
+        grad[0] = 1.0;
+        grad[1] = g[0];
+        grad[2] = g[1];
+        grad[3] = g[2];
+        let mut total = b + s;
+        if self.sloped {
+            let x = f - self.f_ref;
+            grad[4] = x;
+            total += p[4] * x;
+        }
+        total
+    }
+
+    fn admissible(&self, p: &[f64]) -> bool {
+        p.iter().all(|v| v.is_finite()) && p[1] > 0.0 && p[2] > 0.0 && p[3] > 0.0
+    }
+}
+
+/// Median of a slice (copies; NaN-free input assumed).
+pub(crate) fn median(values: &[f64]) -> f64 {
+    let mut v: Vec<f64> = values.iter().copied().filter(|x| x.is_finite()).collect();
+    if v.is_empty() {
+        return f64::NAN;
+    }
+    let mid = v.len() / 2;
+    v.select_nth_unstable_by(mid, f64::total_cmp);
+    let hi = v[mid];
+    if v.len() % 2 == 1 {
+        hi
+    } else {
+        let lo = v[..mid].iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        0.5 * (lo + hi)
+    }
+}
+
+/// Checks a band against a spectrum and returns the inclusive bin range.
+///
+/// # Errors
+/// [`PhysicsError::Input`] when the band is not finite, LO ≥ HI, or lies outside 0…Nyquist.
+pub fn band_bins(spectrum: &Spectrum, band_hz: (f64, f64), what: &str) -> Result<(usize, usize)> {
+    let (lo, hi) = band_hz;
+    let nyquist = spectrum.resolution_hz * spectrum.len().saturating_sub(1) as f64;
+    if !(lo.is_finite() && hi.is_finite()) || lo >= hi {
+        return Err(PhysicsError::Input(format!(
+            "{what} must be LO:HI with LO < HI, got {lo}:{hi}"
+        )));
+    }
+    if lo < 0.0 || hi > nyquist * (1.0 + 1e-12) {
+        return Err(PhysicsError::Input(format!(
+            "{what} {lo}:{hi} Hz lies outside the spectrum (0 to {nyquist} Hz)"
+        )));
+    }
+    let df = spectrum.resolution_hz;
+    let k_lo = (lo / df).ceil().max(0.0) as usize;
+    let k_hi = ((hi / df).floor() as usize).min(spectrum.len().saturating_sub(1));
+    Ok((k_lo, k_hi))
+}
+
+/// Fits the mode in `band_hz` with default options ([`FitOptions::default`]).
+///
+/// # Errors
+/// As [`fit_mode_with`].
+pub fn fit_mode(spectrum: &Spectrum, band_hz: (f64, f64)) -> Result<ModeFit> {
+    fit_mode_with(spectrum, band_hz, &FitOptions::default())
+}
+
+/// Fits one mechanical line plus background in `band_hz`.
+///
+/// # Errors
+/// [`PhysicsError::Input`] for a band outside the spectrum or LO ≥ HI;
+/// [`PhysicsError::NoMode`] when there is no line to stand behind: too few bins, no peak above
+/// the floor, no convergence, a line wider than the band or narrower than a quarter bin, a
+/// centre outside the band, or an area below `min_significance` σ.
+pub fn fit_mode_with(
+    spectrum: &Spectrum,
+    band_hz: (f64, f64),
+    options: &FitOptions,
+) -> Result<ModeFit> {
+    let (k_lo, k_hi) = band_bins(spectrum, band_hz, "mode band")?;
+    let df = spectrum.resolution_hz;
+    let mut freqs = Vec::with_capacity(k_hi.saturating_sub(k_lo) + 1);
+    let mut data = Vec::with_capacity(freqs.capacity());
+    for k in k_lo..=k_hi {
+        let f = k as f64 * df;
+        if options.exclude_hz.iter().any(|&(a, b)| f >= a && f <= b) {
+            continue;
+        }
+        let Some(&d) = spectrum.psd_v2_per_hz.get(k) else {
+            continue;
+        };
+        if d.is_finite() && d >= 0.0 {
+            freqs.push(f);
+            data.push(d);
+        }
+    }
+    let n_par = if options.sloped_background { 5 } else { 4 };
+    if data.len() < n_par + 4 {
+        return Err(PhysicsError::NoMode(format!(
+            "the band holds only {} usable bins (need at least {})",
+            data.len(),
+            n_par + 4
+        )));
+    }
+    let k_eff = if spectrum.k_eff.is_finite() && spectrum.k_eff > 0.0 {
+        spectrum.k_eff
+    } else {
+        spectrum.averages.max(1) as f64
+    };
+    let inflation = window_stats::error_inflation(spectrum.window);
+    let nenbw = if df > 0.0 { spectrum.enbw_hz / df } else { 1.0 };
+    fit_bins(
+        &freqs,
+        &data,
+        k_eff,
+        inflation,
+        nenbw * df,
+        df,
+        band_hz,
+        options,
+    )
+}
+
+/// Initial guesses from the data: (B, A, f_m, γ).
+fn initial_guess(freqs: &[f64], data: &[f64], df: f64) -> Option<(f64, f64, f64, f64)> {
+    let n = data.len();
+    let smooth: Vec<f64> = (0..n)
+        .map(|i| {
+            let lo = i.saturating_sub(1);
+            let hi = (i + 1).min(n - 1);
+            let s = &data[lo..=hi];
+            s.iter().sum::<f64>() / s.len() as f64
+        })
+        .collect();
+    let quarter = (n / 4).max(2).min(n);
+    let b_left = median(&data[..quarter]);
+    let b_right = median(&data[n - quarter..]);
+    let mut floor = b_left.min(b_right);
+    if !(floor.is_finite() && floor > 0.0) {
+        floor = median(data);
+    }
+    let (i_pk, &peak) = smooth
+        .iter()
+        .enumerate()
+        .max_by(|a, b| a.1.total_cmp(b.1))?;
+    let height = peak - floor;
+    if height.is_nan() || height <= 0.0 {
+        return None;
+    }
+    let half = floor + 0.5 * height;
+    let mut left = freqs[0];
+    for i in (0..i_pk).rev() {
+        if smooth[i] <= half {
+            let t = (half - smooth[i]) / (smooth[i + 1] - smooth[i]);
+            left = freqs[i] + t * (freqs[i + 1] - freqs[i]);
+            break;
+        }
+    }
+    let mut right = freqs[n - 1];
+    for i in i_pk + 1..n {
+        if smooth[i] <= half {
+            let t = (smooth[i - 1] - half) / (smooth[i - 1] - smooth[i]);
+            right = freqs[i - 1] + t * (freqs[i] - freqs[i - 1]);
+            break;
+        }
+    }
+    let width = (right - left).max(0.5 * df);
+    let area = height * PI * width / 2.0;
+    Some((floor.max(1e-300), area, freqs[i_pk], width))
+}
+
+#[allow(clippy::too_many_arguments)]
+fn fit_bins(
+    freqs: &[f64],
+    data: &[f64],
+    k_eff: f64,
+    inflation: f64,
+    enbw_hz: f64,
+    df: f64,
+    band_hz: (f64, f64),
+    options: &FitOptions,
+) -> Result<ModeFit> {
+    let (b0, a0, f0, w0) = initial_guess(freqs, data, df)
+        .ok_or_else(|| PhysicsError::NoMode("no peak above the floor".into()))?;
+    let f_ref = 0.5 * (band_hz.0 + band_hz.1);
+    let model = ModeModel {
+        freqs,
+        shape: options.line_shape,
+        sloped: options.sloped_background,
+        f_ref,
+    };
+    let mut best: Option<lsq::Solution> = None;
+    let mut last_err = SolveFailure::BadStart;
+    for scale in [1.0, 3.0, 0.33] {
+        let mut start = vec![b0, a0 * scale, f0, w0 * scale];
+        if options.sloped_background {
+            start.push(0.0);
+        }
+        match lsq::fit_model_weighted(&model, &start, data, k_eff) {
+            Ok(sol) => {
+                if best.as_ref().is_none_or(|b| sol.chi2 < b.chi2) {
+                    best = Some(sol);
+                }
+                break;
+            }
+            Err(e) => last_err = e,
+        }
+    }
+    let sol = best.ok_or_else(|| {
+        PhysicsError::NoMode(match last_err {
+            SolveFailure::BadStart => "the fit could not start from the data".to_string(),
+            SolveFailure::NotConverged => "the fit did not converge".to_string(),
+            SolveFailure::Singular => "the fit is degenerate (line not constrained)".to_string(),
+        })
+    })?;
+    let n = model.n_params();
+    let chi2_red = sol.chi2 / sol.dof.max(1) as f64;
+    let var_scale = chi2_red * inflation * inflation;
+    let cov =
+        |a: usize, b: usize| sol.covariance.get(a * n + b).copied().unwrap_or(0.0) * var_scale;
+    let p = &sol.params;
+    let (b, a, c, w) = (p[0], p[1], p[2], p[3]);
+    let sd = |k: usize| cov(k, k).max(0.0).sqrt();
+    // Derived quantities through their gradients in (A, f_m, γ) = indices 1, 2, 3.
+    let propagate = |g: [f64; 3]| {
+        let idx = [1usize, 2, 3];
+        let mut v = 0.0;
+        for (i, gi) in idx.iter().zip(g) {
+            for (j, gj) in idx.iter().zip(g) {
+                v += gi * gj * cov(*i, *j);
+            }
+        }
+        v.max(0.0).sqrt()
+    };
+    let q = c / w;
+    let peak = 2.0 * a / (PI * w);
+    let mut bg = b;
+    let mut bg_sigma = sd(0);
+    let mut slope = None;
+    if options.sloped_background {
+        let x = c - f_ref;
+        bg = b + p[4] * x;
+        bg_sigma = (cov(0, 0) + x * x * cov(4, 4) + 2.0 * x * cov(0, 4))
+            .max(0.0)
+            .sqrt();
+        slope = Some(Estimate::new(p[4], sd(4)));
+    }
+    let fit = ModeFit {
+        frequency_hz: Estimate::new(c, sd(2)),
+        linewidth_hz: Estimate::new(w, sd(3)),
+        quality_factor: Estimate::new(q, propagate([0.0, 1.0 / w, -c / (w * w)])),
+        area: Estimate::new(a, sd(1)),
+        peak_psd: Estimate::new(peak, propagate([2.0 / (PI * w), 0.0, -peak / w])),
+        background_psd: Estimate::new(bg, bg_sigma),
+        background_slope_per_hz: slope,
+        line_shape: options.line_shape,
+        reduced_chi2: chi2_red,
+        bins: data.len(),
+        band_hz,
+        error_inflation: inflation,
+        resolution_limited: w < 5.0 * enbw_hz,
+        slope_reference_hz: f_ref,
+    };
+    let all_finite = [
+        fit.frequency_hz,
+        fit.linewidth_hz,
+        fit.quality_factor,
+        fit.area,
+        fit.peak_psd,
+        fit.background_psd,
+    ]
+    .iter()
+    .all(Estimate::is_finite)
+        && chi2_red.is_finite();
+    if !all_finite {
+        return Err(PhysicsError::NoMode(
+            "the fit gave non-finite values".into(),
+        ));
+    }
+    if c < band_hz.0 || c > band_hz.1 {
+        return Err(PhysicsError::NoMode(format!(
+            "the fitted centre {c:.6} Hz lies outside the band"
+        )));
+    }
+    if w > band_hz.1 - band_hz.0 {
+        return Err(PhysicsError::NoMode(format!(
+            "the fitted linewidth {w:.4} Hz is wider than the band"
+        )));
+    }
+    if w < 0.25 * df {
+        return Err(PhysicsError::NoMode(format!(
+            "the linewidth is unresolved (fitted {w:.3e} Hz, bin spacing {df:.3e} Hz)"
+        )));
+    }
+    if a < options.min_significance * fit.area.sigma {
+        return Err(PhysicsError::NoMode(format!(
+            "no significant peak (area {:.2}σ above zero, need {})",
+            a / fit.area.sigma,
+            options.min_significance
+        )));
+    }
+    Ok(fit)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Numerical gradient check of both line shapes.
+    #[test]
+    fn gradients_match_finite_differences() {
+        for shape in [LineShape::Oscillator, LineShape::Lorentzian] {
+            let (f, a, c, w) = (1003.0, 2.0, 1000.0, 7.0);
+            let (_, g) = line_and_gradient(shape, f, a, c, w);
+            let h = [1e-6, 1e-4, 1e-5];
+            let base = [a, c, w];
+            for k in 0..3 {
+                let mut up = base;
+                let mut dn = base;
+                up[k] += h[k];
+                dn[k] -= h[k];
+                let num = (line(shape, f, up[0], up[1], up[2])
+                    - line(shape, f, dn[0], dn[1], dn[2]))
+                    / (2.0 * h[k]);
+                assert!(
+                    (num / g[k] - 1.0).abs() < 1e-6,
+                    "{shape:?} {k}: {num} vs {}",
+                    g[k]
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn median_of_even_and_odd() {
+        assert_eq!(median(&[3.0, 1.0, 2.0]), 2.0);
+        assert_eq!(median(&[4.0, 1.0, 2.0, 3.0]), 2.5);
+    }
+}

@@ -1,0 +1,500 @@
+//! Physics formulas against their published sources, with check values computed independently
+//! by tests/reference/physics_checks.py (numpy 2.4.6, scipy 1.17.1; output committed in
+//! tests/data/physics/physics_checks.json), and parameter recovery from synthetic spectra of
+//! known truth (mode fit, calibration, sidebands, stray peaks, the whole `analyze`).
+
+#![allow(clippy::unwrap_used)] // test helpers outside #[test] functions
+
+use std::f64::consts::PI;
+
+use stillpoint::dsp::{Averaging, Detrend, Spectrum, WindowKind};
+use stillpoint::physics::constants::{BOLTZMANN_J_PER_K, HBAR_J_S};
+use stillpoint::physics::oscillator::{self, Oscillator};
+use stillpoint::physics::{Estimate, fit, occupancy, quantum, window_stats};
+
+fn checks() -> serde_json::Value {
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/data/physics/physics_checks.json"
+    );
+    serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap()
+}
+
+fn num(v: &serde_json::Value, path: &str) -> f64 {
+    let mut cur = v;
+    for key in path.split('.') {
+        cur = &cur[key];
+    }
+    cur.as_f64()
+        .unwrap_or_else(|| panic!("no number at {path}"))
+}
+
+fn close(a: f64, b: f64, rel: f64, what: &str) {
+    assert!(
+        ((a - b) / b).abs() <= rel,
+        "{what}: {a:e} vs {b:e} (rel {:.3e} > {rel:e})",
+        ((a - b) / b).abs()
+    );
+}
+
+/// Four significant figures, as METHODS.md §9 T5 asks of the §7 table.
+fn sig4(a: f64, b: f64, what: &str) {
+    assert_eq!(
+        format!("{a:.3e}"),
+        format!("{b:.3e}"),
+        "{what} to 4 significant figures"
+    );
+}
+
+fn example() -> Oscillator {
+    Oscillator::with_quality_factor(1.0e-13, 1.0e6, 1.0e5).unwrap()
+}
+
+// ---------- random numbers (splitmix64) ----------
+
+pub struct Rng(u64);
+impl Rng {
+    pub fn new(seed: u64) -> Self {
+        Self(seed.wrapping_mul(0x9E37_79B9_7F4A_7C15) ^ 0xD1B5_4A32_D192_ED03)
+    }
+    pub fn next_u64(&mut self) -> u64 {
+        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = self.0;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^ (z >> 31)
+    }
+    pub fn uniform(&mut self) -> f64 {
+        ((self.next_u64() >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+    }
+    pub fn gauss(&mut self) -> f64 {
+        let u1 = self.uniform();
+        let u2 = self.uniform();
+        (-2.0 * u1.ln()).sqrt() * (2.0 * PI * u2).cos()
+    }
+    /// Gamma(shape, 1) by Marsaglia & Tsang (2000).
+    pub fn gamma(&mut self, shape: f64) -> f64 {
+        if shape < 1.0 {
+            let u = self.uniform();
+            return self.gamma(shape + 1.0) * u.powf(1.0 / shape);
+        }
+        let d = shape - 1.0 / 3.0;
+        let c = 1.0 / (9.0 * d).sqrt();
+        loop {
+            let x = self.gauss();
+            let v = (1.0 + c * x).powi(3);
+            if v <= 0.0 {
+                continue;
+            }
+            let u = self.uniform();
+            if u.ln() < 0.5 * x * x + d - d * v + d * v.ln() {
+                return d * v;
+            }
+        }
+    }
+    /// χ²_ν/ν with ν = 2 k_eff (mean 1, relative s.d. 1/√k_eff).
+    pub fn chi2_over_nu(&mut self, k_eff: f64) -> f64 {
+        self.gamma(k_eff) / k_eff
+    }
+}
+
+/// A spectrum of independent bins (rectangular window: ρ_bin = 0): model × χ²_ν/ν.
+fn synthetic_spectrum(
+    fs: f64,
+    n: usize,
+    k_eff: f64,
+    rng: &mut Rng,
+    model: impl Fn(f64) -> f64,
+) -> Spectrum {
+    let df = fs / n as f64;
+    let psd = (0..=n / 2)
+        .map(|k| model(k as f64 * df) * rng.chi2_over_nu(k_eff))
+        .collect();
+    Spectrum {
+        sample_rate_hz: fs,
+        segment: n,
+        overlap: 0.0,
+        window: WindowKind::Rectangular,
+        detrend: Detrend::Mean,
+        averaging: Averaging::Linear,
+        averages: k_eff.round() as usize,
+        k_eff,
+        resolution_hz: df,
+        enbw_hz: df,
+        psd_v2_per_hz: psd,
+    }
+}
+
+// ---------- METHODS.md §7 table (T5, T6) ----------
+
+/// x_zpf = √(ħ/2mΩ) [Aspelmeyer, Kippenberg & Marquardt, RMP 86, 1391 (2014)]; §7 table.
+#[test]
+fn table_x_zpf_and_occupancy() {
+    let c = checks();
+    let o = example();
+    sig4(o.x_zpf_m(), num(&c, "example.x_zpf_m"), "x_zpf");
+    close(o.x_zpf_m(), 9.161e-15, 5e-4, "x_zpf vs METHODS §7 (4 s.f.)");
+    close(
+        o.damping_rad_s(),
+        num(&c, "example.damping_rad_s"),
+        1e-12,
+        "Γ",
+    );
+    // Bose–Einstein n̄ (standard) and the high-T limit k_BT/ħΩ.
+    let n = occupancy::bose_einstein(1e6, 4.0);
+    close(n, num(&c, "example.occupancy_be"), 1e-9, "n̄ BE");
+    close(n, 83_345.98, 1e-7, "n̄ vs METHODS §7");
+    let nh = occupancy::classical_occupancy(1e6, 4.0);
+    close(nh, num(&c, "example.occupancy_high_t"), 1e-9, "n̄ high T");
+    assert!(
+        (nh - n - 0.5).abs() < 1e-3,
+        "high-T minus BE = ½ (METHODS §4)"
+    );
+    // ⟨x²⟩ = k_BT/mΩ² = x_zpf²(2n̄+1) (METHODS §4 consistency, 6 digits at 4 K).
+    let v = o.classical_variance_m2(4.0);
+    close(v, num(&c, "example.variance_th_m2"), 1e-12, "⟨x²⟩");
+    close(
+        occupancy::quantum_variance_m2(o.x_zpf_m(), 1e6, 4.0),
+        v,
+        1e-6,
+        "x_zpf²(2n̄+1)",
+    );
+    sig4(v.sqrt(), 3.740e-12, "x_rms");
+}
+
+/// Thermal, zero-point and SQL levels [A14; Clerk et al., RMP 82, 1155 (2010)], single-sided.
+#[test]
+fn table_peaks_zero_point_and_sql() {
+    let c = checks();
+    let o = example();
+    let th = quantum::thermal_peak_psd(&o, 4.0);
+    close(
+        th,
+        num(&c, "example.thermal_peak_m2_per_hz"),
+        1e-12,
+        "thermal peak",
+    );
+    sig4(th, 8.906e-25, "thermal peak vs METHODS §7");
+    let formula = 4.0 * BOLTZMANN_J_PER_K * 4.0 * 1e5 / (1e-13 * o.omega_rad_s().powi(3));
+    close(th, formula, 1e-12, "4k_BTQ/(mΩ³)");
+    let zp = quantum::zero_point_peak_psd(&o);
+    close(
+        zp,
+        num(&c, "example.zero_point_peak_m2_per_hz"),
+        1e-12,
+        "zero-point peak",
+    );
+    sig4(zp, 5.343e-30, "zero-point peak vs METHODS §7");
+    close(
+        zp,
+        4.0 * o.x_zpf_m().powi(2) / o.damping_rad_s(),
+        1e-12,
+        "4x_zpf²/Γ",
+    );
+    // T6: 2ħ|χ(Ω_m)| / S_zp(f_m) = 1 within 1e-9, and S_imp·S_FF = ħ² at the SQL point.
+    let sql = quantum::sql_psd_at_resonance(&o);
+    assert!(
+        (sql / zp - 1.0).abs() < 1e-9,
+        "SQL/zero-point = {}",
+        sql / zp
+    );
+    let (s_imp, s_ff) = quantum::sql_split_at(&o, 1e6);
+    close(
+        s_imp,
+        num(&c, "example.sql_imprecision_m2_per_hz"),
+        1e-12,
+        "S_imp",
+    );
+    close(
+        s_ff,
+        num(&c, "example.sql_backaction_n2_per_hz"),
+        1e-12,
+        "S_FF",
+    );
+    close(s_imp * s_ff, HBAR_J_S * HBAR_J_S, 1e-12, "S_imp S_FF = ħ²");
+    sig4(s_imp * s_ff, 1.112e-68, "ħ² vs METHODS §7");
+    sig4(th / zp, 166_693.0, "thermal/zero-point = 2n̄+1");
+    // T_eff for n̄ = 2 at 1 MHz: 118.4 µK.
+    let t = occupancy::effective_temperature_k(1e6, 2.0).unwrap();
+    close(t, num(&c, "example.t_eff_for_n2_k"), 1e-10, "T_eff(n̄=2)");
+    sig4(t, 118.4e-6, "T_eff vs METHODS §7");
+}
+
+/// Curves against scipy at DC, off resonance, near resonance and far above.
+#[test]
+fn curves_match_reference() {
+    let c = checks();
+    let o = example();
+    for row in c["curves"].as_array().unwrap() {
+        let f = row["frequency_hz"].as_f64().unwrap();
+        let get = |k: &str| row[k].as_f64().unwrap();
+        close(
+            quantum::classical_thermal_psd(&[f], &o, 4.0)[0],
+            get("classical_thermal"),
+            1e-9,
+            "classical",
+        );
+        close(
+            quantum::quantum_thermal_psd(&[f], &o, 4.0)[0],
+            get("quantum_thermal"),
+            1e-9,
+            "quantum",
+        );
+        close(quantum::sql_psd(&[f], &o)[0], get("sql"), 1e-9, "sql");
+        let zp = quantum::zero_point_psd(&[f], &o)[0];
+        if f > 0.0 {
+            close(zp, get("zero_point"), 1e-9, "zero point");
+        } else {
+            assert_eq!(zp, 0.0);
+        }
+    }
+}
+
+/// T5: ∫₀^∞ S_xx df of the HO form = k_BT/(mΩ²) within 1e-4 (equipartition; Saulson 1990),
+/// here by our own trapezoid integration on a refined grid, and scipy's quad in the JSON.
+#[test]
+fn t5_area_of_the_oscillator_form() {
+    let c = checks();
+    let o = example();
+    close(
+        num(&c, "t5.numerical_area_m2"),
+        o.classical_variance_m2(4.0),
+        1e-6,
+        "scipy quad",
+    );
+    // Integrate in u = atan(2(f − f_m)/γ) (Lorentzian substitution), which maps 0…∞ to a
+    // finite range and makes the integrand smooth.
+    let g = o.linewidth_hz;
+    let fm = o.frequency_hz;
+    let u0 = (2.0 * (0.0 - fm) / g).atan();
+    let u1 = PI / 2.0;
+    let steps = 200_000;
+    let h = (u1 - u0) / steps as f64;
+    let mut sum = 0.0;
+    for i in 0..=steps {
+        let u = u0 + i as f64 * h;
+        let wgt = if i == 0 || i == steps { 0.5 } else { 1.0 };
+        if (u - u1).abs() < 1e-15 {
+            continue;
+        }
+        let f = fm + 0.5 * g * u.tan();
+        let dfdu = 0.5 * g / u.cos().powi(2);
+        sum += wgt * quantum::classical_thermal_psd_at(&o, 4.0, f) * dfdu;
+    }
+    close(
+        sum * h,
+        o.classical_variance_m2(4.0),
+        1e-4,
+        "T5 numerical area",
+    );
+    // The Hz form with area A integrates to A (also at Q = 10).
+    close(num(&c, "hz_form_area_q10"), 1.0, 1e-9, "scipy Hz-form area");
+    let peak = oscillator::oscillator_psd(fm, 1.0, fm, g);
+    close(peak, 2.0 / (PI * g), 1e-12, "peak 2A/πγ");
+    // Same line in Hz form and via 4k_BT Im χ/Ω.
+    let f = fm + 3.0;
+    close(
+        oscillator::oscillator_psd(f, o.classical_variance_m2(4.0), fm, g),
+        quantum::classical_thermal_psd_at(&o, 4.0, f),
+        1e-10,
+        "Hz form = FDT form",
+    );
+}
+
+/// Bose–Einstein values and the exact inversion T_eff = ħΩ/(k_B ln(1+1/n̄)).
+#[test]
+fn bose_einstein_round_trip() {
+    let c = checks();
+    for row in c["bose_einstein"].as_array().unwrap() {
+        let f = row["frequency_hz"].as_f64().unwrap();
+        let t = row["temperature_k"].as_f64().unwrap();
+        let n = occupancy::bose_einstein(f, t);
+        close(n, row["occupancy"].as_f64().unwrap(), 1e-9, "BE");
+        close(
+            occupancy::effective_temperature_k(f, n).unwrap(),
+            t,
+            1e-9,
+            "inversion",
+        );
+    }
+    // Propagated σ_T: finite-difference check.
+    let e = occupancy::effective_temperature(1e6, Estimate::new(2.0, 0.01)).unwrap();
+    let dt = (occupancy::effective_temperature_k(1e6, 2.01).unwrap()
+        - occupancy::effective_temperature_k(1e6, 1.99).unwrap())
+        / 2.0;
+    close(e.sigma, dt, 1e-3, "σ_T");
+    // 4 K bath at 1 MHz: n̄ ≈ 83 346; at 3.7 GHz, 4 K: ≈ 22 (BE).
+    assert!(
+        occupancy::bose_einstein(3.7e9, 4.0) > 21.0 && occupancy::bose_einstein(3.7e9, 4.0) < 23.0
+    );
+}
+
+/// Nanobeam: x_zpf ≈ 2.75 fm for 300 fg at 3.7 GHz (common practice: femtometre range,
+/// Chan et al., Nature 478, 89 (2011), from memory); 1–5 GHz gives 5.3–2.4 fm.
+#[test]
+fn nanobeam_zero_point_amplitude() {
+    let c = checks();
+    let x = oscillator::x_zpf_m(300e-18, 3.7e9);
+    close(x, num(&c, "nanobeam.x_zpf_m"), 1e-12, "nanobeam");
+    assert!((x - 2.75e-15).abs() < 0.01e-15, "{x:e}");
+    close(
+        oscillator::x_zpf_m(300e-18, 1e9),
+        num(&c, "nanobeam.x_zpf_1ghz_m"),
+        1e-12,
+        "1 GHz",
+    );
+    sig4(
+        oscillator::x_zpf_m(300e-18, 5e9),
+        num(&c, "nanobeam.x_zpf_5ghz_m"),
+        "5 GHz",
+    );
+    // Mass-unit slip (METHODS §8.9): grams as kilograms shifts x_zpf by √1000.
+    close(
+        oscillator::x_zpf_m(300e-15, 3.7e9) * 1000f64.sqrt(),
+        x,
+        1e-12,
+        "√1000",
+    );
+}
+
+/// ρ_bin(l) of the windows against numpy's direct DFT sums (METHODS.md §2).
+#[test]
+fn bin_correlation_matches_numpy() {
+    let c = checks();
+    for (name, w) in [
+        ("hann", WindowKind::Hann),
+        ("hamming", WindowKind::Hamming),
+        ("blackman-harris", WindowKind::BlackmanHarris),
+    ] {
+        let r = window_stats::bin_correlation(w);
+        for (l, v) in c["rho_bin"][name].as_array().unwrap().iter().enumerate() {
+            let v = v.as_f64().unwrap();
+            let ours = r.get(l).copied().unwrap_or(0.0);
+            assert!(
+                (ours - v).abs() < 1e-12,
+                "{name} l={}: {ours} vs {v}",
+                l + 1
+            );
+        }
+    }
+}
+
+// ---------- mode fit ----------
+
+/// Recovery of f_m, γ, Q, area and background from spectra of independent χ²_ν/ν bins, and
+/// coverage of the reported 1σ over 240 seeds.
+#[test]
+fn mode_fit_recovery_and_coverage_independent_bins() {
+    let (fs, n, k_eff) = (20_000.0, 4096, 20.0);
+    let (fm, g, area, bg) = (3_000.37, 25.0, 2.0e-3, 1.0e-7);
+    let mut hits = [0usize; 4];
+    let seeds = 240;
+    let mut worst = [0.0f64; 2];
+    let mut mean = [0.0f64; 2];
+    for seed in 0..seeds {
+        let mut rng = Rng::new(seed);
+        let s = synthetic_spectrum(fs, n, k_eff, &mut rng, |f| {
+            bg + oscillator::oscillator_psd(f, area, fm, g)
+        });
+        let r = fit::fit_mode(&s, (2_500.0, 3_500.0)).unwrap();
+        // Pulls (error / reported σ): none beyond 4.5σ.
+        worst[0] = worst[0].max(((r.frequency_hz.value - fm) / r.frequency_hz.sigma).abs());
+        worst[1] = worst[1].max(((r.linewidth_hz.value - g) / r.linewidth_hz.sigma).abs());
+        mean[0] += r.frequency_hz.value / seeds as f64;
+        mean[1] += r.linewidth_hz.value / seeds as f64;
+        for (i, (e, truth)) in [
+            (r.frequency_hz, fm),
+            (r.linewidth_hz, g),
+            (r.area, area),
+            (r.background_psd, bg),
+        ]
+        .iter()
+        .enumerate()
+        {
+            if (e.value - truth).abs() <= e.sigma {
+                hits[i] += 1;
+            }
+        }
+    }
+    let frac: Vec<f64> = hits.iter().map(|h| *h as f64 / seeds as f64).collect();
+    println!(
+        "independent-bin coverage (f_m, γ, A, B): {frac:?}; worst pulls f {:.2} γ {:.2}; mean γ {:.3}",
+        worst[0], worst[1], mean[1]
+    );
+    assert!(worst[0] < 4.5 && worst[1] < 4.5, "pulls {worst:?}");
+    // No bias beyond 3σ of the mean (the model-weighted fit is unbiased, METHODS §2).
+    assert!((mean[0] - fm).abs() / fm < 5e-5, "mean f_m {}", mean[0]);
+    assert!((mean[1] - g).abs() / g < 0.02, "mean γ {}", mean[1]);
+    for (name, f) in ["f_m", "γ", "A", "B"].iter().zip(&frac) {
+        assert!((0.58..=0.78).contains(f), "coverage of {name}: {f}");
+    }
+}
+
+/// One typical spectrum (K_eff = 50): f_m within 5e-4 relative, γ and Q within 15 %, area and
+/// background within 15 %, Lorentzian and sloped variants too.
+#[test]
+fn mode_fit_recovers_one_spectrum() {
+    let (fm, g, area, bg) = (12_345.6, 10.0, 1.0e-6, 1.0e-10);
+    let mut rng = Rng::new(7);
+    let s = synthetic_spectrum(50_000.0, 32_768, 50.0, &mut rng, |f| {
+        bg * (1.0 + 1e-5 * (f - fm)) + oscillator::oscillator_psd(f, area, fm, g)
+    });
+    for opts in [
+        fit::FitOptions::default(),
+        fit::FitOptions {
+            line_shape: fit::LineShape::Lorentzian,
+            ..Default::default()
+        },
+        fit::FitOptions {
+            sloped_background: true,
+            ..Default::default()
+        },
+    ] {
+        let r = fit::fit_mode_with(&s, (12_200.0, 12_500.0), &opts).unwrap();
+        close(r.frequency_hz.value, fm, 5e-4, "f_m");
+        close(r.linewidth_hz.value, g, 0.15, "γ");
+        close(r.quality_factor.value, fm / g, 0.15, "Q");
+        close(r.area.value, area, 0.15, "A");
+        close(r.background_psd.value, bg, 0.15, "B");
+        close(r.peak_psd.value, 2.0 * area / (PI * g), 0.15, "peak");
+        assert!(!r.resolution_limited);
+        assert!(
+            r.reduced_chi2 > 0.7 && r.reduced_chi2 < 1.3,
+            "χ²_red {}",
+            r.reduced_chi2
+        );
+        if opts.sloped_background {
+            let sl = r.background_slope_per_hz.unwrap();
+            assert!(
+                (sl.value - bg * 1e-5).abs() < 4.0 * sl.sigma,
+                "slope {sl:?}"
+            );
+        }
+    }
+}
+
+/// No peak, a band outside the spectrum, LO ≥ HI → a clear error, never NaN.
+#[test]
+fn mode_fit_refuses_bad_bands_and_flat_noise() {
+    let mut rng = Rng::new(3);
+    let s = synthetic_spectrum(10_000.0, 2048, 20.0, &mut rng, |_| 1e-9);
+    let e = fit::fit_mode(&s, (1_000.0, 2_000.0)).unwrap_err();
+    assert!(
+        matches!(e, stillpoint::physics::PhysicsError::NoMode(_)),
+        "{e}"
+    );
+    for band in [
+        (4_000.0, 6_000.0),
+        (2_000.0, 1_000.0),
+        (-5.0, 100.0),
+        (f64::NAN, 1.0),
+    ] {
+        let e = fit::fit_mode(&s, band).unwrap_err();
+        assert!(
+            matches!(e, stillpoint::physics::PhysicsError::Input(_)),
+            "{band:?}: {e}"
+        );
+    }
+    // A band of three bins.
+    assert!(fit::fit_mode(&s, (1_000.0, 1_012.0)).is_err());
+}
