@@ -1,4 +1,17 @@
-//! Display units of spectral densities and integrated rms. SKELETON.
+//! Display units of spectral densities, integrated rms over a band, cumulative rms, and the
+//! robust reading of a tone's power from a PSD (METHODS.md §1 "Reading a pure tone").
+//!
+//! Every input is a one-sided PSD in V²/Hz as [`Spectrum`] holds it. A calibration is given as
+//! metres per volt `c`; displacement densities are `c² S_VV` (m²/Hz) and `c √S_VV` (m/√Hz).
+//! dB values are `10 log10` of the PSD re 1 V²/Hz or 1 m²/Hz; a PSD of exactly 0 is shown at
+//! the dB value of the smallest positive f64 (≈ −3077 dB), never −∞.
+//!
+//! **Integration.** Each bin contributes `PSD_k Δf`. The DC and (even N) Nyquist bins already
+//! carry the one-sided factor 1 instead of 2, so with this rule `Σ_k PSD_k Δf` over all bins
+//! equals the windowed signal's variance exactly (Parseval; Heinzel et al. 2002 §9). A bin
+//! belongs to a band `[lo, hi]` when its centre frequency `f_k = k Δf` does.
+
+use super::{DspError, Result, Spectrum};
 
 /// A unit in which a spectral density is shown or written.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
@@ -16,4 +29,393 @@ pub enum DensityUnit {
     DbV2PerHz,
     /// 10·log10 of the PSD in m²/Hz (dB re 1 m²/Hz).
     DbM2PerHz,
+}
+
+impl DensityUnit {
+    /// Short unit text: `V²/Hz`, `V/√Hz`, `m²/Hz`, `m/√Hz`, `dB re 1 V²/Hz`, `dB re 1 m²/Hz`.
+    pub fn symbol(self) -> &'static str {
+        match self {
+            Self::V2PerHz => "V²/Hz",
+            Self::VPerRtHz => "V/√Hz",
+            Self::M2PerHz => "m²/Hz",
+            Self::MPerRtHz => "m/√Hz",
+            Self::DbV2PerHz => "dB re 1 V²/Hz",
+            Self::DbM2PerHz => "dB re 1 m²/Hz",
+        }
+    }
+
+    /// True for the units that need metres per volt.
+    pub fn needs_calibration(self) -> bool {
+        matches!(self, Self::M2PerHz | Self::MPerRtHz | Self::DbM2PerHz)
+    }
+
+    /// Converts one PSD value (V²/Hz) into this unit.
+    ///
+    /// # Errors
+    /// [`DspError::Uncalibrated`] for a displacement unit without a finite, positive
+    /// `m_per_v`.
+    pub fn from_psd_v2_per_hz(self, psd_v2_per_hz: f64, m_per_v: Option<f64>) -> Result<f64> {
+        let gain2 = if self.needs_calibration() {
+            match m_per_v {
+                Some(c) if c.is_finite() && c > 0.0 => c * c,
+                _ => {
+                    return Err(DspError::Uncalibrated {
+                        unit: self.symbol(),
+                    });
+                }
+            }
+        } else {
+            1.0
+        };
+        let psd = psd_v2_per_hz.max(0.0) * gain2;
+        Ok(match self {
+            Self::V2PerHz | Self::M2PerHz => psd,
+            Self::VPerRtHz | Self::MPerRtHz => psd.sqrt(),
+            Self::DbV2PerHz | Self::DbM2PerHz => 10.0 * psd.max(f64::MIN_POSITIVE).log10(),
+        })
+    }
+
+    /// Converts a whole PSD (V²/Hz) into this unit.
+    ///
+    /// # Errors
+    /// As [`DensityUnit::from_psd_v2_per_hz`].
+    pub fn convert(self, psd_v2_per_hz: &[f64], m_per_v: Option<f64>) -> Result<Vec<f64>> {
+        psd_v2_per_hz
+            .iter()
+            .map(|&p| self.from_psd_v2_per_hz(p, m_per_v))
+            .collect()
+    }
+}
+
+/// Bin range `[first, last]` whose centre frequencies lie in `[lo_hz, hi_hz]`.
+fn band_bins(spectrum: &Spectrum, lo_hz: f64, hi_hz: f64) -> Result<(usize, usize)> {
+    if !(lo_hz.is_finite() && hi_hz.is_finite() && lo_hz <= hi_hz) {
+        return Err(DspError::Band(format!(
+            "band must be two finite frequencies LO <= HI, got {lo_hz} Hz to {hi_hz} Hz"
+        )));
+    }
+    let df = spectrum.resolution_hz;
+    let last_bin = spectrum.len().saturating_sub(1);
+    if spectrum.is_empty() || df.is_nan() || df <= 0.0 {
+        return Err(DspError::Band("the spectrum is empty".to_string()));
+    }
+    let first = (lo_hz / df).ceil().max(0.0);
+    let last = (hi_hz / df).floor().min(last_bin as f64);
+    if first > last {
+        return Err(DspError::Band(format!(
+            "no bin of the spectrum (0 to {} Hz, spacing {df} Hz) lies in {lo_hz} Hz to {hi_hz} Hz",
+            spectrum.frequency_hz(last_bin)
+        )));
+    }
+    Ok((first as usize, last as usize))
+}
+
+/// Variance in a band: `Σ_{lo ≤ f_k ≤ hi} PSD_k Δf` (V²).
+///
+/// # Errors
+/// [`DspError::Band`] if the band is not two finite frequencies with lo ≤ hi, or holds no bin.
+pub fn band_variance(spectrum: &Spectrum, lo_hz: f64, hi_hz: f64) -> Result<f64> {
+    let (first, last) = band_bins(spectrum, lo_hz, hi_hz)?;
+    let sum: f64 = spectrum
+        .psd_v2_per_hz
+        .get(first..=last)
+        .unwrap_or(&[])
+        .iter()
+        .sum();
+    Ok(sum * spectrum.resolution_hz)
+}
+
+/// Rms in a band, `√(band_variance)` (V).
+///
+/// # Errors
+/// As [`band_variance`].
+pub fn band_rms(spectrum: &Spectrum, lo_hz: f64, hi_hz: f64) -> Result<f64> {
+    Ok(band_variance(spectrum, lo_hz, hi_hz)?.max(0.0).sqrt())
+}
+
+/// Direction of a cumulative rms.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
+pub enum Cumulation {
+    /// `rms_k = √(Σ_{j ≥ k} PSD_j Δf)`: rms of everything at and above f_k (falls with
+    /// frequency; common practice in vibration and displacement-noise plots).
+    #[default]
+    FromHighFrequency,
+    /// `rms_k = √(Σ_{j ≤ k} PSD_j Δf)`: rms of everything at and below f_k (rises).
+    FromLowFrequency,
+}
+
+/// Cumulative rms per bin (V), in the given direction (see [`Cumulation`]). Same length as
+/// the spectrum; the first (from-high) or last (from-low) value is the total rms.
+pub fn cumulative_rms(spectrum: &Spectrum, direction: Cumulation) -> Vec<f64> {
+    let df = spectrum.resolution_hz;
+    let mut out = vec![0.0; spectrum.len()];
+    let mut acc = 0.0;
+    let mut step = |o: &mut f64, p: &f64| {
+        acc += p * df;
+        *o = acc.max(0.0).sqrt();
+    };
+    match direction {
+        Cumulation::FromLowFrequency => out
+            .iter_mut()
+            .zip(&spectrum.psd_v2_per_hz)
+            .for_each(|(o, p)| step(o, p)),
+        Cumulation::FromHighFrequency => out
+            .iter_mut()
+            .zip(&spectrum.psd_v2_per_hz)
+            .rev()
+            .for_each(|(o, p)| step(o, p)),
+    }
+    out
+}
+
+/// The noise floor B under a tone.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub enum ToneFloor {
+    /// No floor subtracted (B = 0).
+    None,
+    /// A given floor, V²/Hz.
+    Given(f64),
+    /// Estimated: the mean PSD of the `4M` bins on each side just outside the summed range
+    /// (bins k₀ ± (M+1) … k₀ ± (5M), where they exist).
+    Local,
+}
+
+/// A tone read from a PSD.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct ToneReading {
+    /// Bin k₀ of the highest PSD near the requested frequency.
+    pub peak_bin: usize,
+    /// Its frequency k₀ Δf.
+    pub peak_frequency_hz: f64,
+    /// Tone power `A_rms² = Σ_{|k−k₀|≤M} (PSD_k − B) Δf` (V²).
+    pub power_v2: f64,
+    /// The floor B used (V²/Hz).
+    pub floor_v2_per_hz: f64,
+    /// Half-width M (bins) of the sum ([`super::WindowKind::tone_half_width_bins`]).
+    pub half_width_bins: usize,
+    /// Bins actually summed (fewer than 2M + 1 near DC or Nyquist).
+    pub bins_summed: usize,
+}
+
+impl ToneReading {
+    /// Rms amplitude `√max(power, 0)` (V).
+    pub fn rms_v(&self) -> f64 {
+        self.power_v2.max(0.0).sqrt()
+    }
+}
+
+/// Bin of the highest PSD within ±`search_bins` of the bin nearest `frequency_hz`.
+///
+/// # Errors
+/// [`DspError::Band`] if the frequency is not finite or lies outside 0 … Nyquist (+½ bin).
+pub fn peak_bin_near(spectrum: &Spectrum, frequency_hz: f64, search_bins: usize) -> Result<usize> {
+    let df = spectrum.resolution_hz;
+    let top = spectrum.len().saturating_sub(1);
+    if spectrum.is_empty()
+        || df.is_nan()
+        || df <= 0.0
+        || !frequency_hz.is_finite()
+        || frequency_hz < 0.0
+        || frequency_hz > (top as f64 + 0.5) * df
+    {
+        return Err(DspError::Band(format!(
+            "tone frequency {frequency_hz} Hz lies outside the spectrum (0 to {} Hz)",
+            spectrum.frequency_hz(top)
+        )));
+    }
+    let centre = spectrum.bin_of(frequency_hz);
+    let lo = centre.saturating_sub(search_bins);
+    let hi = (centre + search_bins).min(top);
+    let mut best = centre;
+    let mut best_value = f64::NEG_INFINITY;
+    for k in lo..=hi {
+        let v = spectrum.psd_v2_per_hz.get(k).copied().unwrap_or(0.0);
+        if v > best_value {
+            best_value = v;
+            best = k;
+        }
+    }
+    Ok(best)
+}
+
+/// Reads the power of a tone near `frequency_hz` (METHODS.md §1, robust reading, any window):
+/// finds the peak bin k₀ within ±M bins of the nominal bin, then sums
+/// `Σ_{|k−k₀|≤M} (PSD_k − B) Δf` with M = `spectrum.window.tone_half_width_bins()` (3 for
+/// Hann, Hamming, Blackman–Harris and rectangular, 5 for the flat-top; ≥ 99.99 % of the tone
+/// power at the worst offset for the tapered windows; the rectangular window's slow side lobes
+/// leak several per cent outside ±3 bins, so do not read tones with it). Use this, not the
+/// peak PSD × Δf.
+///
+/// # Errors
+/// [`DspError::Band`] if the frequency lies outside the spectrum, or a given floor is not
+/// finite.
+pub fn tone_power(spectrum: &Spectrum, frequency_hz: f64, floor: ToneFloor) -> Result<ToneReading> {
+    let m = spectrum.window.tone_half_width_bins();
+    let k0 = peak_bin_near(spectrum, frequency_hz, m)?;
+    let top = spectrum.len().saturating_sub(1);
+    let lo = k0.saturating_sub(m);
+    let hi = (k0 + m).min(top);
+    let psd = &spectrum.psd_v2_per_hz;
+    let b = match floor {
+        ToneFloor::None => 0.0,
+        ToneFloor::Given(b) if b.is_finite() => b,
+        ToneFloor::Given(b) => {
+            return Err(DspError::Band(format!(
+                "tone floor must be a finite PSD, got {b}"
+            )));
+        }
+        ToneFloor::Local => {
+            let mut sum = 0.0;
+            let mut count = 0usize;
+            let below = k0.saturating_sub(5 * m)..k0.saturating_sub(m + 1).max(1).min(k0);
+            let above = (k0 + m + 1)..=(k0 + 5 * m).min(top);
+            // Skip DC (it carries the removed trend, not the noise floor).
+            for k in below.chain(above).filter(|&k| k > 0 && k <= top) {
+                if let Some(v) = psd.get(k) {
+                    sum += v;
+                    count += 1;
+                }
+            }
+            if count == 0 { 0.0 } else { sum / count as f64 }
+        }
+    };
+    let slice = psd.get(lo..=hi).unwrap_or(&[]);
+    let power = slice.iter().map(|p| p - b).sum::<f64>() * spectrum.resolution_hz;
+    Ok(ToneReading {
+        peak_bin: k0,
+        peak_frequency_hz: spectrum.frequency_hz(k0),
+        power_v2: power,
+        floor_v2_per_hz: b,
+        half_width_bins: m,
+        bins_summed: slice.len(),
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::dsp::welch::welch;
+    use crate::dsp::{WelchConfig, WindowKind};
+
+    fn flat(level: f64, bins: usize, df: f64) -> Spectrum {
+        Spectrum {
+            sample_rate_hz: 2.0 * df * (bins - 1) as f64,
+            segment: 2 * (bins - 1),
+            overlap: 0.5,
+            window: WindowKind::Hann,
+            detrend: crate::dsp::Detrend::Mean,
+            averaging: crate::dsp::Averaging::Linear,
+            averages: 1,
+            k_eff: 1.0,
+            resolution_hz: df,
+            enbw_hz: 1.5 * df,
+            psd_v2_per_hz: vec![level; bins],
+        }
+    }
+
+    #[test]
+    fn unit_conversions() {
+        let p = 4e-6;
+        let c = Some(2e-9);
+        let close = |a: f64, b: f64| (a - b).abs() <= 1e-12 * b.abs();
+        assert!(close(
+            DensityUnit::V2PerHz.from_psd_v2_per_hz(p, None).unwrap(),
+            p
+        ));
+        assert!(close(
+            DensityUnit::VPerRtHz.from_psd_v2_per_hz(p, None).unwrap(),
+            2e-3
+        ));
+        assert!(close(
+            DensityUnit::M2PerHz.from_psd_v2_per_hz(p, c).unwrap(),
+            1.6e-23
+        ));
+        assert!(close(
+            DensityUnit::MPerRtHz.from_psd_v2_per_hz(p, c).unwrap(),
+            4e-12
+        ));
+        let db = DensityUnit::DbV2PerHz.from_psd_v2_per_hz(p, None).unwrap();
+        assert!(close(db, 10.0 * 4e-6f64.log10()));
+        let dbm = DensityUnit::DbM2PerHz.from_psd_v2_per_hz(p, c).unwrap();
+        assert!(close(dbm, 10.0 * 1.6e-23f64.log10()));
+        assert!(DensityUnit::M2PerHz.from_psd_v2_per_hz(p, None).is_err());
+        assert!(
+            DensityUnit::MPerRtHz
+                .from_psd_v2_per_hz(p, Some(f64::NAN))
+                .is_err()
+        );
+        let zero = DensityUnit::DbV2PerHz
+            .from_psd_v2_per_hz(0.0, None)
+            .unwrap();
+        assert!(zero.is_finite() && zero < -3000.0);
+    }
+
+    #[test]
+    fn band_and_cumulative_rms_of_a_flat_spectrum() {
+        let s = flat(2.0, 101, 0.5); // 0 … 50 Hz
+        // Bins 10 … 20 (f = 5 … 10 Hz): 11 bins × 2 × 0.5 = 11 V².
+        assert!((band_variance(&s, 5.0, 10.0).unwrap() - 11.0).abs() < 1e-12);
+        assert!((band_rms(&s, 5.0, 10.0).unwrap() - 11f64.sqrt()).abs() < 1e-12);
+        assert!((band_variance(&s, 4.9, 10.1).unwrap() - 11.0).abs() < 1e-12);
+        assert!(band_variance(&s, 10.1, 10.2).is_err());
+        assert!(band_variance(&s, 20.0, 10.0).is_err());
+        assert!(band_variance(&s, f64::NAN, 10.0).is_err());
+        let down = cumulative_rms(&s, Cumulation::FromHighFrequency);
+        let up = cumulative_rms(&s, Cumulation::FromLowFrequency);
+        assert!((down[0] - 101f64.sqrt()).abs() < 1e-12);
+        assert!((up[100] - 101f64.sqrt()).abs() < 1e-12);
+        assert!((down[100] - 1.0).abs() < 1e-12 && (up[0] - 1.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn parseval_over_the_whole_band() {
+        // Σ PSD Δf over DC … Nyquist equals the windowed variance Σ(w x)²/S₂ (Heinzel 2002 §9).
+        let x: Vec<f64> = (0..512)
+            .map(|i| ((i * 37 % 101) as f64 - 50.0) / 30.0)
+            .collect();
+        let mut c = WelchConfig::new(100.0, 512);
+        c.detrend = crate::dsp::Detrend::None;
+        let s = welch(&x, &c).unwrap();
+        let w = WindowKind::Hann.samples(512);
+        let s2: f64 = w.iter().map(|v| v * v).sum();
+        let var: f64 = x.iter().zip(&w).map(|(a, b)| (a * b).powi(2)).sum::<f64>() / s2;
+        let total = band_variance(&s, 0.0, 50.0).unwrap();
+        assert!((total - var).abs() < 1e-12 * var, "{total} vs {var}");
+    }
+
+    #[test]
+    fn tone_power_reads_an_off_bin_tone() {
+        // METHODS.md §1: rms 0.3 at bin 123.4, Σ_{±M} PSD Δf ≈ 0.09 for every window.
+        let n = 1024;
+        let x: Vec<f64> = (0..8 * n)
+            .map(|i| {
+                0.3 * 2f64.sqrt() * (2.0 * std::f64::consts::PI * 123.4 * i as f64 / n as f64).sin()
+                    + 1e-3 * (((i * 7919) % 1000) as f64 / 1000.0 - 0.5)
+            })
+            .collect();
+        for window in WindowKind::ALL {
+            let mut c = WelchConfig::new(n as f64, n);
+            c.window = window;
+            let s = welch(&x, &c).unwrap();
+            let r = tone_power(&s, 123.0, ToneFloor::Local).unwrap();
+            assert_eq!(r.bins_summed, 2 * window.tone_half_width_bins() + 1);
+            // The rectangular window leaks far beyond ±3 bins (sinc side lobes): only roughly.
+            let tol = if window == WindowKind::Rectangular {
+                0.1
+            } else {
+                1e-3
+            };
+            assert!(
+                ((r.power_v2 - 0.09) / 0.09).abs() < tol,
+                "{window:?}: {}",
+                r.power_v2
+            );
+            assert!(r.floor_v2_per_hz >= 0.0);
+        }
+        let s = welch(&x, &WelchConfig::new(n as f64, n)).unwrap();
+        assert!(tone_power(&s, 1e9, ToneFloor::None).is_err());
+        assert!(tone_power(&s, 123.0, ToneFloor::Given(f64::INFINITY)).is_err());
+        let near_dc = tone_power(&s, 1.0, ToneFloor::None).unwrap();
+        assert!(near_dc.bins_summed < 7);
+    }
 }
