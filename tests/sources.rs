@@ -1059,6 +1059,38 @@ fn allowance(len: usize, block: usize, frame_bytes: usize) -> usize {
     len.max(4096).max(block * 8).max(frame_bytes) + 64
 }
 
+#[test]
+fn allocation_watch_sees_allocations() {
+    // The allocation bound below is only meaningful if the watch records allocations.
+    let (v, largest) = largest_allocation(|| vec![0_u8; 123_457]);
+    assert_eq!(v.len(), 123_457);
+    assert!(largest >= 123_457, "{largest}");
+    let (_, none) = largest_allocation(|| 1 + 1);
+    assert_eq!(none, 0);
+}
+
+/// Valid WAVs of several layouts (the seeds that mutation starts from), made once.
+fn seed_wavs() -> &'static [Vec<u8>] {
+    static SEEDS: std::sync::OnceLock<Vec<Vec<u8>>> = std::sync::OnceLock::new();
+    SEEDS.get_or_init(make_seed_wavs)
+}
+
+fn make_seed_wavs() -> Vec<Vec<u8>> {
+    let codes = codes_for(CHANNELS)[..60].to_vec();
+    let mut list = vec![
+        f64_wav(&codes, CHANNELS, false),
+        f64_wav(&codes, CHANNELS, true),
+        i24_in_32_wav(&codes, CHANNELS),
+    ];
+    let dir = tempfile::tempdir().unwrap();
+    for (bits, float) in [(16, false), (24, false), (32, true)] {
+        let p = dir.path().join("seed.wav");
+        write_hound(&p, &codes, CHANNELS, bits, float);
+        list.push(fs::read(&p).unwrap());
+    }
+    list
+}
+
 proptest! {
     #![proptest_config(ProptestConfig { cases: 2000, ..ProptestConfig::default() })]
 
@@ -1084,6 +1116,40 @@ proptest! {
         });
         prop_assert!(result * 2 <= len);
         prop_assert!(largest <= allowance(len, 256, 8), "allocated {} for {} bytes", largest, len);
+    }
+
+    #[test]
+    fn mutated_wav_headers_never_panic(
+        which in 0_usize..6,
+        edits in proptest::collection::vec((0_usize..80, any::<u8>()), 1..6),
+        cut in any::<Option<usize>>(),
+        channel in 0_usize..4,
+    ) {
+        // Valid files with a few header bytes changed and perhaps cut: parse or refuse, and
+        // deliver whole frames only from bytes that are there.
+        let mut bytes = seed_wavs()[which].clone();
+        for (at, value) in edits {
+            if let Some(b) = bytes.get_mut(at) {
+                *b = value;
+            }
+        }
+        if let Some(cut) = cut {
+            bytes.truncate(cut % (bytes.len() + 1));
+        }
+        let len = bytes.len();
+        let (result, largest) = largest_allocation(|| {
+            let mut out = [0.0; 100];
+            let mut total = 0;
+            if let Ok(mut r) = WavReader::new(Cursor::new(bytes), channel, 1.0, None) {
+                while let Ok(n) = r.read_block(&mut out) {
+                    if n == 0 { break; }
+                    total += n;
+                }
+            }
+            total
+        });
+        prop_assert!(result * 2 <= len);
+        prop_assert!(largest <= allowance(len, 100, 8), "allocated {} for {} bytes", largest, len);
     }
 
     #[test]

@@ -303,13 +303,15 @@ pub(crate) fn parse_header<R: Read + Seek>(
         }
         if u64::from(size) > left {
             let message = format!(
-                "chunk '{}' claims {size} bytes but only {left} remain in the file (damaged header)",
+                "chunk '{}' claims {size} bytes but only {left} remain in the file",
                 chunk_name(cid)
             );
+            // If the RIFF size says the file is complete, the chunk size is garbage; else the
+            // file may simply stop early (or still be growing).
             return Err(if riff_end.is_some_and(|end| end <= file_len) {
-                HeaderError::Bad(message)
+                HeaderError::Bad(format!("{message} (damaged header)"))
             } else {
-                HeaderError::Incomplete(message)
+                HeaderError::Incomplete(format!("{message} (truncated header)"))
             });
         }
         match &cid {
