@@ -837,7 +837,6 @@ fn mode_wav(dir: &Path) -> PathBuf {
 }
 
 #[test]
-#[ignore = "pending report::analyze (helper C)"]
 fn analyze_writes_every_contract_key_and_says_why_nulls_are_null() {
     let dir = tempfile::tempdir().unwrap();
     let wav = mode_wav(dir.path());
@@ -916,7 +915,6 @@ fn analyze_writes_every_contract_key_and_says_why_nulls_are_null() {
 // ---------------------------------------------------------------- synth and bench
 
 #[test]
-#[ignore = "pending the synth command wiring"]
 fn synth_writes_a_wav_hound_can_read_and_a_truth_sidecar() {
     let dir = tempfile::tempdir().unwrap();
     let list = run(&[
@@ -936,16 +934,16 @@ fn synth_writes_a_wav_hound_can_read_and_a_truth_sidecar() {
         "--seed",
         "3",
         "--duration",
-        "0.5",
+        "0.1",
         "--rate",
-        "20000",
+        "200000",
         "-o",
         s(&out),
     ]);
     assert_success(&output, "synth");
     let reader = hound::WavReader::open(&out).expect("hound opens the synthesised WAV");
-    assert_eq!(reader.spec().sample_rate, 20_000);
-    assert_eq!(reader.duration(), 10_000);
+    assert_eq!(reader.spec().sample_rate, 200_000);
+    assert_eq!(reader.duration(), 20_000);
     let sidecar = fs::read_dir(dir.path())
         .unwrap()
         .map(|e| e.unwrap().path())
@@ -961,9 +959,9 @@ fn synth_writes_a_wav_hound_can_read_and_a_truth_sidecar() {
             "--seed",
             "3",
             "--duration",
-            "0.5",
+            "0.1",
             "--rate",
-            "20000",
+            "200000",
             "-o",
             s(&again),
         ]),

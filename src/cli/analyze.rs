@@ -2,7 +2,9 @@
 //! sidebands → stray peaks, written as pretty JSON (the BRIEF.md key paths), with a short
 //! summary on stdout and the report's notes and warnings on stderr.
 
+use std::fs;
 use std::io::{self, Write};
+use std::path::Path;
 use std::process::ExitCode;
 
 use anyhow::{Context, Result};
@@ -10,15 +12,19 @@ use anyhow::{Context, Result};
 use crate::report::{self, Report};
 
 use super::args::AnalyzeArgs;
-use super::{config, note, output, pipeline, warn};
+use super::{InputError, config, note, output, pipeline, warn};
 
 /// Runs `stillpoint analyze`.
 ///
 /// # Errors
 /// Bad options or input, an impossible analysis input, an unwritable output.
 pub fn run(args: &AnalyzeArgs) -> Result<ExitCode> {
-    let options =
+    let mut options =
         config::analysis_options(&args.calibration, &args.heterodyne, args.peak_threshold)?;
+    options.reference_peaks_hz = args.reference_peaks.clone();
+    if let Some(path) = &args.reference {
+        options.reference_peaks_hz.extend(reference_peaks(path)?);
+    }
     output::check_output_path(&args.output)?;
     let run = pipeline::compute_spectrum(&args.source, &args.welch)?;
     let mut report = report::analyze(&run.spectrum, &options)?;
@@ -47,6 +53,28 @@ pub fn run(args: &AnalyzeArgs) -> Result<ExitCode> {
         out.flush().context("cannot write the summary to stdout")?;
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// Peak frequencies of an earlier `analyze` report (`peaks[].frequency_hz`).
+fn reference_peaks(path: &Path) -> Result<Vec<f64>> {
+    let text = fs::read_to_string(path)
+        .with_context(|| format!("cannot read the reference report {}", path.display()))?;
+    let value: serde_json::Value = serde_json::from_str(&text)
+        .map_err(|e| InputError(format!("the reference {} is not JSON: {e}", path.display())))?;
+    let peaks = value
+        .get("peaks")
+        .and_then(serde_json::Value::as_array)
+        .ok_or_else(|| {
+            InputError(format!(
+                "the reference {} has no peaks[] list (is it an analyze report?)",
+                path.display()
+            ))
+        })?;
+    Ok(peaks
+        .iter()
+        .filter_map(|p| p.get("frequency_hz").and_then(serde_json::Value::as_f64))
+        .filter(|f| f.is_finite())
+        .collect())
 }
 
 /// `value ± err unit` with 4 significant digits, or `—` when absent.

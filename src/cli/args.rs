@@ -52,6 +52,9 @@ pub struct Cli {
     /// What to do; none opens the window on the built-in demo stream.
     #[command(subcommand)]
     pub command: Option<Command>,
+    /// Window options for the demo (plain `stillpoint`).
+    #[command(flatten)]
+    pub window: WindowOptions,
 }
 
 /// The subcommands.
@@ -83,7 +86,7 @@ pub enum Command {
     )]
     Analyze(AnalyzeArgs),
     /// Write an invented detector-voltage record of a named scenario as WAV (+ truth sidecar).
-    #[command(after_long_help = EXAMPLES)]
+    #[command(long_about = synth_long_about(), after_long_help = EXAMPLES)]
     Synth(SynthArgs),
     /// Can this machine keep up with a given sample rate and segment length?
     #[command(
@@ -199,6 +202,8 @@ pub enum AveragingArg {
     Median,
     /// bin-wise maximum (transients; not a noise PSD)
     MaxHold,
+    /// running exponential average with time constant --time-constant (live watching)
+    Exponential,
 }
 
 /// Local-oscillator side of a heterodyne detection (`--lo-side`).
@@ -213,13 +218,11 @@ pub enum LoSideArg {
 /// Sample format of a synthesised WAV (`synth --format`).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
 pub enum WavFormatArg {
-    /// 16-bit integer PCM
+    /// 16-bit integer PCM, full scale ±1 V
     I16,
-    /// 24-bit integer PCM
+    /// 24-bit integer PCM, full scale ±1 V
     I24,
-    /// 32-bit integer PCM
-    I32,
-    /// 32-bit float
+    /// 32-bit float, volts as written
     F32,
 }
 
@@ -293,7 +296,39 @@ pub struct WelchArgs {
     /// How segment periodograms are combined.
     #[arg(long, value_enum, default_value = "mean", value_name = "HOW")]
     pub averaging: AveragingArg,
+
+    /// Time constant of --averaging exponential, in segments (>= 1).
+    #[arg(long, default_value_t = 16.0, value_name = "SEGMENTS", value_parser = parse_at_least_one)]
+    pub time_constant: f64,
 }
+
+/// Ids of the Welch options (to tell which ones were given on the command line).
+pub const WELCH_IDS: &[&str] = &[
+    "segment",
+    "overlap",
+    "window",
+    "detrend",
+    "averages",
+    "averaging",
+    "time_constant",
+];
+
+/// Ids of the calibration, mode and heterodyne options.
+pub const ANALYSIS_IDS: &[&str] = &[
+    "m_per_v",
+    "tone_freq",
+    "tone_rms_m",
+    "pm_depth",
+    "freq_pull",
+    "bath_temperature",
+    "mode_band",
+    "mass",
+    "carrier",
+    "lo_side",
+    "sloped_background",
+    "sideband_imbalance",
+    "imbalance_tones",
+];
 
 /// Calibration and mode options (volts → metres).
 #[derive(Debug, Clone, Default, Args)]
@@ -337,6 +372,10 @@ pub struct CalibrationArgs {
     /// Effective mass of the mode in kg (1 pg = 1e-15 kg, 1 fg = 1e-18 kg).
     #[arg(long, value_name = "KG", value_parser = parse_positive)]
     pub mass: Option<f64>,
+
+    /// Fit a linear slope of the background under the mode (default: flat background).
+    #[arg(long)]
+    pub sloped_background: bool,
 }
 
 /// Heterodyne (sideband-asymmetry) options.
@@ -351,6 +390,17 @@ pub struct HeterodyneArgs {
     /// is the optical red (Stokes) one, carrying n+1. Required with --carrier.
     #[arg(long, value_enum, value_name = "SIDE", requires = "carrier")]
     pub lo_side: Option<LoSideArg>,
+
+    /// Detection-efficiency ratio η_red/η_blue of the two sidebands (given); the ratio is
+    /// corrected as R = (A_red/A_blue)/(η_red/η_blue). Default: 1, or from --imbalance-tones.
+    #[arg(long, value_name = "RATIO", value_parser = parse_positive, requires = "carrier",
+          conflicts_with = "imbalance_tones")]
+    pub sideband_imbalance: Option<f64>,
+
+    /// Two injected tones of equal power, RED_HZ:BLUE_HZ (beside the red and the blue
+    /// line, electronic frequencies in Hz): their power ratio measures η_red/η_blue.
+    #[arg(long, value_name = "RED_HZ:BLUE_HZ", value_parser = parse_pair, requires = "carrier")]
+    pub imbalance_tones: Option<(f64, f64)>,
 }
 
 /// `stillpoint monitor`.
@@ -368,10 +418,28 @@ pub struct MonitorArgs {
     /// Heterodyne options.
     #[command(flatten)]
     pub heterodyne: HeterodyneArgs,
-    /// Playback speed of a recording relative to real time (1 = real time).
-    #[arg(long, default_value_t = 1.0, value_name = "FACTOR", value_parser = parse_positive,
-          help_heading = "Source")]
-    pub speed: f64,
+    /// Playback speed of a recording relative to real time (1 = real time; default: the
+    /// remembered speed, else 1).
+    #[arg(long, value_name = "FACTOR", value_parser = parse_positive, help_heading = "Source")]
+    pub speed: Option<f64>,
+    /// Window options.
+    #[command(flatten)]
+    pub window: WindowOptions,
+}
+
+/// Options of the window itself (also accepted by plain `stillpoint`).
+#[derive(Debug, Clone, Default, Args)]
+#[command(next_help_heading = "Window")]
+pub struct WindowOptions {
+    /// Save a PNG picture of the window to PATH after --screenshot-after seconds, then quit.
+    #[arg(long, value_name = "PATH")]
+    pub screenshot: Option<PathBuf>,
+    /// Seconds to run before --screenshot is taken.
+    #[arg(long, default_value_t = 12.0, value_name = "SECS", value_parser = parse_positive)]
+    pub screenshot_after: f64,
+    /// Start from default settings instead of the ones remembered from the last session.
+    #[arg(long)]
+    pub fresh_settings: bool,
 }
 
 /// `stillpoint spectrum`.
@@ -408,9 +476,16 @@ pub struct AnalyzeArgs {
     #[command(flatten)]
     pub heterodyne: HeterodyneArgs,
     /// Stray-peak threshold: height over the robust noise floor in dB (default 10 dB).
-    #[arg(long, value_name = "DB", value_parser = parse_positive,
-          help_heading = "Calibration and mode")]
+    #[arg(long, value_name = "DB", value_parser = parse_positive, help_heading = "Stray peaks")]
     pub peak_threshold: Option<f64>,
+    /// Known peak frequencies in Hz, comma separated: every listed peak is marked new or
+    /// known (new_since_reference).
+    #[arg(long, value_name = "HZ,HZ,...", value_delimiter = ',', value_parser = parse_positive,
+          help_heading = "Stray peaks")]
+    pub reference_peaks: Vec<f64>,
+    /// An earlier `analyze` report (JSON) whose peaks[] are the reference list.
+    #[arg(long, value_name = "OLD.json", help_heading = "Stray peaks")]
+    pub reference: Option<PathBuf>,
     /// Do not print the summary on stdout.
     #[arg(short, long)]
     pub quiet: bool,
@@ -422,24 +497,43 @@ pub struct AnalyzeArgs {
 /// `stillpoint synth`.
 #[derive(Debug, Clone, Args)]
 pub struct SynthArgs {
-    /// Scenario name (see the list in --help of this build, or an error message naming them).
+    /// Scenario name (listed in `stillpoint synth --help`).
     #[arg(value_name = "SCENARIO")]
     pub scenario: String,
     /// Seed of the random-number generator (same seed, same record).
-    #[arg(long, default_value_t = 1, value_name = "SEED")]
-    pub seed: u64,
-    /// Length of the record in seconds.
+    #[arg(long, value_name = "SEED")]
+    pub seed: Option<u64>,
+    /// Length of the record in seconds (default: the scenario's own).
     #[arg(long, value_name = "SECS", value_parser = parse_positive)]
     pub duration: Option<f64>,
-    /// Sample rate in Hz (default: the scenario's own).
+    /// Sample rate in Hz, an integer for WAV (default: the scenario's own).
     #[arg(long, value_name = "HZ", value_parser = parse_positive)]
     pub rate: Option<f64>,
-    /// WAV sample format.
-    #[arg(long, value_enum, default_value = "f32", value_name = "FORMAT")]
-    pub format: WavFormatArg,
-    /// Output WAV file; the truth sidecar is written next to it as OUT.truth.json.
+    /// WAV sample format (default: the scenario's own, i16).
+    #[arg(long, value_enum, value_name = "FORMAT")]
+    pub format: Option<WavFormatArg>,
+    /// Change one scenario parameter, e.g. `--set temperature_k=4` (repeatable; an unknown
+    /// name lists the scenario's parameters with their units).
+    #[arg(long = "set", value_name = "NAME=VALUE")]
+    pub set: Vec<String>,
+    /// Output WAV file; the truth sidecar is written next to it as OUT.truth.json. Both are
+    /// written atomically.
     #[arg(short, long, value_name = "OUT.wav")]
     pub output: PathBuf,
+}
+
+/// Long help of `synth`: the scenarios this build knows.
+pub fn synth_long_about() -> String {
+    let mut text = String::from(
+        "Writes an invented detector-voltage record of a named scenario as WAV, and beside it \
+         a .truth.json sidecar with every true value (mode frequency, linewidth, area, \
+         occupancy, calibration, lines). Nothing is real data; the same seed gives the same \
+         file.\n\nScenarios:",
+    );
+    for (name, help) in crate::synth::SCENARIO_HELP {
+        text.push_str(&format!("\n  {name:<12} {help}"));
+    }
+    text
 }
 
 /// `stillpoint bench`.
@@ -489,6 +583,16 @@ fn parse_positive(text: &str) -> Result<f64, String> {
     }
 }
 
+/// A finite number ≥ 1.
+fn parse_at_least_one(text: &str) -> Result<f64, String> {
+    let value = parse_number(text)?;
+    if value >= 1.0 {
+        Ok(value)
+    } else {
+        Err(format!("must be at least 1, got {text}"))
+    }
+}
+
 /// A finite number ≠ 0 (volts per unit may be negative: an inverting amplifier).
 fn parse_nonzero_finite(text: &str) -> Result<f64, String> {
     let value = parse_number(text)?;
@@ -509,6 +613,14 @@ fn parse_overlap(text: &str) -> Result<f64, String> {
             "overlap is a fraction with 0 <= F < 1 (0.5 = 50 %), got {text}"
         ))
     }
+}
+
+/// Two positive frequencies `A:B` in Hz.
+fn parse_pair(text: &str) -> Result<(f64, f64), String> {
+    let (a, b) = text
+        .split_once(':')
+        .ok_or_else(|| format!("expected RED_HZ:BLUE_HZ, got `{text}`"))?;
+    Ok((parse_positive(a)?, parse_positive(b)?))
 }
 
 /// A frequency band `LO:HI` in Hz with 0 ≤ LO < HI.

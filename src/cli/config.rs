@@ -8,8 +8,8 @@ use crate::report::AnalysisOptions;
 
 use super::InputError;
 use super::args::{
-    AveragingArg, CalibrationArgs, DEFAULT_SEGMENT, HeterodyneArgs, LoSideArg, MonitorArgs,
-    SourceArgs, WelchArgs,
+    AveragingArg, CalibrationArgs, DEFAULT_SEGMENT, HeterodyneArgs, LoSideArg, SourceArgs,
+    WelchArgs,
 };
 
 /// Result of a configuration check.
@@ -115,6 +115,9 @@ pub fn welch_config(
         AveragingArg::Mean => Averaging::Linear,
         AveragingArg::Median => Averaging::Median,
         AveragingArg::MaxHold => Averaging::MaxHold,
+        AveragingArg::Exponential => Averaging::Exponential {
+            time_constant_segments: args.time_constant,
+        },
     };
     config.max_averages = match args.averages {
         Some(k) => Some(
@@ -205,32 +208,10 @@ pub fn analysis_options(
         carrier_hz: heterodyne.carrier,
         lo_above: heterodyne.lo_side.map(|side| side == LoSideArg::Above),
         peak_threshold_db,
-    })
-}
-
-/// Everything the window needs from `stillpoint monitor`.
-#[derive(Debug, Clone)]
-pub struct MonitorConfig {
-    /// The source.
-    pub source: SourceConfig,
-    /// Welch options as given (the segment default depends on the stream).
-    pub welch: WelchArgs,
-    /// Calibration/mode/heterodyne options.
-    pub analysis: AnalysisOptions,
-    /// Playback speed of recordings (1 = real time).
-    pub speed: f64,
-}
-
-/// Validates the `monitor` options.
-///
-/// # Errors
-/// As [`source_config`] and [`analysis_options`].
-pub fn monitor_config(args: &MonitorArgs) -> Result<MonitorConfig> {
-    Ok(MonitorConfig {
-        source: source_config(&args.source)?,
-        welch: args.welch.clone(),
-        analysis: analysis_options(&args.calibration, &args.heterodyne, None)?,
-        speed: args.speed,
+        sideband_imbalance: heterodyne.sideband_imbalance,
+        imbalance_tones_hz: heterodyne.imbalance_tones,
+        sloped_background: calibration.sloped_background,
+        ..AnalysisOptions::default()
     })
 }
 

@@ -19,11 +19,12 @@ mod synth;
 use std::io::{self, Write};
 use std::process::ExitCode;
 
-use clap::Parser;
+use clap::{CommandFactory, FromArgMatches};
 
 use crate::acquire::AcquireError;
 use crate::dsp::DspError;
 use crate::report::AnalysisError;
+use crate::synth::SynthError;
 
 pub use args::{Cli, Command};
 
@@ -34,8 +35,11 @@ pub struct InputError(pub String);
 
 /// Entry point of the binary: parses arguments, runs, prints errors as one line.
 pub fn main() -> ExitCode {
-    let cli = match Cli::try_parse() {
-        Ok(cli) => cli,
+    let parsed = Cli::command()
+        .try_get_matches()
+        .and_then(|matches| Cli::from_arg_matches(&matches).map(|cli| (cli, matches)));
+    let (cli, matches) = match parsed {
+        Ok(parsed) => parsed,
         Err(err) => {
             // --help and --version are "errors" to clap; print them and exit 0.
             let code = if err.use_stderr() { 2 } else { 0 };
@@ -43,7 +47,7 @@ pub fn main() -> ExitCode {
             return ExitCode::from(code);
         }
     };
-    match run(cli) {
+    match run(cli, Some(&matches)) {
         Ok(code) => code,
         Err(err) => {
             if is_broken_pipe(&err) {
@@ -55,14 +59,16 @@ pub fn main() -> ExitCode {
     }
 }
 
-/// Runs one parsed command line.
+/// Runs one parsed command line; `matches` (when given) tells typed options from defaults.
 ///
 /// # Errors
 /// Everything that stops the command; [`main`] prints it and picks the exit status.
-pub fn run(cli: Cli) -> anyhow::Result<ExitCode> {
+pub fn run(cli: Cli, matches: Option<&clap::ArgMatches>) -> anyhow::Result<ExitCode> {
     match cli.command {
-        None => monitor::run_demo(),
-        Some(Command::Monitor(args)) => monitor::run(&args),
+        None => monitor::run_demo(&cli.window),
+        Some(Command::Monitor(args)) => {
+            monitor::run(&args, matches.and_then(|m| m.subcommand_matches("monitor")))
+        }
         Some(Command::Spectrum(args)) => spectrum::run(&args),
         Some(Command::Analyze(args)) => analyze::run(&args),
         Some(Command::Synth(args)) => synth::run(&args),
@@ -125,6 +131,13 @@ fn exit_status(err: &anyhow::Error) -> u8 {
             return match acq {
                 AcquireError::Io(e) => io_status(e),
                 AcquireError::Thread(_) => 1,
+                _ => 2,
+            };
+        }
+        if let Some(synth) = cause.downcast_ref::<SynthError>() {
+            return match synth {
+                SynthError::Io { source, .. } => io_status(source),
+                SynthError::Wav { .. } => 1,
                 _ => 2,
             };
         }

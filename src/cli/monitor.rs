@@ -1,11 +1,16 @@
-//! `stillpoint` (no arguments) and `stillpoint monitor SOURCE`: open the window.
-//! Without the `gui` feature these explain that the build has no window.
+//! `stillpoint` (no arguments) and `stillpoint monitor SOURCE`: open the window
+//! ([`crate::ui::run`]). Without the `gui` feature these explain that the build has no
+//! window and exit with status 2.
 
 use std::process::ExitCode;
 
 use anyhow::Result;
+use clap::ArgMatches;
+use clap::parser::ValueSource;
 
-use super::args::MonitorArgs;
+use super::args::{ANALYSIS_IDS, MonitorArgs, WELCH_IDS, WindowOptions};
+#[cfg(feature = "gui")]
+use super::args::{AveragingArg, DEFAULT_SEGMENT};
 use super::config;
 
 /// Message of a build without the window.
@@ -13,43 +18,83 @@ use super::config;
 const NO_WINDOW: &str =
     "this build has no window (built without the gui feature); use spectrum/analyze";
 
+/// True if any of `ids` was typed on the command line (not a default).
+fn any_given(matches: Option<&ArgMatches>, ids: &[&str]) -> bool {
+    matches.is_some_and(|m| {
+        ids.iter().any(|id| {
+            m.try_get_raw(id).ok().flatten().is_some()
+                && m.value_source(id) == Some(ValueSource::CommandLine)
+        })
+    })
+}
+
 /// Opens the window on the built-in demo stream.
 ///
 /// # Errors
 /// The window could not be created, or this build has none.
-pub fn run_demo() -> Result<ExitCode> {
+pub fn run_demo(window: &WindowOptions) -> Result<ExitCode> {
     #[cfg(feature = "gui")]
     {
-        // GUI CALL SITE: switch on once `crate::ui::run` lands (helper E).
-        Err(super::InputError(
-            "the window is not available in this build yet; use spectrum/analyze".into(),
-        )
-        .into())
+        let mut options = crate::ui::MonitorOptions::demo();
+        apply_window_options(&mut options, window);
+        crate::ui::run(options)?;
+        Ok(ExitCode::SUCCESS)
     }
     #[cfg(not(feature = "gui"))]
     {
+        let _ = window;
         Err(super::InputError(NO_WINDOW.into()).into())
     }
 }
 
-/// Opens the window on a source.
+/// Opens the window on a source. Options typed on the command line override the settings
+/// remembered from the last session; the others keep them.
 ///
 /// # Errors
-/// Bad options, or the window could not be created.
-pub fn run(args: &MonitorArgs) -> Result<ExitCode> {
-    let monitor = config::monitor_config(args)?;
+/// Bad options, or the window could not be created, or this build has none.
+pub fn run(args: &MonitorArgs, matches: Option<&ArgMatches>) -> Result<ExitCode> {
+    let source = config::source_config(&args.source)?;
+    let welch_given = any_given(matches, WELCH_IDS);
+    let analysis_given = any_given(matches, ANALYSIS_IDS);
+    let analysis = config::analysis_options(&args.calibration, &args.heterodyne, None)?;
     #[cfg(feature = "gui")]
     {
-        // GUI CALL SITE: switch on once `crate::ui::run` lands (helper E).
-        let _ = monitor;
-        Err(super::InputError(
-            "the window is not available in this build yet; use spectrum/analyze".into(),
-        )
-        .into())
+        let mut options = crate::ui::MonitorOptions::for_source(source);
+        if welch_given {
+            let mut welch = args.welch.clone();
+            if !any_given(matches, &["averaging"]) {
+                // Watching live: a running average, not a mean of everything since start.
+                welch.averaging = AveragingArg::Exponential;
+            }
+            let segment = welch.segment.unwrap_or(DEFAULT_SEGMENT as u64);
+            welch.segment = Some(segment);
+            // The window takes the sample rate from the source; 1 Hz only passes validation.
+            options.welch = Some(config::welch_config(&welch, 1.0, None)?);
+        }
+        if analysis_given {
+            options.analysis = Some(analysis);
+        }
+        options.speed = args.speed;
+        apply_window_options(&mut options, &args.window);
+        crate::ui::run(options)?;
+        Ok(ExitCode::SUCCESS)
     }
     #[cfg(not(feature = "gui"))]
     {
-        let _ = monitor;
+        let _ = (source, welch_given, analysis_given, analysis);
         Err(super::InputError(NO_WINDOW.into()).into())
+    }
+}
+
+/// Copies the window options into the window's start-up options.
+#[cfg(feature = "gui")]
+fn apply_window_options(options: &mut crate::ui::MonitorOptions, window: &WindowOptions) {
+    if let Some(path) = &window.screenshot {
+        options.screenshot = Some(path.clone());
+        options.screenshot_after_s = window.screenshot_after;
+        options.fresh_settings = true;
+    }
+    if window.fresh_settings {
+        options.fresh_settings = true;
     }
 }
