@@ -1,16 +1,23 @@
 //! The `analyze` report: spectrum → calibration → mode fit → quantum references → sidebands →
 //! stray peaks, as one serde structure whose dotted paths are the JSON contract of BRIEF.md.
-//! Used by `stillpoint analyze` and by the window. SKELETON: the struct is the agreed
-//! interface; [`analyze`] is being filled in.
+//! Used by `stillpoint analyze` and by the window (on every spectrum update, so it is fast:
+//! a few ms for 32 769 bins). All values are SI with unit-named keys; never NaN or Inf.
 //!
 //! A value that needs an input that was not given is `null`, and [`Report::notes`] says why.
 
 use serde::{Deserialize, Serialize};
 
 use crate::dsp::Spectrum;
+use crate::physics::calibration::{self, Calibration, CalibrationMethod, ToneOptions, ToneReading};
+use crate::physics::fit::{self, FitOptions, ModeFit};
+use crate::physics::oscillator::Oscillator;
+use crate::physics::peaks::{self, PeakOptions};
+use crate::physics::sideband::{self, SidebandOptions};
+use crate::physics::{Estimate, PhysicsError, occupancy, quantum};
 
 /// Everything `analyze` needs besides the spectrum (the calibration/mode/heterodyne options).
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
 pub struct AnalysisOptions {
     /// `--m-per-v`: a given calibration.
     pub m_per_v: Option<f64>,
@@ -34,6 +41,16 @@ pub struct AnalysisOptions {
     pub lo_above: Option<bool>,
     /// Stray-peak threshold over the floor (dB); default 10 dB when `None`.
     pub peak_threshold_db: Option<f64>,
+    /// Heterodyne detection-efficiency ratio η_red/η_blue (given), applied as
+    /// R = (A_red/A_blue)/(η_red/η_blue).
+    pub sideband_imbalance: Option<f64>,
+    /// Two injected tones of equal power (Hz), (beside the red line, beside the blue line):
+    /// their power ratio measures η_red/η_blue (used when `sideband_imbalance` is not given).
+    pub imbalance_tones_hz: Option<(f64, f64)>,
+    /// Peak frequencies (Hz) of a reference snapshot: peaks are marked new or known.
+    pub reference_peaks_hz: Vec<f64>,
+    /// Fit a linear slope of the background under the mode.
+    pub sloped_background: bool,
 }
 
 /// Welch settings as reported.
@@ -74,6 +91,14 @@ pub struct CalibrationReport {
     pub tone_power_v2: Option<f64>,
     /// Vacuum coupling rate g₀/2π (Hz) when computable (tone + pull + mode + temperature).
     pub g0_hz: Option<f64>,
+    /// 1σ of `g0_hz`.
+    pub g0_hz_uncertainty: Option<f64>,
+    /// 1σ of `tone_power_v2` (statistical).
+    pub tone_power_v2_uncertainty: Option<f64>,
+    /// Equivalent rms displacement of the tone (m).
+    pub tone_rms_m: Option<f64>,
+    /// Local floor under the tone, V²/Hz.
+    pub tone_floor_psd_v2_per_hz: Option<f64>,
 }
 
 /// A value with its 1σ uncertainty, flattened as `name` and `name_uncertainty` by the
@@ -116,6 +141,16 @@ pub struct ModeReport {
     pub fit_band_hz: Option<(f64, f64)>,
     /// Reduced χ² of the fit.
     pub reduced_chi2: Option<f64>,
+    /// Energy damping rate Γ_m = 2πγ (rad/s).
+    pub damping_rad_s: Option<f64>,
+    /// Line shape fitted (`oscillator` or `lorentzian`).
+    pub line_shape: Option<String>,
+    /// True when γ < 5·ENBW: linewidth and peak are broadened by the resolution.
+    pub resolution_limited: Option<bool>,
+    /// √(1 + 2Σρ_bin) applied to the 1σ values for the window's bin correlation.
+    pub error_inflation: Option<f64>,
+    /// Bins used in the fit.
+    pub bins: Option<usize>,
 }
 
 /// Quantum references for the fitted mode.
@@ -135,6 +170,10 @@ pub struct QuantumReport {
     pub zero_point_peak_psd_m2_per_hz: Option<f64>,
     /// SQL of the added noise on resonance 2ħ|χ(Ω_m)|, m²/Hz.
     pub sql_psd_at_resonance_m2_per_hz: Option<f64>,
+    /// Bose–Einstein occupancy of the bath at `--bath-temperature`.
+    pub bath_occupancy: Option<f64>,
+    /// Classical thermal peak 4k_BTQ/(mΩ_m³) at the bath temperature, m²/Hz.
+    pub thermal_peak_psd_at_bath_m2_per_hz: Option<f64>,
 }
 
 /// One fitted motional sideband.
@@ -146,6 +185,8 @@ pub struct SidebandLine {
     pub area_v2: Option<f64>,
     /// 1σ.
     pub area_v2_uncertainty: Option<f64>,
+    /// Local background under the line, V²/Hz.
+    pub background_psd_v2_per_hz: Option<f64>,
 }
 
 /// Sideband-asymmetry thermometry.
@@ -171,6 +212,12 @@ pub struct SidebandReport {
     pub imbalance_correction: Option<f64>,
     /// Which side the LO is on, and which electronic line was taken as red.
     pub convention: Option<String>,
+    /// 1σ of the linewidth.
+    pub linewidth_hz_uncertainty: Option<f64>,
+    /// 1σ of the mechanical frequency.
+    pub mechanical_frequency_hz_uncertainty: Option<f64>,
+    /// 1σ of the imbalance correction.
+    pub imbalance_correction_uncertainty: Option<f64>,
 }
 
 /// One stray resonance.
@@ -223,11 +270,13 @@ pub enum AnalysisError {
 ///
 /// # Errors
 /// [`AnalysisError::Input`] for impossible inputs (negative mass or temperature, a band
-/// outside the spectrum, a tone outside the spectrum, `--carrier` without `--lo-side`).
+/// outside the spectrum or LO ≥ HI, a tone outside the spectrum, `--carrier` without
+/// `--lo-side`, a tone without its amplitude options).
 /// A mode that is simply not found is *not* an error: its keys are null with a note.
 pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report, AnalysisError> {
-    let _ = options;
-    Ok(Report {
+    validate(spectrum, options)?;
+
+    let mut report = Report {
         generator: format!("stillpoint {}", env!("CARGO_PKG_VERSION")),
         welch: WelchReport {
             segment: spectrum.segment,
@@ -241,5 +290,838 @@ pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report,
             k_eff: spectrum.k_eff,
         },
         ..Report::default()
-    })
+    };
+    let notes = &mut report.notes;
+    let tone_exclusion = options.tone_frequency_hz.map(|f| {
+        let half = (spectrum.window.tone_half_width_bins() + 2) as f64 * spectrum.resolution_hz;
+        (
+            f - half - 5.0 * spectrum.resolution_hz,
+            f + half + 5.0 * spectrum.resolution_hz,
+        )
+    });
+    let heterodyne = options.carrier_hz.is_some();
+
+    // --- Mode fit (direct detection) ---
+    let mut mode_fit: Option<ModeFit> = None;
+    if let (Some(band), false) = (options.mode_band_hz, heterodyne) {
+        let fit_options = FitOptions {
+            sloped_background: options.sloped_background,
+            exclude_hz: tone_exclusion.into_iter().collect(),
+            ..FitOptions::default()
+        };
+        match fit::fit_mode_with(spectrum, band, &fit_options) {
+            Ok(f) => mode_fit = Some(f),
+            Err(PhysicsError::Input(m)) => return Err(AnalysisError::Input(m)),
+            Err(e) => notes.push(format!("mode: {e}; mode keys are null")),
+        }
+    } else if !heterodyne {
+        notes.push("mode: no --mode-band given; mode and quantum keys are null".into());
+    }
+
+    // --- Calibration ---
+    let mut cal: Option<Calibration> = None;
+    let mut tone_reading: Option<ToneReading> = None;
+    if let Some(c) = options.m_per_v {
+        cal = Some(calibration::given(c).map_err(input)?);
+        if options.tone_frequency_hz.is_some() || options.bath_temperature_k.is_some() {
+            notes.push("calibration: --m-per-v given; the tone/equipartition calibration was not used for m/V".into());
+        }
+    }
+    if let Some(f_tone) = options.tone_frequency_hz {
+        let baseline = mode_fit.clone();
+        let line = move |f: f64| baseline.as_ref().map_or(0.0, |m| m.line_psd_at(f));
+        match calibration::read_tone(spectrum, f_tone, &ToneOptions::default(), Some(&line)) {
+            Ok(r) => tone_reading = Some(r),
+            Err(PhysicsError::Input(m)) => return Err(AnalysisError::Input(m)),
+            Err(e) => notes.push(format!("calibration: {e}")),
+        }
+    }
+    let tone_rms = tone_rms_m(options)?;
+    if let (Some(r), Some(x)) = (&tone_reading, tone_rms) {
+        report.calibration.tone_rms_m = Some(x);
+        if cal.is_none() {
+            cal = Some(calibration::from_tone(r, x).map_err(input)?);
+        }
+    }
+    if let Some(t) = options.bath_temperature_k {
+        match (&mode_fit, options.mass_kg) {
+            (Some(m), Some(mass)) if cal.is_none() => {
+                cal = Some(
+                    calibration::equipartition(m.area, m.frequency_hz.value, mass, t)
+                        .map_err(input)?,
+                );
+                notes.push("calibration: equipartition assumes the mode is thermalised to the bath (no optical or feedback heating/cooling), a linear flat transduction across the peak and an isolated peak; the occupancy then equals the bath occupancy by construction".into());
+            }
+            (None, _) if cal.is_none() => {
+                notes.push("calibration: equipartition needs a fitted mode (--mode-band)".into())
+            }
+            (_, None) if cal.is_none() => {
+                notes.push("calibration: equipartition needs --mass".into());
+            }
+            _ => {}
+        }
+    }
+    if cal.is_none() {
+        notes.push("calibration: none (give --m-per-v, a tone, or --bath-temperature with --mass); calibrated keys are null".into());
+    }
+    if let Some(r) = &tone_reading {
+        report.calibration.tone_frequency_hz = Some(r.frequency_hz);
+        report.calibration.tone_power_v2 = Some(r.power.value);
+        report.calibration.tone_power_v2_uncertainty = Some(r.power.sigma);
+        report.calibration.tone_floor_psd_v2_per_hz = Some(r.floor_psd);
+    }
+    if let Some(c) = &cal {
+        report.calibration.method = Some(c.method.name().to_string());
+        report.calibration.m_per_v = Some(c.m_per_v.value);
+        report.calibration.m_per_v_uncertainty = Some(c.m_per_v.sigma);
+    }
+    // g₀ from a phase-modulation tone, the mode area and the bath temperature [G10].
+    if let (Some(beta), Some(r), Some(m), Some(t)) = (
+        options.pm_depth_rad,
+        &tone_reading,
+        &mode_fit,
+        options.bath_temperature_k,
+    ) {
+        if let Ok(g) = calibration::g0_hz_at_temperature(
+            beta,
+            r.frequency_hz,
+            m.area,
+            r.power,
+            m.frequency_hz.value,
+            t,
+        ) {
+            report.calibration.g0_hz = Some(g.value);
+            report.calibration.g0_hz_uncertainty = Some(g.sigma);
+            notes.push("calibration: g0 assumes the mode is thermalised at --bath-temperature and equal transduction at the tone and the mode".into());
+        }
+    } else if options.pm_depth_rad.is_some() {
+        notes.push("calibration: g0 needs a PM tone, a fitted mode and --bath-temperature".into());
+    }
+
+    // --- Mode report ---
+    if let Some(m) = &mode_fit {
+        fill_mode(&mut report.mode, m, cal.as_ref());
+        if m.resolution_limited {
+            report.notes.push(format!(
+                "mode: linewidth {:.4} Hz is below 5·ENBW = {:.4} Hz; linewidth and peak are broadened by the resolution (the area is not)",
+                m.linewidth_hz.value,
+                5.0 * spectrum.enbw_hz
+            ));
+        }
+    }
+
+    // --- Quantum references ---
+    fill_quantum(&mut report, mode_fit.as_ref(), cal.as_ref(), options);
+
+    // --- Sidebands ---
+    if let (Some(fc), Some(above)) = (options.carrier_hz, options.lo_above) {
+        report.sidebands = Some(sidebands(spectrum, options, fc, above, &mut report)?);
+    }
+
+    // --- Stray peaks ---
+    let mut exclude: Vec<(f64, f64)> = tone_exclusion.into_iter().collect();
+    if let Some(band) = options.mode_band_hz {
+        if let Some(fc) = options.carrier_hz {
+            exclude.push((fc + band.0, fc + band.1));
+            exclude.push((fc - band.1, fc - band.0));
+            let half = (spectrum.window.tone_half_width_bins() + 3) as f64 * spectrum.resolution_hz;
+            exclude.push((fc - half, fc + half));
+        } else {
+            exclude.push(band);
+        }
+    }
+    if let Some((a, b)) = options.imbalance_tones_hz {
+        let half = (spectrum.window.tone_half_width_bins() + 3) as f64 * spectrum.resolution_hz;
+        exclude.push((a - half, a + half));
+        exclude.push((b - half, b + half));
+    }
+    let peak_options = PeakOptions {
+        threshold_db: options.peak_threshold_db.unwrap_or(10.0),
+        exclude_hz: exclude,
+        reference_hz: options.reference_peaks_hz.clone(),
+        ..PeakOptions::default()
+    };
+    report.peaks = peaks::find_peaks(spectrum, &peak_options)
+        .into_iter()
+        .map(|p| PeakReport {
+            frequency_hz: p.frequency_hz,
+            height_over_floor_db: p.height_over_floor_db,
+            linewidth_hz: p.linewidth_hz,
+            new_since_reference: p.new_since_reference,
+        })
+        .collect();
+
+    sanitize(&mut report);
+    Ok(report)
+}
+
+fn input(e: PhysicsError) -> AnalysisError {
+    AnalysisError::Input(e.to_string())
+}
+
+fn positive(name: &str, v: Option<f64>) -> Result<(), AnalysisError> {
+    match v {
+        Some(x) if !(x.is_finite() && x > 0.0) => Err(AnalysisError::Input(format!(
+            "{name} must be a positive finite number, got {x}"
+        ))),
+        _ => Ok(()),
+    }
+}
+
+fn validate(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<(), AnalysisError> {
+    let usable = spectrum.len() >= 2
+        && spectrum.resolution_hz.is_finite()
+        && spectrum.resolution_hz > 0.0
+        && spectrum.enbw_hz.is_finite()
+        && spectrum.k_eff.is_finite();
+    if !usable {
+        return Err(AnalysisError::Input(
+            "the spectrum is empty or its resolution is not a positive number".into(),
+        ));
+    }
+    positive("--mass (kg)", options.mass_kg)?;
+    positive("--bath-temperature (K)", options.bath_temperature_k)?;
+    positive("--m-per-v", options.m_per_v)?;
+    positive("--tone-rms-m", options.tone_rms_m)?;
+    positive("--pm-depth (rad)", options.pm_depth_rad)?;
+    positive("sideband imbalance", options.sideband_imbalance)?;
+    if let Some(g) = options.freq_pull_hz_per_m
+        && !(g.is_finite() && g != 0.0)
+    {
+        return Err(AnalysisError::Input(format!(
+            "--freq-pull must be a non-zero finite number of Hz/m, got {g}"
+        )));
+    }
+    if let Some(t) = options.peak_threshold_db
+        && !t.is_finite()
+    {
+        return Err(AnalysisError::Input(format!(
+            "peak threshold must be finite, got {t}"
+        )));
+    }
+    let nyquist = spectrum.resolution_hz * (spectrum.len() - 1) as f64;
+    if let Some(f) = options.tone_frequency_hz
+        && !(f.is_finite() && f > 0.0 && f <= nyquist)
+    {
+        return Err(AnalysisError::Input(format!(
+            "--tone-freq {f} Hz lies outside the spectrum (0 to {nyquist} Hz)"
+        )));
+    }
+    if options.tone_frequency_hz.is_some()
+        && options.tone_rms_m.is_none()
+        && (options.pm_depth_rad.is_none() || options.freq_pull_hz_per_m.is_none())
+    {
+        return Err(AnalysisError::Input(
+            "--tone-freq needs --tone-rms-m, or --pm-depth with --freq-pull".into(),
+        ));
+    }
+    if (options.tone_rms_m.is_some() || options.pm_depth_rad.is_some())
+        && options.tone_frequency_hz.is_none()
+    {
+        return Err(AnalysisError::Input(
+            "--tone-rms-m / --pm-depth need --tone-freq".into(),
+        ));
+    }
+    if options.pm_depth_rad.is_some() != options.freq_pull_hz_per_m.is_some() {
+        return Err(AnalysisError::Input(
+            "--pm-depth and --freq-pull go together".into(),
+        ));
+    }
+    if let Some(fc) = options.carrier_hz {
+        if options.lo_above.is_none() {
+            return Err(AnalysisError::Input(
+                "--carrier needs --lo-side above|below".into(),
+            ));
+        }
+        if !(fc.is_finite() && fc > 0.0 && fc < nyquist) {
+            return Err(AnalysisError::Input(format!(
+                "--carrier {fc} Hz lies outside the spectrum (0 to {nyquist} Hz)"
+            )));
+        }
+        if options.mode_band_hz.is_none() {
+            return Err(AnalysisError::Input(
+                "--carrier needs --mode-band LO:HI (the band of f_m, offsets from the carrier)"
+                    .into(),
+            ));
+        }
+    } else if options.lo_above.is_some() {
+        // Harmless, but say nothing: --lo-side alone has no effect.
+    }
+    if let Some((lo, hi)) = options.mode_band_hz {
+        if !(lo.is_finite() && hi.is_finite() && lo < hi) {
+            return Err(AnalysisError::Input(format!(
+                "--mode-band must be LO:HI with LO < HI, got {lo}:{hi}"
+            )));
+        }
+        if options.carrier_hz.is_none() {
+            fit::band_bins(spectrum, (lo, hi), "--mode-band").map_err(input)?;
+        }
+    }
+    Ok(())
+}
+
+/// The tone's equivalent rms displacement from `--tone-rms-m` or the PM options.
+fn tone_rms_m(options: &AnalysisOptions) -> Result<Option<f64>, AnalysisError> {
+    if let Some(x) = options.tone_rms_m {
+        return Ok(Some(x));
+    }
+    match (
+        options.tone_frequency_hz,
+        options.pm_depth_rad,
+        options.freq_pull_hz_per_m,
+    ) {
+        (Some(f), Some(b), Some(g)) => calibration::pm_tone_rms_m(b, f, g).map(Some).map_err(input),
+        _ => Ok(None),
+    }
+}
+
+/// value·k with σ combining the value's σ and the factor's relative σ.
+fn times(x: Estimate, k: Estimate) -> Estimate {
+    let v = x.value * k.value;
+    let rel = (x.relative().powi(2) + k.relative().powi(2)).sqrt();
+    Estimate::new(v, if v == 0.0 { 0.0 } else { v.abs() * rel })
+}
+
+fn fill_mode(r: &mut ModeReport, m: &ModeFit, cal: Option<&Calibration>) {
+    r.frequency_hz = Some(m.frequency_hz.value);
+    r.frequency_hz_uncertainty = Some(m.frequency_hz.sigma);
+    r.linewidth_hz = Some(m.linewidth_hz.value);
+    r.linewidth_hz_uncertainty = Some(m.linewidth_hz.sigma);
+    r.quality_factor = Some(m.quality_factor.value);
+    r.quality_factor_uncertainty = Some(m.quality_factor.sigma);
+    r.variance_v2 = Some(m.area.value);
+    r.variance_v2_uncertainty = Some(m.area.sigma);
+    r.peak_psd_v2_per_hz = Some(m.peak_psd.value);
+    r.background_psd_v2_per_hz = Some(m.background_psd.value);
+    r.fit_band_hz = Some(m.band_hz);
+    r.reduced_chi2 = Some(m.reduced_chi2);
+    r.damping_rad_s = Some(m.damping_rad_s().value);
+    r.line_shape = Some(
+        match m.line_shape {
+            fit::LineShape::Oscillator => "oscillator",
+            fit::LineShape::Lorentzian => "lorentzian",
+        }
+        .to_string(),
+    );
+    r.resolution_limited = Some(m.resolution_limited);
+    r.error_inflation = Some(m.error_inflation);
+    r.bins = Some(m.bins);
+    if let Some(c) = cal {
+        let c2 = c.m2_per_v2();
+        let var = if c.method == CalibrationMethod::Equipartition {
+            // ⟨x²⟩ = c² A_V is the bath value by construction (T and m taken as exact).
+            Estimate::new(c2.value * m.area.value, 0.0)
+        } else {
+            times(m.area, c2)
+        };
+        let peak = times(m.peak_psd, c2);
+        let bg = times(m.background_psd, c2);
+        r.variance_m2 = Some(var.value);
+        r.variance_m2_uncertainty = Some(var.sigma);
+        r.peak_psd_m2_per_hz = Some(peak.value);
+        r.peak_psd_m2_per_hz_uncertainty = Some(peak.sigma);
+        r.background_psd_m2_per_hz = Some(bg.value);
+        r.background_psd_m2_per_hz_uncertainty = Some(bg.sigma);
+    }
+}
+
+fn fill_quantum(
+    report: &mut Report,
+    mode: Option<&ModeFit>,
+    cal: Option<&Calibration>,
+    options: &AnalysisOptions,
+) {
+    let heterodyne = options.carrier_hz.is_some();
+    let Some(mass) = options.mass_kg else {
+        report
+            .notes
+            .push("quantum: needs --mass (effective mass, kg); quantum keys are null".into());
+        return;
+    };
+    let (f_m, gamma) = match mode {
+        Some(m) => (m.frequency_hz.value, m.linewidth_hz.value),
+        None if heterodyne => return, // filled from the sideband fit
+        None => {
+            report
+                .notes
+                .push("quantum: needs a fitted mode; quantum keys are null".into());
+            return;
+        }
+    };
+    fill_quantum_levels(
+        &mut report.quantum,
+        mass,
+        f_m,
+        gamma,
+        options.bath_temperature_k,
+    );
+    let Some(m) = mode else { return };
+    let Some(c) = cal else {
+        report.notes.push(
+            "quantum: occupancy needs a calibration; occupancy and effective temperature are null"
+                .into(),
+        );
+        return;
+    };
+    let Ok(osc) = Oscillator::new(mass, f_m, gamma) else {
+        return;
+    };
+    let c2 = c.m2_per_v2();
+    let var = if c.method == CalibrationMethod::Equipartition {
+        Estimate::new(c2.value * m.area.value, 0.0)
+    } else {
+        times(m.area, c2)
+    };
+    let n = occupancy::occupancy_from_variance(var, osc.x_zpf_m());
+    report.quantum.occupancy = Some(n.value);
+    report.quantum.occupancy_uncertainty = Some(n.sigma);
+    match occupancy::effective_temperature(f_m, n) {
+        Some(t) => {
+            report.quantum.effective_temperature_k = Some(t.value);
+            report.quantum.effective_temperature_k_uncertainty = Some(t.sigma);
+        }
+        None => report.notes.push(format!(
+            "quantum: occupancy {:.3} ≤ 0 (area below the zero-point level): no effective temperature",
+            n.value
+        )),
+    }
+}
+
+fn fill_quantum_levels(
+    q: &mut QuantumReport,
+    mass: f64,
+    f_m: f64,
+    gamma: f64,
+    bath_k: Option<f64>,
+) {
+    let Ok(osc) = Oscillator::new(mass, f_m, gamma) else {
+        return;
+    };
+    q.x_zpf_m = Some(osc.x_zpf_m());
+    q.zero_point_peak_psd_m2_per_hz = Some(quantum::zero_point_peak_psd(&osc));
+    q.sql_psd_at_resonance_m2_per_hz = Some(quantum::sql_psd_at_resonance(&osc));
+    if let Some(t) = bath_k {
+        q.bath_occupancy = Some(occupancy::bose_einstein(f_m, t));
+        q.thermal_peak_psd_at_bath_m2_per_hz = Some(quantum::thermal_peak_psd(&osc, t));
+    }
+}
+
+fn sidebands(
+    spectrum: &Spectrum,
+    options: &AnalysisOptions,
+    carrier_hz: f64,
+    lo_above: bool,
+    report: &mut Report,
+) -> Result<SidebandReport, AnalysisError> {
+    let band = options.mode_band_hz.unwrap_or((0.0, 0.0));
+    let imbalance = if let Some(v) = options.sideband_imbalance {
+        Estimate::new(v, 0.0)
+    } else if let Some((red_tone, blue_tone)) = options.imbalance_tones_hz {
+        match sideband::imbalance_from_tones(spectrum, red_tone, blue_tone) {
+            Ok(e) => e,
+            Err(PhysicsError::Input(m)) => return Err(AnalysisError::Input(m)),
+            Err(e) => {
+                report.notes.push(format!(
+                    "sidebands: imbalance tones not read ({e}); no correction"
+                ));
+                Estimate::new(1.0, 0.0)
+            }
+        }
+    } else {
+        report.notes.push(
+            "sidebands: no imbalance correction given; equal detection efficiency of the two sidebands assumed".into(),
+        );
+        Estimate::new(1.0, 0.0)
+    };
+    let opts = SidebandOptions {
+        carrier_hz,
+        band_hz: band,
+        lo_above,
+        imbalance,
+    };
+    let mut out = SidebandReport {
+        imbalance_correction: Some(1.0 / imbalance.value),
+        imbalance_correction_uncertainty: Some(
+            imbalance.sigma / (imbalance.value * imbalance.value),
+        ),
+        ..SidebandReport::default()
+    };
+    match sideband::fit_sidebands(spectrum, &opts) {
+        Ok(f) => {
+            let line = |l: &sideband::SidebandLineFit| SidebandLine {
+                frequency_hz: Some(l.frequency_hz.value),
+                area_v2: Some(l.area.value),
+                area_v2_uncertainty: Some(l.area.sigma),
+                background_psd_v2_per_hz: Some(l.background_psd.value),
+            };
+            out.red = line(&f.red);
+            out.blue = line(&f.blue);
+            out.ratio = Some(f.ratio.value);
+            out.ratio_uncertainty = Some(f.ratio.sigma);
+            out.occupancy = f.occupancy.map(|n| n.value);
+            out.occupancy_uncertainty = f.occupancy.map(|n| n.sigma);
+            out.linewidth_hz = Some(f.linewidth_hz.value);
+            out.linewidth_hz_uncertainty = Some(f.linewidth_hz.sigma);
+            out.mechanical_frequency_hz = Some(f.mechanical_frequency_hz.value);
+            out.mechanical_frequency_hz_uncertainty = Some(f.mechanical_frequency_hz.sigma);
+            out.convention = Some(f.convention.clone());
+            report.notes.extend(f.notes.iter().cloned());
+            // The mode seen through its sidebands: frequency and linewidth.
+            let fm = f.mechanical_frequency_hz;
+            let g = f.linewidth_hz;
+            report.mode.frequency_hz = Some(fm.value);
+            report.mode.frequency_hz_uncertainty = Some(fm.sigma);
+            report.mode.linewidth_hz = Some(g.value);
+            report.mode.linewidth_hz_uncertainty = Some(g.sigma);
+            let q = fm.value / g.value;
+            report.mode.quality_factor = Some(q);
+            report.mode.quality_factor_uncertainty =
+                Some(q * (fm.relative().powi(2) + g.relative().powi(2)).sqrt());
+            report.mode.line_shape = Some("lorentzian".into());
+            report.notes.push("mode: heterodyne record: frequency and linewidth from the sideband pair; areas are per sideband (sidebands.*)".into());
+            if let Some(mass) = options.mass_kg {
+                fill_quantum_levels(
+                    &mut report.quantum,
+                    mass,
+                    fm.value,
+                    g.value,
+                    options.bath_temperature_k,
+                );
+                report.notes.push("quantum: heterodyne record: occupancy from the sideband ratio (sidebands.occupancy), not from a calibrated area".into());
+            }
+        }
+        Err(PhysicsError::Input(m)) => return Err(AnalysisError::Input(m)),
+        Err(e) => report
+            .notes
+            .push(format!("sidebands: {e}; sideband keys are null")),
+    }
+    if out.convention.is_none() {
+        out.convention = Some(if lo_above {
+            "LO above the laser: red (Stokes, n+1) = f_IF + f_m".to_string()
+        } else {
+            "LO below the laser: red (Stokes, n+1) = f_IF − f_m".to_string()
+        });
+    }
+    Ok(out)
+}
+
+/// Replaces every non-finite number by null (with a note) so the JSON never holds NaN/Inf.
+fn sanitize(report: &mut Report) {
+    let mut bad: Vec<&'static str> = Vec::new();
+    fn fix(bad: &mut Vec<&'static str>, name: &'static str, v: &mut Option<f64>) {
+        if v.is_some_and(|x| !x.is_finite()) {
+            *v = None;
+            bad.push(name);
+        }
+    }
+    let c = &mut report.calibration;
+    fix(&mut bad, "calibration.m_per_v", &mut c.m_per_v);
+    fix(
+        &mut bad,
+        "calibration.m_per_v_uncertainty",
+        &mut c.m_per_v_uncertainty,
+    );
+    fix(
+        &mut bad,
+        "calibration.tone_frequency_hz",
+        &mut c.tone_frequency_hz,
+    );
+    fix(&mut bad, "calibration.tone_power_v2", &mut c.tone_power_v2);
+    fix(
+        &mut bad,
+        "calibration.tone_power_v2_uncertainty",
+        &mut c.tone_power_v2_uncertainty,
+    );
+    fix(&mut bad, "calibration.tone_rms_m", &mut c.tone_rms_m);
+    fix(
+        &mut bad,
+        "calibration.tone_floor_psd_v2_per_hz",
+        &mut c.tone_floor_psd_v2_per_hz,
+    );
+    fix(&mut bad, "calibration.g0_hz", &mut c.g0_hz);
+    fix(
+        &mut bad,
+        "calibration.g0_hz_uncertainty",
+        &mut c.g0_hz_uncertainty,
+    );
+    let m = &mut report.mode;
+    fix(&mut bad, "mode.frequency_hz", &mut m.frequency_hz);
+    fix(
+        &mut bad,
+        "mode.frequency_hz_uncertainty",
+        &mut m.frequency_hz_uncertainty,
+    );
+    fix(&mut bad, "mode.linewidth_hz", &mut m.linewidth_hz);
+    fix(
+        &mut bad,
+        "mode.linewidth_hz_uncertainty",
+        &mut m.linewidth_hz_uncertainty,
+    );
+    fix(&mut bad, "mode.quality_factor", &mut m.quality_factor);
+    fix(
+        &mut bad,
+        "mode.quality_factor_uncertainty",
+        &mut m.quality_factor_uncertainty,
+    );
+    fix(&mut bad, "mode.variance_m2", &mut m.variance_m2);
+    fix(
+        &mut bad,
+        "mode.variance_m2_uncertainty",
+        &mut m.variance_m2_uncertainty,
+    );
+    fix(
+        &mut bad,
+        "mode.peak_psd_m2_per_hz",
+        &mut m.peak_psd_m2_per_hz,
+    );
+    fix(
+        &mut bad,
+        "mode.peak_psd_m2_per_hz_uncertainty",
+        &mut m.peak_psd_m2_per_hz_uncertainty,
+    );
+    fix(
+        &mut bad,
+        "mode.background_psd_m2_per_hz",
+        &mut m.background_psd_m2_per_hz,
+    );
+    fix(
+        &mut bad,
+        "mode.background_psd_m2_per_hz_uncertainty",
+        &mut m.background_psd_m2_per_hz_uncertainty,
+    );
+    fix(&mut bad, "mode.variance_v2", &mut m.variance_v2);
+    fix(
+        &mut bad,
+        "mode.variance_v2_uncertainty",
+        &mut m.variance_v2_uncertainty,
+    );
+    fix(
+        &mut bad,
+        "mode.peak_psd_v2_per_hz",
+        &mut m.peak_psd_v2_per_hz,
+    );
+    fix(
+        &mut bad,
+        "mode.background_psd_v2_per_hz",
+        &mut m.background_psd_v2_per_hz,
+    );
+    fix(&mut bad, "mode.reduced_chi2", &mut m.reduced_chi2);
+    fix(&mut bad, "mode.damping_rad_s", &mut m.damping_rad_s);
+    fix(&mut bad, "mode.error_inflation", &mut m.error_inflation);
+    if m.fit_band_hz
+        .is_some_and(|(a, b)| !(a.is_finite() && b.is_finite()))
+    {
+        m.fit_band_hz = None;
+        bad.push("mode.fit_band_hz");
+    }
+    let q = &mut report.quantum;
+    fix(&mut bad, "quantum.x_zpf_m", &mut q.x_zpf_m);
+    fix(&mut bad, "quantum.occupancy", &mut q.occupancy);
+    fix(
+        &mut bad,
+        "quantum.occupancy_uncertainty",
+        &mut q.occupancy_uncertainty,
+    );
+    fix(
+        &mut bad,
+        "quantum.effective_temperature_k",
+        &mut q.effective_temperature_k,
+    );
+    fix(
+        &mut bad,
+        "quantum.effective_temperature_k_uncertainty",
+        &mut q.effective_temperature_k_uncertainty,
+    );
+    fix(
+        &mut bad,
+        "quantum.zero_point_peak_psd_m2_per_hz",
+        &mut q.zero_point_peak_psd_m2_per_hz,
+    );
+    fix(
+        &mut bad,
+        "quantum.sql_psd_at_resonance_m2_per_hz",
+        &mut q.sql_psd_at_resonance_m2_per_hz,
+    );
+    fix(&mut bad, "quantum.bath_occupancy", &mut q.bath_occupancy);
+    fix(
+        &mut bad,
+        "quantum.thermal_peak_psd_at_bath_m2_per_hz",
+        &mut q.thermal_peak_psd_at_bath_m2_per_hz,
+    );
+    if let Some(s) = &mut report.sidebands {
+        for (prefix, l) in [("red", &mut s.red), ("blue", &mut s.blue)] {
+            let _ = prefix;
+            fix(&mut bad, "sidebands.line.frequency_hz", &mut l.frequency_hz);
+            fix(&mut bad, "sidebands.line.area_v2", &mut l.area_v2);
+            fix(
+                &mut bad,
+                "sidebands.line.area_v2_uncertainty",
+                &mut l.area_v2_uncertainty,
+            );
+            fix(
+                &mut bad,
+                "sidebands.line.background_psd_v2_per_hz",
+                &mut l.background_psd_v2_per_hz,
+            );
+        }
+        fix(&mut bad, "sidebands.ratio", &mut s.ratio);
+        fix(
+            &mut bad,
+            "sidebands.ratio_uncertainty",
+            &mut s.ratio_uncertainty,
+        );
+        fix(&mut bad, "sidebands.occupancy", &mut s.occupancy);
+        fix(
+            &mut bad,
+            "sidebands.occupancy_uncertainty",
+            &mut s.occupancy_uncertainty,
+        );
+        fix(&mut bad, "sidebands.linewidth_hz", &mut s.linewidth_hz);
+        fix(
+            &mut bad,
+            "sidebands.linewidth_hz_uncertainty",
+            &mut s.linewidth_hz_uncertainty,
+        );
+        fix(
+            &mut bad,
+            "sidebands.mechanical_frequency_hz",
+            &mut s.mechanical_frequency_hz,
+        );
+        fix(
+            &mut bad,
+            "sidebands.mechanical_frequency_hz_uncertainty",
+            &mut s.mechanical_frequency_hz_uncertainty,
+        );
+        fix(
+            &mut bad,
+            "sidebands.imbalance_correction",
+            &mut s.imbalance_correction,
+        );
+        fix(
+            &mut bad,
+            "sidebands.imbalance_correction_uncertainty",
+            &mut s.imbalance_correction_uncertainty,
+        );
+    }
+    let before = report.peaks.len();
+    report.peaks.retain(|p| {
+        p.frequency_hz.is_finite()
+            && p.height_over_floor_db.is_finite()
+            && p.linewidth_hz.is_finite()
+    });
+    if report.peaks.len() != before {
+        bad.push("peaks[]");
+    }
+    let w = &mut report.welch;
+    for (name, v) in [
+        ("welch.overlap", &mut w.overlap),
+        ("welch.resolution_hz", &mut w.resolution_hz),
+        ("welch.enbw_hz", &mut w.enbw_hz),
+        ("welch.sample_rate_hz", &mut w.sample_rate_hz),
+        ("welch.k_eff", &mut w.k_eff),
+    ] {
+        if !v.is_finite() {
+            *v = 0.0;
+            bad.push(name);
+        }
+    }
+    for name in bad {
+        report.notes.push(format!(
+            "{name}: the computed value was not finite and was dropped"
+        ));
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::dsp::{Averaging, Detrend, WindowKind};
+
+    fn flat(n: usize) -> Spectrum {
+        Spectrum {
+            sample_rate_hz: 1000.0,
+            segment: 2 * (n - 1),
+            overlap: 0.5,
+            window: WindowKind::Hann,
+            detrend: Detrend::Mean,
+            averaging: Averaging::Linear,
+            averages: 10,
+            k_eff: 9.5,
+            resolution_hz: 1000.0 / (2 * (n - 1)) as f64,
+            enbw_hz: 1.5 * 1000.0 / (2 * (n - 1)) as f64,
+            psd_v2_per_hz: vec![1e-6; n],
+        }
+    }
+
+    #[test]
+    fn impossible_inputs_are_refused() {
+        let s = flat(513);
+        let bad = [
+            AnalysisOptions {
+                mass_kg: Some(-1.0),
+                ..Default::default()
+            },
+            AnalysisOptions {
+                bath_temperature_k: Some(0.0),
+                ..Default::default()
+            },
+            AnalysisOptions {
+                mode_band_hz: Some((100.0, 50.0)),
+                ..Default::default()
+            },
+            AnalysisOptions {
+                mode_band_hz: Some((100.0, 900.0)),
+                ..Default::default()
+            },
+            AnalysisOptions {
+                tone_frequency_hz: Some(700.0),
+                tone_rms_m: Some(1e-12),
+                ..Default::default()
+            },
+            AnalysisOptions {
+                carrier_hz: Some(200.0),
+                mode_band_hz: Some((10.0, 20.0)),
+                ..Default::default()
+            },
+        ];
+        for o in bad {
+            assert!(
+                matches!(analyze(&s, &o), Err(AnalysisError::Input(_))),
+                "{o:?}"
+            );
+        }
+        let e = analyze(
+            &s,
+            &AnalysisOptions {
+                carrier_hz: Some(200.0),
+                mode_band_hz: Some((10.0, 20.0)),
+                ..Default::default()
+            },
+        )
+        .unwrap_err();
+        assert_eq!(e.to_string(), "--carrier needs --lo-side above|below");
+    }
+
+    #[test]
+    fn flat_noise_gives_nulls_with_notes() {
+        let s = flat(513);
+        let r = analyze(
+            &s,
+            &AnalysisOptions {
+                mode_band_hz: Some((100.0, 200.0)),
+                mass_kg: Some(1e-12),
+                ..Default::default()
+            },
+        )
+        .unwrap();
+        assert!(r.mode.frequency_hz.is_none());
+        assert!(
+            r.notes.iter().any(|n| n.starts_with("mode:")),
+            "{:?}",
+            r.notes
+        );
+        assert!(r.quantum.x_zpf_m.is_none());
+        let json = serde_json::to_string(&r).unwrap();
+        assert!(!json.contains("NaN") && !json.contains("Infinity"));
+    }
 }

@@ -317,7 +317,7 @@ pub fn fit_mode_with(
 }
 
 /// Initial guesses from the data: (B, A, f_m, γ).
-fn initial_guess(freqs: &[f64], data: &[f64], df: f64) -> Option<(f64, f64, f64, f64)> {
+pub(crate) fn initial_guess(freqs: &[f64], data: &[f64], df: f64) -> Option<(f64, f64, f64, f64)> {
     let n = data.len();
     let smooth: Vec<f64> = (0..n)
         .map(|i| {

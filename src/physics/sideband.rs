@@ -1,1 +1,293 @@
-//! placeholder
+//! Motional-sideband asymmetry thermometry in heterodyne (METHODS.md §6; Safavi-Naeini et al.,
+//! PRL 108, 033602 (2012); Weinstein et al., PRX 4, 041003 (2014); Underwood et al., PRA 92,
+//! 061801(R) (2015)). Both lines at f_IF ± f_m are fitted jointly — Lorentzians with a shared
+//! linewidth, each with its own flat background over its own window — and the optical red
+//! (Stokes, ∝ n̄+1) line is picked by the side of the local oscillator: with the LO ABOVE the
+//! laser the Stokes line appears at f_IF + f_m, with the LO BELOW at f_IF − f_m.
+//! R = (A_red/A_blue)·(η_blue/η_red), n̄ = 1/(R − 1), σ_n̄ = σ_R/(R − 1)².
+
+use super::fit::{self, LineShape, line_and_gradient};
+use super::lsq::{self, Model};
+use super::{Estimate, PhysicsError, Result, calibration, window_stats};
+use crate::dsp::Spectrum;
+
+/// The caution that goes with every sideband result (METHODS.md §6 caveat).
+pub const CLASSICAL_NOISE_NOTE: &str = "sideband asymmetry: classical laser amplitude/phase noise or excess cavity occupation interferes with opposite signs in the two sidebands and can mimic or mask the quantum asymmetry (Safavi-Naeini et al. 2013, Jayich et al. 2012); characterise the laser noise at f_m or vary the probe power";
+
+/// Inputs of the sideband analysis.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct SidebandOptions {
+    /// Heterodyne carrier (intermediate frequency) f_IF (Hz).
+    pub carrier_hz: f64,
+    /// Band of the mechanical frequency f_m itself, LO:HI (Hz offsets from the carrier).
+    pub band_hz: (f64, f64),
+    /// True when the local oscillator is above the laser.
+    pub lo_above: bool,
+    /// Detection-efficiency ratio η_red/η_blue with its 1σ (1 ± 0 when not known).
+    pub imbalance: Estimate,
+}
+
+/// One fitted sideband line.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct SidebandLineFit {
+    /// Electronic frequency of the line (Hz).
+    pub frequency_hz: Estimate,
+    /// Area (PSD unit × Hz), background subtracted, before the imbalance correction.
+    pub area: Estimate,
+    /// Local background (PSD unit).
+    pub background_psd: Estimate,
+}
+
+/// Result of the joint fit.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct SidebandFit {
+    /// Optical red (Stokes, n̄+1) line.
+    pub red: SidebandLineFit,
+    /// Optical blue (anti-Stokes, n̄) line.
+    pub blue: SidebandLineFit,
+    /// Shared FWHM linewidth (Hz).
+    pub linewidth_hz: Estimate,
+    /// f_m from the split of the two lines (Hz).
+    pub mechanical_frequency_hz: Estimate,
+    /// Imbalance-corrected R = (A_red/A_blue)/(η_red/η_blue).
+    pub ratio: Estimate,
+    /// η_red/η_blue applied.
+    pub imbalance: Estimate,
+    /// n̄ = 1/(R − 1); `None` when R ≤ 1 (see `notes`).
+    pub occupancy: Option<Estimate>,
+    /// Which side the LO is on and which electronic line was taken as red.
+    pub convention: String,
+    /// Reduced χ² of the joint fit.
+    pub reduced_chi2: f64,
+    /// Caveats.
+    pub notes: Vec<String>,
+}
+
+/// n̄ = 1/(R − 1) with σ_n̄ = σ_R/(R − 1)² (METHODS.md §6); `None` for R ≤ 1 or non-finite.
+pub fn occupancy_from_ratio(ratio: Estimate) -> Option<Estimate> {
+    let d = ratio.value - 1.0;
+    if !(d.is_finite() && d > 0.0) {
+        return None;
+    }
+    let n = Estimate::new(1.0 / d, ratio.sigma / (d * d));
+    n.is_finite().then_some(n)
+}
+
+/// η_red/η_blue from two injected tones of equal power, one beside each sideband.
+///
+/// # Errors
+/// As [`calibration::read_tone`].
+pub fn imbalance_from_tones(
+    spectrum: &Spectrum,
+    red_tone_hz: f64,
+    blue_tone_hz: f64,
+) -> Result<Estimate> {
+    let opts = calibration::ToneOptions::default();
+    let r = calibration::read_tone(spectrum, red_tone_hz, &opts, None)?;
+    let b = calibration::read_tone(spectrum, blue_tone_hz, &opts, None)?;
+    let v = r.power.value / b.power.value;
+    let rel = (r.power.relative().powi(2) + b.power.relative().powi(2)).sqrt();
+    Ok(Estimate::new(v, v * rel))
+}
+
+/// Parameters [B_u, A_u, c_u, B_l, A_l, c_l, γ]; the first `n_upper` points belong to the
+/// upper window.
+struct PairModel<'a> {
+    freqs: &'a [f64],
+    n_upper: usize,
+}
+
+impl Model for PairModel<'_> {
+    fn n_params(&self) -> usize {
+        7
+    }
+
+    fn eval(&self, p: &[f64], i: usize, grad: &mut [f64]) -> f64 {
+        let f = self.freqs.get(i).copied().unwrap_or(0.0);
+        grad.iter_mut().for_each(|g| *g = 0.0);
+        let off = if i < self.n_upper { 0 } else { 3 };
+        let (s, g) = line_and_gradient(LineShape::Lorentzian, f, p[off + 1], p[off + 2], p[6]);
+        grad[off] = 1.0;
+        grad[off + 1] = g[0];
+        grad[off + 2] = g[1];
+        grad[6] = g[2];
+        p[off] + s
+    }
+
+    fn admissible(&self, p: &[f64]) -> bool {
+        p.iter().all(|v| v.is_finite()) && p[1] > 0.0 && p[4] > 0.0 && p[6] > 0.0
+    }
+}
+
+/// Fits the sideband pair and forms R and n̄.
+///
+/// # Errors
+/// [`PhysicsError::Input`] for a band with LO ≥ HI, a negative LO, or sideband windows outside
+/// the spectrum; [`PhysicsError::Sideband`] when either line cannot be found or fitted.
+pub fn fit_sidebands(spectrum: &Spectrum, options: &SidebandOptions) -> Result<SidebandFit> {
+    let (lo, hi) = options.band_hz;
+    let fc = options.carrier_hz;
+    if !(fc.is_finite() && fc > 0.0) {
+        return Err(PhysicsError::Input(format!(
+            "--carrier must be a positive frequency, got {fc}"
+        )));
+    }
+    if !(lo.is_finite() && hi.is_finite() && lo >= 0.0 && lo < hi) {
+        return Err(PhysicsError::Input(format!(
+            "--mode-band with --carrier must be LO:HI offsets with 0 <= LO < HI, got {lo}:{hi}"
+        )));
+    }
+    if fc - hi <= 0.0 {
+        return Err(PhysicsError::Input(format!(
+            "--carrier {fc} Hz minus the --mode-band top {hi} Hz is below 0 Hz"
+        )));
+    }
+    let up = fit::band_bins(
+        spectrum,
+        (fc + lo, fc + hi),
+        "upper sideband window (--carrier + --mode-band)",
+    )?;
+    let dn = fit::band_bins(
+        spectrum,
+        (fc - hi, fc - lo),
+        "lower sideband window (--carrier − --mode-band)",
+    )?;
+    let df = spectrum.resolution_hz;
+    let collect = |(a, b): (usize, usize)| -> (Vec<f64>, Vec<f64>) {
+        (a..=b)
+            .filter_map(|k| {
+                let d = spectrum.psd_v2_per_hz.get(k).copied()?;
+                (d.is_finite() && d >= 0.0).then_some((k as f64 * df, d))
+            })
+            .unzip()
+    };
+    let (fu, du) = collect(up);
+    let (fl, dl) = collect(dn);
+    if fu.len() < 8 || fl.len() < 8 {
+        return Err(PhysicsError::Sideband(
+            "the sideband windows hold fewer than 8 bins each".into(),
+        ));
+    }
+    let gu = fit::initial_guess(&fu, &du, df)
+        .ok_or_else(|| PhysicsError::Sideband("no upper sideband above the floor".into()))?;
+    let gl = fit::initial_guess(&fl, &dl, df)
+        .ok_or_else(|| PhysicsError::Sideband("no lower sideband above the floor".into()))?;
+    let n_upper = fu.len();
+    let freqs: Vec<f64> = fu.iter().chain(&fl).copied().collect();
+    let data: Vec<f64> = du.iter().chain(&dl).copied().collect();
+    let model = PairModel {
+        freqs: &freqs,
+        n_upper,
+    };
+    let width0 = (0.5 * (gu.3 + gl.3)).max(df);
+    let start = [gu.0, gu.1, gu.2, gl.0, gl.1, gl.2, width0];
+    let sol = lsq::fit_model_weighted(&model, &start, &data, spectrum.k_eff.max(1.0))
+        .map_err(|e| PhysicsError::Sideband(format!("the joint fit failed ({e:?})")))?;
+    let inflation = window_stats::error_inflation(spectrum.window);
+    let chi2_red = sol.chi2 / sol.dof.max(1) as f64;
+    let scale = chi2_red * inflation * inflation;
+    let cov = |a: usize, b: usize| sol.covariance.get(a * 7 + b).copied().unwrap_or(0.0) * scale;
+    let sd = |k: usize| cov(k, k).max(0.0).sqrt();
+    let p = &sol.params;
+    let line = |off: usize| SidebandLineFit {
+        frequency_hz: Estimate::new(p[off + 2], sd(off + 2)),
+        area: Estimate::new(p[off + 1], sd(off + 1)),
+        background_psd: Estimate::new(p[off], sd(off)),
+    };
+    let upper = line(0);
+    let lower = line(3);
+    let width = Estimate::new(p[6], sd(6));
+    for (name, l, (a, b)) in [
+        ("upper", &upper, (fc + lo, fc + hi)),
+        ("lower", &lower, (fc - hi, fc - lo)),
+    ] {
+        if l.frequency_hz.value < a || l.frequency_hz.value > b {
+            return Err(PhysicsError::Sideband(format!(
+                "the {name} line was fitted outside its window"
+            )));
+        }
+        if l.area.value < 3.0 * l.area.sigma {
+            return Err(PhysicsError::Sideband(format!(
+                "the {name} line is not significant ({:.1}σ)",
+                l.area.value / l.area.sigma
+            )));
+        }
+    }
+    if width.value > hi - lo || width.value < 0.25 * df {
+        return Err(PhysicsError::Sideband(format!(
+            "the shared linewidth {:.3e} Hz is wider than the band or unresolved",
+            width.value
+        )));
+    }
+    let split = Estimate::new(
+        0.5 * (upper.frequency_hz.value - lower.frequency_hz.value),
+        0.5 * (cov(2, 2) + cov(5, 5) - 2.0 * cov(2, 5)).max(0.0).sqrt(),
+    );
+    // Red = Stokes: upper line when the LO is above the laser.
+    let (red, blue, red_idx, blue_idx) = if options.lo_above {
+        (upper, lower, 1, 4)
+    } else {
+        (lower, upper, 4, 1)
+    };
+    let raw = red.area.value / blue.area.value;
+    let rel2 = (red.area.sigma / red.area.value).powi(2)
+        + (blue.area.sigma / blue.area.value).powi(2)
+        - 2.0 * cov(red_idx, blue_idx) / (red.area.value * blue.area.value);
+    let eta = options.imbalance;
+    let r = raw / eta.value;
+    let rel_r = (rel2.max(0.0) + eta.relative().powi(2)).sqrt();
+    let ratio = Estimate::new(r, r * rel_r);
+    let mut notes = vec![CLASSICAL_NOISE_NOTE.to_string()];
+    let occupancy = occupancy_from_ratio(ratio);
+    if occupancy.is_none() {
+        notes.push(format!(
+            "sideband ratio R = {r:.4} ≤ 1: no occupancy (check --lo-side, the imbalance correction and classical noise)"
+        ));
+    }
+    let convention = if options.lo_above {
+        format!(
+            "LO above the laser: red (Stokes, n+1) = f_IF + f_m at {:.3} Hz; blue (anti-Stokes, n) = f_IF − f_m",
+            red.frequency_hz.value
+        )
+    } else {
+        format!(
+            "LO below the laser: red (Stokes, n+1) = f_IF − f_m at {:.3} Hz; blue (anti-Stokes, n) = f_IF + f_m",
+            red.frequency_hz.value
+        )
+    };
+    Ok(SidebandFit {
+        red,
+        blue,
+        linewidth_hz: width,
+        mechanical_frequency_hz: split,
+        ratio,
+        imbalance: eta,
+        occupancy,
+        convention,
+        reduced_chi2: chi2_red,
+        notes,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn ratio_to_occupancy() {
+        // METHODS.md §6/§7: R = 1.5 → 2, R = 2 → 1, R = 11 → 0.1; σ_n = σ_R/(R−1)².
+        let n = occupancy_from_ratio(Estimate::new(1.5, 1.5 * 0.02 * 2f64.sqrt())).unwrap();
+        assert!((n.value - 2.0).abs() < 1e-12);
+        assert!((n.sigma - 0.169_705_627_484_771_4).abs() < 1e-12);
+        assert!(
+            (occupancy_from_ratio(Estimate::new(11.0, 0.0))
+                .unwrap()
+                .value
+                - 0.1)
+                .abs()
+                < 1e-12
+        );
+        assert!(occupancy_from_ratio(Estimate::new(1.0, 0.1)).is_none());
+        assert!(occupancy_from_ratio(Estimate::new(0.8, 0.1)).is_none());
+    }
+}
