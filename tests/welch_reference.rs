@@ -409,3 +409,29 @@ fn non_finite_segments_are_skipped_and_counted() {
     w.push(&x);
     assert_eq!(w.skipped_segments(), 0);
 }
+
+#[test]
+fn parallel_mode_is_bit_identical() {
+    let mut rng = Rng(23);
+    let mut x = rng.noise(64 * 400, 1.0);
+    x[64 * 37 + 5] = f64::NAN;
+    for (averaging, max_averages) in all_modes() {
+        let mut c = WelchConfig::new(1.0, 128);
+        c.averaging = averaging;
+        c.max_averages = max_averages;
+        let single = welch(&x, &c).unwrap();
+        for threads in [2, 3] {
+            let mut w = Welch::new(c.clone()).unwrap().with_threads(threads);
+            assert_eq!(w.threads(), threads);
+            // One long block (parallel batches) followed by small blocks (sequential).
+            w.push(&x[..20_000]);
+            w.push(&x[20_000..21_000]);
+            w.push(&x[21_000..]);
+            assert_eq!(w.spectrum().unwrap(), single, "{averaging:?} {threads}");
+            assert_eq!(
+                w.skipped_segments(),
+                if max_averages == Some(9) { 0 } else { 2 }
+            );
+        }
+    }
+}

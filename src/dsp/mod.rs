@@ -5,6 +5,7 @@
 //! with `P_k` the average of `|Y_k|²` over segments, `S₂ = Σ w²`. Bins run from DC to Nyquist in
 //! ascending frequency, `f_k = k f_s / N`. Computed in f64 with one real-FFT plan per size.
 
+pub mod bench;
 mod error;
 pub mod units;
 pub mod welch;

@@ -260,27 +260,74 @@ impl std::fmt::Debug for Welch {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         f.debug_struct("Welch")
             .field("config", &self.config)
-            .field("segments", &self.engine.segments)
-            .field("skipped_segments", &self.engine.skipped)
+            .field("segments", &self.engine.acc.segments)
+            .field("skipped_segments", &self.engine.acc.skipped)
+            .field("threads", &self.engine.threads())
             .field("pending_samples", &self.pending.len())
             .finish_non_exhaustive()
     }
 }
 
-/// Everything that turns one segment into an accumulated periodogram.
-struct Engine {
-    n: usize,
-    averaging: Averaging,
+/// Turns one segment into its periodogram |Y_k|² (one per thread).
+struct Transformer {
     detrend: Detrend,
-    max_averages: Option<usize>,
-    window: Vec<f64>,
-    s2: f64,
-    /// ρ_l² for l = 1 … while segments overlap.
-    rho2: Vec<f64>,
+    window: Arc<[f64]>,
     fft: Arc<dyn RealToComplex<f64>>,
     fft_in: Vec<f64>,
     fft_out: Vec<Complex<f64>>,
     scratch: Vec<Complex<f64>>,
+}
+
+impl Transformer {
+    fn new(detrend: Detrend, window: Arc<[f64]>, fft: Arc<dyn RealToComplex<f64>>) -> Self {
+        let fft_in = fft.make_input_vec();
+        let fft_out = fft.make_output_vec();
+        let scratch = fft.make_scratch_vec();
+        Self {
+            detrend,
+            window,
+            fft,
+            fft_in,
+            fft_out,
+            scratch,
+        }
+    }
+
+    /// Same plan and window, own buffers.
+    fn fork(&self) -> Self {
+        Self::new(
+            self.detrend,
+            Arc::clone(&self.window),
+            Arc::clone(&self.fft),
+        )
+    }
+
+    /// Loads `head ++ tail` (N samples), detrends, windows and transforms it into `fft_out`.
+    /// Returns false (and leaves `fft_out` unspecified) if the segment is not finite.
+    fn transform(&mut self, head: &[f64], tail: &[f64]) -> bool {
+        if head.len() + tail.len() != self.fft_in.len() {
+            return false;
+        }
+        if !detrend_and_window(head, tail, &self.window, self.detrend, &mut self.fft_in) {
+            return false;
+        }
+        // Lengths are fixed by the plan, so this cannot fail.
+        self.fft
+            .process_with_scratch(&mut self.fft_in, &mut self.fft_out, &mut self.scratch)
+            .is_ok()
+    }
+
+    fn powers(&self) -> impl Iterator<Item = f64> + '_ {
+        self.fft_out.iter().map(|y| y.re * y.re + y.im * y.im)
+    }
+}
+
+/// Combines periodograms according to the averaging mode.
+struct Accumulator {
+    averaging: Averaging,
+    max_averages: Option<usize>,
+    /// ρ_l² for l = 1 … while segments overlap.
+    rho2: Vec<f64>,
     /// Linear: Σ|Y_k|²; exponential: running mean of |Y_k|²; max-hold: max |Y_k|².
     acc: Vec<f64>,
     /// Median: stored |Y_k|² rows (bins each), a ring once `max_averages` rows exist.
@@ -294,42 +341,7 @@ struct Engine {
     skipped: usize,
 }
 
-impl Engine {
-    fn new(config: &WelchConfig) -> Self {
-        let n = config.segment;
-        let window = config.window.samples(n);
-        let (_, s2) = sums(&window);
-        let rho2 = overlap_correlations_squared(&window, config.hop());
-        let mut planner = RealFftPlanner::<f64>::new();
-        let fft = planner.plan_fft_forward(n);
-        let fft_in = fft.make_input_vec();
-        let fft_out = fft.make_output_vec();
-        let scratch = fft.make_scratch_vec();
-        let bins = n / 2 + 1;
-        let ema_recent = vec![0.0; rho2.len()];
-        Self {
-            n,
-            averaging: config.averaging,
-            detrend: config.detrend,
-            max_averages: config.max_averages,
-            window,
-            s2,
-            rho2,
-            fft,
-            fft_in,
-            fft_out,
-            scratch,
-            acc: vec![0.0; bins],
-            history: Vec::new(),
-            history_rows: 0,
-            history_next: 0,
-            ema_recent,
-            ema_variance: 0.0,
-            segments: 0,
-            skipped: 0,
-        }
-    }
-
+impl Accumulator {
     fn bins(&self) -> usize {
         self.acc.len()
     }
@@ -337,6 +349,14 @@ impl Engine {
     fn is_complete(&self) -> bool {
         matches!(self.averaging, Averaging::Linear)
             && self.max_averages.is_some_and(|k| self.segments >= k)
+    }
+
+    /// Segments a linear average can still take (usize::MAX if unlimited).
+    fn room(&self) -> usize {
+        match (self.averaging, self.max_averages) {
+            (Averaging::Linear, Some(k)) => k.saturating_sub(self.segments),
+            _ => usize::MAX,
+        }
     }
 
     fn restart(&mut self) {
@@ -350,41 +370,12 @@ impl Engine {
         self.skipped = 0;
     }
 
-    /// Processes the segment `head ++ tail` (exactly N samples). Returns true if accepted.
-    fn process(&mut self, head: &[f64], tail: &[f64]) -> bool {
-        if !self.transform(head, tail) {
-            self.skipped += 1;
-            return false;
-        }
-        self.accumulate();
-        self.segments += 1;
-        true
-    }
-
-    /// Loads, detrends, windows and transforms one segment into `fft_out`.
-    /// Returns false (and leaves `fft_out` unspecified) if the segment is not finite.
-    fn transform(&mut self, head: &[f64], tail: &[f64]) -> bool {
-        let n = self.n;
-        if head.len() + tail.len() != n {
-            return false;
-        }
-        let (a, b) = self.fft_in.split_at_mut(head.len());
-        a.copy_from_slice(head);
-        b.copy_from_slice(tail);
-        if !detrend_and_window(&mut self.fft_in, &self.window, self.detrend) {
-            return false;
-        }
-        // Lengths are fixed by the plan, so this cannot fail.
-        self.fft
-            .process_with_scratch(&mut self.fft_in, &mut self.fft_out, &mut self.scratch)
-            .is_ok()
-    }
-
-    fn accumulate(&mut self) {
+    /// Adds one periodogram |Y_k|², k = 0 … ⌊N/2⌋.
+    fn add(&mut self, powers: impl Iterator<Item = f64>) {
         match self.averaging {
             Averaging::Linear => {
-                for (a, y) in self.acc.iter_mut().zip(&self.fft_out) {
-                    *a += y.re * y.re + y.im * y.im;
+                for (a, p) in self.acc.iter_mut().zip(powers) {
+                    *a += p;
                 }
             }
             Averaging::Exponential {
@@ -392,8 +383,7 @@ impl Engine {
             } => {
                 let count = (self.segments + 1) as f64;
                 let alpha = 1.0 / count.min(time_constant_segments.max(1.0));
-                for (a, y) in self.acc.iter_mut().zip(&self.fft_out) {
-                    let p = y.re * y.re + y.im * y.im;
+                for (a, p) in self.acc.iter_mut().zip(powers) {
                     *a += (p - *a) * alpha;
                 }
                 // Var(E_n)/S² = (1−α)² Var(E_{n−1}) + α² + 2α(1−α) Σ_l a_{n−l} ρ_l².
@@ -416,8 +406,7 @@ impl Engine {
             }
             Averaging::MaxHold => {
                 let first = self.segments == 0;
-                for (a, y) in self.acc.iter_mut().zip(&self.fft_out) {
-                    let p = y.re * y.re + y.im * y.im;
+                for (a, p) in self.acc.iter_mut().zip(powers) {
                     *a = if first { p } else { a.max(p) };
                 }
             }
@@ -436,12 +425,13 @@ impl Engine {
                     }
                 };
                 if let Some(dst) = self.history.get_mut(row * bins..(row + 1) * bins) {
-                    for (d, y) in dst.iter_mut().zip(&self.fft_out) {
-                        *d = y.re * y.re + y.im * y.im;
+                    for (d, p) in dst.iter_mut().zip(powers) {
+                        *d = p;
                     }
                 }
             }
         }
+        self.segments += 1;
     }
 
     /// Number of periodograms the current estimate combines.
@@ -487,67 +477,319 @@ impl Engine {
     }
 }
 
-/// Removes the trend of `x` (in place) and multiplies by the window. Returns false if `x`
-/// holds a non-finite sample.
-fn detrend_and_window(x: &mut [f64], window: &[f64], detrend: Detrend) -> bool {
-    let n = x.len();
-    let nf = n as f64;
-    let centre = 0.5 * (nf - 1.0);
-    // Pass 1: sums (four interleaved accumulators; the order depends only on the index, so
-    // any split of the stream into blocks gives the same bits). `x·0` is 0 for every finite
-    // x and NaN otherwise, so `probe` flags non-finite samples without a branch.
-    let mut sum = [0.0f64; 4];
-    let mut moment = [0.0f64; 4];
-    let mut probe = [0.0f64; 4];
-    let linear = matches!(detrend, Detrend::Linear);
-    let mut chunks = x.chunks_exact(4);
-    let mut j = 0usize;
-    for c in &mut chunks {
-        for (i, &v) in c.iter().enumerate() {
-            sum[i] += v;
-            probe[i] += v * 0.0;
-            if linear {
-                moment[i] += ((j + i) as f64 - centre) * v;
+/// The per-segment machinery: one transformer for the caller's thread, optional workers.
+struct Engine {
+    n: usize,
+    s1: f64,
+    s2: f64,
+    main: Transformer,
+    acc: Accumulator,
+    /// Parallel mode: one transformer per worker thread, and the batch of periodograms they
+    /// fill (`rows_per_worker` rows each, `bins` values per row) before the caller's thread
+    /// adds them in segment order.
+    workers: Vec<Transformer>,
+    rows_per_worker: usize,
+    batch: Vec<f64>,
+    batch_ok: Vec<bool>,
+}
+
+impl Engine {
+    fn new(config: &WelchConfig) -> Self {
+        let n = config.segment;
+        let window = config.window.samples(n);
+        let (s1, s2) = sums(&window);
+        let rho2 = overlap_correlations_squared(&window, config.hop());
+        let mut planner = RealFftPlanner::<f64>::new();
+        let fft = planner.plan_fft_forward(n);
+        let bins = n / 2 + 1;
+        let ema_recent = vec![0.0; rho2.len()];
+        Self {
+            n,
+            s1,
+            s2,
+            main: Transformer::new(config.detrend, window.into(), fft),
+            acc: Accumulator {
+                averaging: config.averaging,
+                max_averages: config.max_averages,
+                rho2,
+                acc: vec![0.0; bins],
+                history: Vec::new(),
+                history_rows: 0,
+                history_next: 0,
+                ema_recent,
+                ema_variance: 0.0,
+                segments: 0,
+                skipped: 0,
+            },
+            workers: Vec::new(),
+            rows_per_worker: 0,
+            batch: Vec::new(),
+            batch_ok: Vec::new(),
+        }
+    }
+
+    /// Processes the segment `head ++ tail` on the caller's thread. True if accepted.
+    fn process(&mut self, head: &[f64], tail: &[f64]) -> bool {
+        if self.main.transform(head, tail) {
+            self.acc.add(self.main.powers());
+            true
+        } else {
+            self.acc.skipped += 1;
+            false
+        }
+    }
+
+    fn set_threads(&mut self, threads: usize) {
+        let threads = threads.clamp(1, 64);
+        if threads == 1 {
+            self.workers = Vec::new();
+            self.batch = Vec::new();
+            self.batch_ok = Vec::new();
+            self.rows_per_worker = 0;
+            return;
+        }
+        let bins = self.acc.bins();
+        // About 2^18 samples of FFT work per worker and batch (≥ 1 ms), 2 … 64 rows.
+        self.rows_per_worker = ((1usize << 18) / self.n.max(1)).clamp(2, 64);
+        self.workers = (0..threads).map(|_| self.main.fork()).collect();
+        self.batch = vec![0.0; threads * self.rows_per_worker * bins];
+        self.batch_ok = vec![false; threads * self.rows_per_worker];
+    }
+
+    fn threads(&self) -> usize {
+        self.workers.len().max(1)
+    }
+
+    /// Processes up to one batch of whole segments that start at `0, hop, 2 hop, …` in
+    /// `block` on the worker threads, then adds them in order. Returns (segments consumed,
+    /// segments accepted); (0, 0) if parallel mode is off or the block is too short to be
+    /// worth it.
+    fn process_batch(&mut self, block: &[f64], hop: usize) -> (usize, usize) {
+        let threads = self.workers.len();
+        let n = self.n;
+        if threads < 2 || block.len() < n || hop == 0 {
+            return (0, 0);
+        }
+        let available = (block.len() - n) / hop + 1;
+        let count = available
+            .min(threads * self.rows_per_worker)
+            .min(self.acc.room());
+        if count < 2 * threads {
+            return (0, 0);
+        }
+        let bins = self.acc.bins();
+        let per = count.div_ceil(threads);
+        let mut failed = Vec::new();
+        std::thread::scope(|scope| {
+            let chunks = self
+                .workers
+                .iter_mut()
+                .zip(self.batch.chunks_mut(per * bins))
+                .zip(self.batch_ok.chunks_mut(per))
+                .enumerate();
+            for (t, ((worker, rows), oks)) in chunks {
+                let first = t * per;
+                if first >= count {
+                    break;
+                }
+                let len = per.min(count - first);
+                let spawned = std::thread::Builder::new()
+                    .name(format!("welch-worker-{t}"))
+                    .spawn_scoped(scope, move || {
+                        run_chunk(worker, block, first, len, hop, rows, oks);
+                    });
+                if spawned.is_err() {
+                    failed.push((t, first, len));
+                }
+            }
+        });
+        // A worker that could not be started: do its share here.
+        for (t, first, len) in failed {
+            let rows = self.batch.chunks_mut(per * bins).nth(t);
+            let oks = self.batch_ok.chunks_mut(per).nth(t);
+            if let (Some(rows), Some(oks)) = (rows, oks) {
+                run_chunk(&mut self.main, block, first, len, hop, rows, oks);
             }
         }
-        j += 4;
+        let mut accepted = 0;
+        for (row, ok) in self.batch.chunks(bins).zip(&self.batch_ok).take(count) {
+            if *ok {
+                self.acc.add(row.iter().copied());
+                accepted += 1;
+            } else {
+                self.acc.skipped += 1;
+            }
+        }
+        (count, accepted)
     }
-    for (i, &v) in chunks.remainder().iter().enumerate() {
-        sum[i] += v;
-        probe[i] += v * 0.0;
-        if linear {
-            moment[i] += ((j + i) as f64 - centre) * v;
+}
+
+/// Worker job: segments `first .. first + len` of `block` into `rows` / `oks`.
+fn run_chunk(
+    worker: &mut Transformer,
+    block: &[f64],
+    first: usize,
+    len: usize,
+    hop: usize,
+    rows: &mut [f64],
+    oks: &mut [bool],
+) {
+    let n = worker.fft_in.len();
+    let bins = worker.fft_out.len();
+    for ((i, row), ok) in rows
+        .chunks_mut(bins)
+        .enumerate()
+        .zip(oks.iter_mut())
+        .take(len)
+    {
+        let start = (first + i) * hop;
+        *ok = match block.get(start..start + n) {
+            Some(segment) => worker.transform(segment, &[]),
+            None => false,
+        };
+        if *ok {
+            for (r, p) in row.iter_mut().zip(worker.powers()) {
+                *r = p;
+            }
         }
     }
-    let probe = (probe[0] + probe[1]) + (probe[2] + probe[3]);
-    if !probe.is_finite() {
-        return false;
+}
+
+/// Sums of one segment, accumulated in four lanes by sample index (sample j goes to lane
+/// j mod 4, each lane in index order), so any split of the segment into pieces gives the
+/// same bits.
+#[derive(Default)]
+struct SegmentSums {
+    sum: [f64; 4],
+    moment: [f64; 4],
+    /// Σ x·0: 0 for finite samples, NaN as soon as one is NaN or ±Inf (no branch).
+    probe: [f64; 4],
+}
+
+impl SegmentSums {
+    /// Adds the samples `x`, which start at segment index `offset`.
+    fn add(&mut self, x: &[f64], offset: usize, centre: f64, linear: bool) {
+        let lead = ((4 - offset % 4) % 4).min(x.len());
+        let (prefix, body) = x.split_at(lead);
+        for (i, &v) in prefix.iter().enumerate() {
+            self.add_one(offset + i, v, centre, linear);
+        }
+        let base = offset + lead;
+        let mut chunks = body.chunks_exact(4);
+        if linear {
+            let mut j = base as f64 - centre;
+            for c in &mut chunks {
+                for (lane, &v) in c.iter().enumerate() {
+                    self.sum[lane] += v;
+                    self.probe[lane] += v * 0.0;
+                    self.moment[lane] += (j + lane as f64) * v;
+                }
+                j += 4.0;
+            }
+        } else {
+            for c in &mut chunks {
+                for (lane, &v) in c.iter().enumerate() {
+                    self.sum[lane] += v;
+                    self.probe[lane] += v * 0.0;
+                }
+            }
+        }
+        let tail_start = base + body.len() - chunks.remainder().len();
+        for (i, &v) in chunks.remainder().iter().enumerate() {
+            self.add_one(tail_start + i, v, centre, linear);
+        }
     }
-    let mean = ((sum[0] + sum[1]) + (sum[2] + sum[3])) / nf;
+
+    fn add_one(&mut self, j: usize, v: f64, centre: f64, linear: bool) {
+        let lane = j % 4;
+        if let (Some(s), Some(p), Some(m)) = (
+            self.sum.get_mut(lane),
+            self.probe.get_mut(lane),
+            self.moment.get_mut(lane),
+        ) {
+            *s += v;
+            *p += v * 0.0;
+            if linear {
+                *m += (j as f64 - centre) * v;
+            }
+        }
+    }
+
+    fn total(a: [f64; 4]) -> f64 {
+        (a[0] + a[1]) + (a[2] + a[3])
+    }
+}
+
+/// Writes `(x_j − mean − slope·(j − centre))·w_j` for the samples `src` starting at segment
+/// index `offset` into `dst` (same length), with the trend terms as `detrend` asks.
+fn window_piece(
+    dst: &mut [f64],
+    src: &[f64],
+    window: &[f64],
+    offset: usize,
+    trend: (f64, f64, f64),
+    detrend: Detrend,
+) {
+    let (mean, slope, centre) = trend;
+    let w = window.get(offset..offset + src.len()).unwrap_or(&[]);
     match detrend {
         Detrend::None => {
-            for (v, w) in x.iter_mut().zip(window) {
-                *v *= w;
+            for ((d, &x), &w) in dst.iter_mut().zip(src).zip(w) {
+                *d = x * w;
             }
         }
         Detrend::Mean => {
-            for (v, w) in x.iter_mut().zip(window) {
-                *v = (*v - mean) * w;
+            for ((d, &x), &w) in dst.iter_mut().zip(src).zip(w) {
+                *d = (x - mean) * w;
             }
         }
         Detrend::Linear => {
-            // Least-squares line over u_j = j − (N−1)/2: slope Σu x / Σu², Σu² = N(N²−1)/12.
-            let su2 = nf * (nf * nf - 1.0) / 12.0;
-            let slope = if su2 > 0.0 {
-                ((moment[0] + moment[1]) + (moment[2] + moment[3])) / su2
-            } else {
-                0.0
-            };
-            for (j, (v, w)) in x.iter_mut().zip(window).enumerate() {
-                *v = (*v - mean - slope * (j as f64 - centre)) * w;
+            let mut u = offset as f64 - centre;
+            for ((d, &x), &w) in dst.iter_mut().zip(src).zip(w) {
+                *d = (x - mean - slope * u) * w;
+                u += 1.0;
             }
         }
     }
+}
+
+/// Detrends the segment `head ++ tail`, multiplies it by the window and writes it into
+/// `out` (N values). Returns false if the segment holds a non-finite sample.
+fn detrend_and_window(
+    head: &[f64],
+    tail: &[f64],
+    window: &[f64],
+    detrend: Detrend,
+    out: &mut [f64],
+) -> bool {
+    let n = out.len();
+    let nf = n as f64;
+    let centre = 0.5 * (nf - 1.0);
+    let linear = matches!(detrend, Detrend::Linear);
+    let mut sums = SegmentSums::default();
+    sums.add(head, 0, centre, linear);
+    sums.add(tail, head.len(), centre, linear);
+    if !SegmentSums::total(sums.probe).is_finite() {
+        return false;
+    }
+    let mean = SegmentSums::total(sums.sum) / nf;
+    // Least-squares line over u_j = j − (N−1)/2: slope Σu x / Σu², Σu² = N(N²−1)/12.
+    let su2 = nf * (nf * nf - 1.0) / 12.0;
+    let slope = if linear && su2 > 0.0 {
+        SegmentSums::total(sums.moment) / su2
+    } else {
+        0.0
+    };
+    let (out_head, out_tail) = out.split_at_mut(head.len().min(n));
+    window_piece(out_head, head, window, 0, (mean, slope, centre), detrend);
+    window_piece(
+        out_tail,
+        tail,
+        window,
+        head.len(),
+        (mean, slope, centre),
+        detrend,
+    );
     true
 }
 
@@ -614,7 +856,7 @@ impl Welch {
 
     /// Number of bins ⌊N/2⌋ + 1.
     pub fn bins(&self) -> usize {
-        self.engine.bins()
+        self.engine.acc.bins()
     }
 
     /// Samples waiting for the next segment to fill (fewer than N).
@@ -632,13 +874,25 @@ impl Welch {
         let mut accepted = 0;
         let mut rest = samples;
         loop {
-            if self.engine.is_complete() {
+            if self.engine.acc.is_complete() {
                 return accepted;
             }
             if self.pending.is_empty() {
-                // Whole segments straight from the caller's block: no copy.
+                // Whole segments straight from the caller's block: no copy. In parallel
+                // mode, batches of them go to the worker threads.
+                loop {
+                    let (consumed, ok) = self.engine.process_batch(rest, hop);
+                    if consumed == 0 {
+                        break;
+                    }
+                    accepted += ok;
+                    rest = rest.get(consumed * hop..).unwrap_or(&[]);
+                    if self.engine.acc.is_complete() {
+                        return accepted;
+                    }
+                }
                 while let Some(segment) = rest.get(..n) {
-                    if self.engine.is_complete() {
+                    if self.engine.acc.is_complete() {
                         return accepted;
                     }
                     if self.engine.process(segment, &[]) {
@@ -666,19 +920,44 @@ impl Welch {
         }
     }
 
+    /// Uses `threads` worker threads (1 = none, the default; at most 64) for long blocks:
+    /// when one [`Welch::push`] holds at least 2 × `threads` whole segments, batches of them
+    /// are transformed in parallel and added in segment order on the caller's thread, so the
+    /// result is bit-identical to the single-threaded one. Worker buffers are allocated here.
+    pub fn set_threads(&mut self, threads: usize) {
+        self.engine.set_threads(threads);
+    }
+
+    /// Builder form of [`Welch::set_threads`].
+    #[must_use]
+    pub fn with_threads(mut self, threads: usize) -> Self {
+        self.set_threads(threads);
+        self
+    }
+
+    /// Worker threads used for long blocks (1 = single-threaded).
+    pub fn threads(&self) -> usize {
+        self.engine.threads()
+    }
+
+    /// Drops the samples waiting for the next segment: the next push starts a new segment.
+    pub fn discard_pending(&mut self) {
+        self.pending.clear();
+    }
+
     /// Segments accepted since the last restart.
     pub fn segments(&self) -> usize {
-        self.engine.segments
+        self.engine.acc.segments
     }
 
     /// Segments skipped since the last restart because they held NaN/Inf.
     pub fn skipped_segments(&self) -> usize {
-        self.engine.skipped
+        self.engine.acc.skipped
     }
 
     /// True when a linear average has reached `max_averages` and ignores further data.
     pub fn is_complete(&self) -> bool {
-        self.engine.is_complete()
+        self.engine.acc.is_complete()
     }
 
     /// The current estimate, or `None` before the first segment.
@@ -703,7 +982,7 @@ impl Welch {
     /// the first call, except a column buffer for the median). Returns false, leaving `out`
     /// untouched, before the first segment.
     pub fn spectrum_into(&self, out: &mut Spectrum) -> bool {
-        let averages = self.engine.averages();
+        let averages = self.engine.acc.averages();
         if averages == 0 {
             return false;
         }
@@ -717,12 +996,12 @@ impl Welch {
         out.detrend = c.detrend;
         out.averaging = c.averaging;
         out.averages = averages;
-        out.k_eff = self.engine.k_eff();
+        out.k_eff = self.engine.acc.k_eff();
         out.resolution_hz = c.sample_rate_hz / n as f64;
-        let (s1, s2) = sums(&self.engine.window);
+        let (s1, s2) = (self.engine.s1, self.engine.s2);
         out.enbw_hz = c.sample_rate_hz * s2 / (s1 * s1);
         out.psd_v2_per_hz.resize(bins, 0.0);
-        self.engine.mean_power_into(&mut out.psd_v2_per_hz);
+        self.engine.acc.mean_power_into(&mut out.psd_v2_per_hz);
         let single = 1.0 / (c.sample_rate_hz * self.engine.s2);
         let double = 2.0 * single;
         let last_unpaired = if n.is_multiple_of(2) {
@@ -742,7 +1021,7 @@ impl Welch {
 
     /// Forgets all averaged data (keeps the settings and the sample buffer position).
     pub fn restart(&mut self) {
-        self.engine.restart();
+        self.engine.acc.restart();
     }
 }
 
