@@ -432,6 +432,19 @@ fn parallel_mode_is_bit_identical() {
                 w.skipped_segments(),
                 if max_averages == Some(9) { 0 } else { 2 }
             );
+            // Random blocks: batches that start inside the pending samples.
+            let mut w = Welch::new(c.clone()).unwrap().with_threads(threads);
+            let mut at = 0;
+            while at < x.len() {
+                let len = ((rng.uniform() * 3000.0) as usize).min(x.len() - at);
+                w.push(&x[at..at + len]);
+                at += len;
+            }
+            assert_eq!(
+                w.spectrum().unwrap(),
+                single,
+                "{averaging:?} {threads} random"
+            );
         }
     }
 }

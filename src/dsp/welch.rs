@@ -560,17 +560,18 @@ impl Engine {
         self.workers.len().max(1)
     }
 
-    /// Processes up to one batch of whole segments that start at `0, hop, 2 hop, …` in
-    /// `block` on the worker threads, then adds them in order. Returns (segments consumed,
-    /// segments accepted); (0, 0) if parallel mode is off or the block is too short to be
-    /// worth it.
-    fn process_batch(&mut self, block: &[f64], hop: usize) -> (usize, usize) {
+    /// Processes up to one batch of the whole segments that start at `0, hop, 2 hop, …` in
+    /// the stream `pending ++ block` on the worker threads, then adds them in order. Returns
+    /// (segments consumed, segments accepted); (0, 0) if parallel mode is off or there are
+    /// too few segments to be worth it.
+    fn process_batch(&mut self, pending: &[f64], block: &[f64], hop: usize) -> (usize, usize) {
         let threads = self.workers.len();
         let n = self.n;
-        if threads < 2 || block.len() < n || hop == 0 {
+        let total = pending.len() + block.len();
+        if threads < 2 || total < n || hop == 0 {
             return (0, 0);
         }
-        let available = (block.len() - n) / hop + 1;
+        let available = (total - n) / hop + 1;
         let count = available
             .min(threads * self.rows_per_worker)
             .min(self.acc.room());
@@ -596,7 +597,7 @@ impl Engine {
                 let spawned = std::thread::Builder::new()
                     .name(format!("welch-worker-{t}"))
                     .spawn_scoped(scope, move || {
-                        run_chunk(worker, block, first, len, hop, rows, oks);
+                        run_chunk(worker, (pending, block), first, len, hop, rows, oks);
                     });
                 if spawned.is_err() {
                     failed.push((t, first, len));
@@ -608,7 +609,7 @@ impl Engine {
             let rows = self.batch.chunks_mut(per * bins).nth(t);
             let oks = self.batch_ok.chunks_mut(per).nth(t);
             if let (Some(rows), Some(oks)) = (rows, oks) {
-                run_chunk(&mut self.main, block, first, len, hop, rows, oks);
+                run_chunk(&mut self.main, (pending, block), first, len, hop, rows, oks);
             }
         }
         let mut accepted = 0;
@@ -624,10 +625,11 @@ impl Engine {
     }
 }
 
-/// Worker job: segments `first .. first + len` of `block` into `rows` / `oks`.
+/// Worker job: segments `first .. first + len` of the stream `pending ++ block` into
+/// `rows` / `oks`.
 fn run_chunk(
     worker: &mut Transformer,
-    block: &[f64],
+    (pending, block): (&[f64], &[f64]),
     first: usize,
     len: usize,
     hop: usize,
@@ -643,10 +645,14 @@ fn run_chunk(
         .take(len)
     {
         let start = (first + i) * hop;
-        *ok = match block.get(start..start + n) {
-            Some(segment) => worker.transform(segment, &[]),
-            None => false,
+        let (head, tail) = if start < pending.len() {
+            let head = pending.get(start..).unwrap_or(&[]);
+            (head, block.get(..n - head.len()).unwrap_or(&[]))
+        } else {
+            let at = start - pending.len();
+            (block.get(at..at + n).unwrap_or(&[]), &[][..])
         };
+        *ok = worker.transform(head, tail);
         if *ok {
             for (r, p) in row.iter_mut().zip(worker.powers()) {
                 *r = p;
@@ -877,20 +883,21 @@ impl Welch {
             if self.engine.acc.is_complete() {
                 return accepted;
             }
-            if self.pending.is_empty() {
-                // Whole segments straight from the caller's block: no copy. In parallel
-                // mode, batches of them go to the worker threads.
-                loop {
-                    let (consumed, ok) = self.engine.process_batch(rest, hop);
-                    if consumed == 0 {
-                        break;
-                    }
-                    accepted += ok;
-                    rest = rest.get(consumed * hop..).unwrap_or(&[]);
-                    if self.engine.acc.is_complete() {
-                        return accepted;
-                    }
+            // Parallel mode: batches of segments of `pending ++ rest` go to the workers.
+            let (consumed, ok) = self.engine.process_batch(&self.pending, rest, hop);
+            if consumed > 0 {
+                accepted += ok;
+                let advance = consumed * hop;
+                if advance < self.pending.len() {
+                    self.pending.drain(..advance);
+                } else {
+                    rest = rest.get(advance - self.pending.len()..).unwrap_or(&[]);
+                    self.pending.clear();
                 }
+                continue;
+            }
+            if self.pending.is_empty() {
+                // Whole segments straight from the caller's block: no copy.
                 while let Some(segment) = rest.get(..n) {
                     if self.engine.acc.is_complete() {
                         return accepted;
@@ -921,7 +928,7 @@ impl Welch {
     }
 
     /// Uses `threads` worker threads (1 = none, the default; at most 64) for long blocks:
-    /// when one [`Welch::push`] holds at least 2 × `threads` whole segments, batches of them
+    /// when one [`Welch::push`] completes at least 2 × `threads` segments, batches of them
     /// are transformed in parallel and added in segment order on the caller's thread, so the
     /// result is bit-identical to the single-threaded one. Worker buffers are allocated here.
     pub fn set_threads(&mut self, threads: usize) {
