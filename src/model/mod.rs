@@ -10,11 +10,13 @@ pub mod curves;
 pub mod decimate;
 pub mod engine;
 pub mod history;
+pub mod snapshots;
 pub mod state;
 
 pub use decimate::{bench_plot_prep, decimate_minmax, log_columns_max};
 pub use engine::{Engine, EngineCommand, EngineConfig, EngineNotice, EngineStatus, Frame, Waker};
 pub use history::{TrendBuffer, TrendPoint, Waterfall, WaterfallRow};
+pub use snapshots::LoadedSnapshot;
 pub use state::{
     AppState, AveragingChoice, CalibrationInputs, CalibrationMethod, Overlays, WelchSettings,
 };

@@ -1,0 +1,264 @@
+//! The cooldown view: the waterfall (log PSD against log frequency and time, newest at the
+//! top) as a texture that is updated one row at a time, and trend strips of the fitted f_m,
+//! γ, n̄ and m/V against elapsed time.
+
+use eframe::egui::{
+    self, Color32, ColorImage, Rect, RichText, Sense, TextureHandle, TextureOptions, Ui, pos2, vec2,
+};
+use egui_plot::{Line, Plot, PlotPoints};
+
+use super::axes::{format_hz, format_power};
+use super::theme;
+use crate::model::LiveState;
+
+/// Texture and bookkeeping of the waterfall.
+#[derive(Default)]
+pub struct CooldownState {
+    texture: Option<TextureHandle>,
+    /// (waterfall epoch, rows pushed) the texture holds.
+    shown: Option<(u64, u64)>,
+    /// Colour range (log10 PSD) the texture was painted with.
+    range: Option<(f32, f32)>,
+    /// Ring row where the newest row sits.
+    head: usize,
+    columns: usize,
+    rows: usize,
+}
+
+impl std::fmt::Debug for CooldownState {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("CooldownState")
+            .field("shown", &self.shown)
+            .finish_non_exhaustive()
+    }
+}
+
+fn colour_row(values: &[f32], range: (f32, f32)) -> Vec<Color32> {
+    let (lo, hi) = range;
+    let span = (hi - lo).max(1e-3);
+    values
+        .iter()
+        .map(|v| theme::waterfall_colour((v - lo) / span))
+        .collect()
+}
+
+impl CooldownState {
+    /// Brings the texture up to date: a full repaint when the grid or the colour range
+    /// changed a lot, else only the rows that are new (`set_partial`).
+    fn update_texture(&mut self, ctx: &egui::Context, live: &LiveState) {
+        let wf = &live.waterfall;
+        let Some(last) = wf.rows().back() else {
+            self.texture = None;
+            self.shown = None;
+            return;
+        };
+        let columns = last.log_psd.len().max(1);
+        let rows = wf.capacity();
+        let now = (wf.epoch(), wf.pushed());
+        if self.shown == Some(now) {
+            return;
+        }
+        let range = wf.value_range().unwrap_or((0.0, 1.0));
+        let range_moved = self
+            .range
+            .is_none_or(|(a, b)| (a - range.0).abs() > 0.5 || (b - range.1).abs() > 0.5);
+        let same_grid = self.columns == columns
+            && self.rows == rows
+            && self.shown.is_some_and(|(e, _)| e == now.0)
+            && self.texture.is_some();
+        let new_rows = self
+            .shown
+            .map_or(u64::MAX, |(_, p)| now.1.saturating_sub(p));
+        if same_grid && !range_moved && (new_rows as usize) < wf.rows().len() {
+            let range = self.range.unwrap_or(range);
+            let held = wf.rows().len();
+            let first_new = held.saturating_sub(new_rows as usize);
+            for r in wf.rows().iter().skip(first_new) {
+                self.head = (self.head + 1) % rows;
+                let img = ColorImage::new([columns, 1], colour_row(&r.log_psd, range));
+                if let Some(t) = self.texture.as_mut() {
+                    t.set_partial([0, self.head], img, TextureOptions::NEAREST);
+                }
+            }
+        } else {
+            // Full repaint: oldest row at ring index 0, newest at `held − 1`.
+            let mut pixels = vec![Color32::from_rgb(244, 241, 234); columns * rows];
+            for (i, r) in wf.rows().iter().enumerate() {
+                let row = colour_row(&r.log_psd, range);
+                let start = i * columns;
+                if let Some(dst) = pixels.get_mut(start..start + columns.min(row.len())) {
+                    dst.copy_from_slice(&row[..dst.len()]);
+                }
+            }
+            let img = ColorImage::new([columns, rows], pixels);
+            self.head = wf.rows().len().saturating_sub(1);
+            match self.texture.as_mut() {
+                Some(t) if self.columns == columns && self.rows == rows => {
+                    t.set(img, TextureOptions::NEAREST);
+                }
+                _ => {
+                    self.texture =
+                        Some(ctx.load_texture("waterfall", img, TextureOptions::NEAREST));
+                }
+            }
+            self.range = Some(range);
+            self.columns = columns;
+            self.rows = rows;
+        }
+        self.shown = Some(now);
+    }
+
+    /// The waterfall and the trend strips side by side.
+    pub fn ui(&mut self, ui: &mut Ui, live: &LiveState) {
+        self.update_texture(ui.ctx(), live);
+        let h = ui.available_height().max(120.0);
+        ui.horizontal_top(|ui| {
+            let w = (ui.available_width() * 0.5).max(200.0);
+            ui.vertical(|ui| {
+                ui.set_width(w);
+                self.waterfall_ui(ui, live, h);
+            });
+            ui.vertical(|ui| trends_ui(ui, live, h));
+        });
+    }
+
+    fn waterfall_ui(&self, ui: &mut Ui, live: &LiveState, height: f32) {
+        let wf = &live.waterfall;
+        let held = wf.rows().len();
+        let span_s = match (wf.rows().front(), wf.rows().back()) {
+            (Some(a), Some(b)) => b.time_s - a.time_s,
+            _ => 0.0,
+        };
+        ui.label(
+            RichText::new(format!(
+                "Waterfall — log PSD, newest at the top, {held} rows over {span_s:.0} s"
+            ))
+            .strong(),
+        );
+        let size = vec2(ui.available_width(), (height - 44.0).max(60.0));
+        let (rect, resp) = ui.allocate_exact_size(size, Sense::hover());
+        let painter = ui.painter_at(rect);
+        painter.rect_filled(rect, 2.0, theme::PLOT_BG);
+        let (Some(tex), Some(last)) = (&self.texture, wf.rows().back()) else {
+            painter.text(
+                rect.center(),
+                egui::Align2::CENTER_CENTER,
+                "rows appear once a second",
+                egui::FontId::proportional(13.0),
+                theme::PENCIL,
+            );
+            return;
+        };
+        let rows = self.rows.max(1) as f32;
+        let held_f = held as f32;
+        // Newest row (ring index head) at the top, going back in time downwards: the ring is
+        // drawn as up to two pieces with vertically flipped uv.
+        let row_h = rect.height() / held_f.max(1.0);
+        let head = self.head as f32;
+        // piece 1: ring rows head, head−1, … 0 → top part
+        let n1 = (head + 1.0).min(held_f);
+        let top = Rect::from_min_size(rect.min, vec2(rect.width(), row_h * n1));
+        let uv1 = Rect::from_min_max(
+            pos2(0.0, (head + 1.0) / rows),
+            pos2(1.0, (head + 1.0 - n1) / rows),
+        );
+        painter.image(tex.id(), top, uv1, Color32::WHITE);
+        let n2 = held_f - n1;
+        if n2 > 0.0 {
+            let bottom =
+                Rect::from_min_size(pos2(rect.min.x, top.max.y), vec2(rect.width(), row_h * n2));
+            let uv2 = Rect::from_min_max(pos2(0.0, 1.0), pos2(1.0, (rows - n2) / rows));
+            painter.image(tex.id(), bottom, uv2, Color32::WHITE);
+        }
+        // Frequency ticks (log axis) under the image.
+        let (lo, hi) = last.range_hz;
+        let (llo, lhi) = (lo.log10(), hi.log10());
+        let axis_y = rect.max.y;
+        let mut d = llo.ceil() as i64;
+        while (d as f64) <= lhi {
+            let x = rect.min.x + rect.width() * ((d as f64 - llo) / (lhi - llo)) as f32;
+            painter.line_segment(
+                [pos2(x, axis_y - 5.0), pos2(x, axis_y)],
+                egui::Stroke::new(1.0, theme::INK),
+            );
+            d += 1;
+        }
+        ui.horizontal(|ui| {
+            ui.label(
+                RichText::new(format!(
+                    "{} … {} (log)",
+                    format_hz(lo, lo),
+                    format_hz(hi, hi * 0.01)
+                ))
+                .small(),
+            );
+            if let Some((a, b)) = self.range {
+                ui.label(
+                    RichText::new(format!(
+                        "colour: {} … {} V²/Hz",
+                        format_power(10f64.powf(f64::from(a))),
+                        format_power(10f64.powf(f64::from(b)))
+                    ))
+                    .small()
+                    .color(theme::PENCIL),
+                );
+            }
+        });
+        if let Some(p) = resp.hover_pos() {
+            let u = f64::from((p.x - rect.min.x) / rect.width());
+            let f = 10f64.powf(llo + u * (lhi - llo));
+            let k = ((p.y - rect.min.y) / row_h) as usize;
+            if let Some(r) = held.checked_sub(1 + k).and_then(|i| wf.rows().get(i)) {
+                let age = last.time_s - r.time_s;
+                resp.on_hover_text(format!("{} · {age:.0} s ago", format_hz(f, f * 1e-4)));
+            }
+        }
+    }
+}
+
+fn trends_ui(ui: &mut Ui, live: &LiveState, height: f32) {
+    ui.label(RichText::new("Trends against elapsed time").strong());
+    let t = &live.trends;
+    let strips: [(&str, Vec<[f64; 2]>, Color32); 4] = [
+        ("f_m (Hz)", t.series(|p| p.frequency_hz), theme::TRACE),
+        ("γ (Hz)", t.series(|p| p.linewidth_hz), theme::FIT),
+        ("occupancy n", t.series(|p| p.occupancy), theme::ZERO_POINT),
+        ("m/V", t.series(|p| p.m_per_v), theme::TONE),
+    ];
+    let strip_h = ((height - 40.0) / 4.0 - 6.0).max(36.0);
+    let link = ui.scope_id().with("trend_link");
+    for (i, (name, pts, colour)) in strips.into_iter().enumerate() {
+        let last = pts.last().map(|p| p[1]);
+        ui.horizontal(|ui| {
+            ui.label(RichText::new(name).small().strong());
+            if let Some(v) = last {
+                ui.label(
+                    RichText::new(super::axes::format_sig(v, 5))
+                        .small()
+                        .monospace(),
+                );
+            }
+        });
+        Plot::new(("trend", i))
+            .height(strip_h)
+            .link_axis(link, Vec2bX::X)
+            .show_axes([i == 3, true])
+            .allow_scroll(false)
+            .y_axis_min_width(56.0)
+            .x_axis_formatter(|m, _| format!("{:.0} s", m.value))
+            .show(ui, |pui| {
+                pui.line(
+                    Line::new(name, PlotPoints::new(pts))
+                        .color(colour)
+                        .width(1.5),
+                );
+            });
+    }
+}
+
+/// Link only the time axis of the strips.
+struct Vec2bX;
+
+impl Vec2bX {
+    const X: egui::Vec2b = egui::Vec2b { x: true, y: false };
+}

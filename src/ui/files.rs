@@ -1,0 +1,394 @@
+//! Files from the window: snapshot save/load/overlay/compare (through `crate::snapshot`),
+//! PNG export of the window, and native file dialogs (rfd) with a typed-path fallback that
+//! always works. A file is never replaced without asking.
+
+use std::path::{Path, PathBuf};
+
+use eframe::egui::{self, ColorImage, RichText, Ui};
+
+use super::{StillpointApp, UiCommand, theme};
+use crate::model::{AppState, LoadedSnapshot};
+
+/// What the overwrite question is about.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum ConfirmKind {
+    /// A snapshot.
+    #[default]
+    Snapshot,
+    /// A PNG export.
+    Png,
+}
+
+/// Typed paths and dialog availability.
+#[derive(Debug, Clone, Default)]
+pub struct FileState {
+    /// Snapshot path (JSON; the CSV goes beside it).
+    pub snapshot_path: String,
+    /// Label saved with the snapshot ("4 K, 20 µW").
+    pub snapshot_label: String,
+    /// PNG export path.
+    pub png_path: String,
+    /// A path waiting for "replace?".
+    pub confirm_overwrite: Option<PathBuf>,
+    /// What that question is about.
+    pub confirm_kind: ConfirmKind,
+    /// Whether a native dialog can be shown at all.
+    pub dialogs: bool,
+    /// Shown when a dialog could not be opened.
+    pub dialog_note: Option<String>,
+    compare: Option<(usize, usize)>,
+}
+
+/// True if a native file dialog has a chance of opening (a D-Bus session for the desktop
+/// portal, or `zenity` on the PATH).
+fn dialogs_available() -> bool {
+    if std::env::var_os("DBUS_SESSION_BUS_ADDRESS").is_some() {
+        return true;
+    }
+    std::env::var_os("PATH")
+        .is_some_and(|paths| std::env::split_paths(&paths).any(|d| d.join("zenity").is_file()))
+}
+
+impl FileState {
+    /// Fresh state; probes for a dialog service.
+    pub fn new() -> Self {
+        Self {
+            dialogs: dialogs_available(),
+            ..Self::default()
+        }
+    }
+
+    fn no_dialog(&mut self) {
+        self.dialog_note = Some(
+            "No file dialog service on this system (no desktop portal, no zenity): type the \
+             path in the field instead."
+                .into(),
+        );
+    }
+
+    /// Native "open" dialog for a source; `None` if cancelled or unavailable.
+    pub fn browse_source(&mut self) -> Option<PathBuf> {
+        if !self.dialogs {
+            self.no_dialog();
+            return None;
+        }
+        let p = rfd::FileDialog::new()
+            .add_filter(
+                "recordings",
+                &["wav", "WAV", "raw", "bin", "dat", "f32", "i16"],
+            )
+            .add_filter("all files", &["*"])
+            .pick_file();
+        if p.is_none() {
+            self.dialog_note = Some("no file chosen (if no dialog appeared, type the path)".into());
+        }
+        p
+    }
+
+    /// Native "save" dialog for the PNG export.
+    pub fn browse_png(&mut self) {
+        if !self.dialogs {
+            self.no_dialog();
+            return;
+        }
+        if let Some(p) = rfd::FileDialog::new()
+            .add_filter("PNG", &["png"])
+            .set_file_name("stillpoint.png")
+            .save_file()
+        {
+            self.png_path = p.display().to_string();
+        }
+    }
+
+    fn browse_snapshot(&mut self, save: bool) {
+        if !self.dialogs {
+            self.no_dialog();
+            return;
+        }
+        let d = rfd::FileDialog::new().add_filter("snapshot (JSON)", &["json"]);
+        let p = if save {
+            d.set_file_name("snapshot.json").save_file()
+        } else {
+            d.pick_file()
+        };
+        if let Some(p) = p {
+            self.snapshot_path = p.display().to_string();
+        }
+    }
+}
+
+/// A new snapshot path in the last folder, named by the local date and time.
+pub fn auto_snapshot_path(state: &AppState) -> String {
+    let dir = state
+        .last_snapshot_dir
+        .clone()
+        .or_else(|| std::env::current_dir().ok())
+        .unwrap_or_default();
+    let secs = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map_or(0, |d| d.as_secs());
+    for i in 0..1000 {
+        let name = if i == 0 {
+            format!("stillpoint-snapshot-{secs}.json")
+        } else {
+            format!("stillpoint-snapshot-{secs}-{i}.json")
+        };
+        let p = dir.join(name);
+        if !p.exists() {
+            return p.display().to_string();
+        }
+    }
+    dir.join("stillpoint-snapshot.json").display().to_string()
+}
+
+/// Writes `image` as PNG to `path` atomically (temporary file + rename); an existing file is
+/// replaced only with `overwrite`.
+///
+/// # Errors
+/// The file exists (without `overwrite`), or it cannot be encoded or written.
+pub fn write_png(path: &Path, image: &ColorImage, overwrite: bool) -> Result<(), String> {
+    let [w, h] = image.size;
+    let bytes: Vec<u8> = image.pixels.iter().flat_map(|c| c.to_array()).collect();
+    let buffer = image::RgbaImage::from_raw(w as u32, h as u32, bytes)
+        .ok_or_else(|| "the screenshot has an inconsistent size".to_string())?;
+    crate::snapshot::write_atomic(path, overwrite, |file| {
+        buffer
+            .write_to(file, image::ImageFormat::Png)
+            .map_err(|e| e.to_string())
+    })
+    .map_err(|e| match e {
+        crate::snapshot::AtomicError::Io(e) => format!("{}: {e}", path.display()),
+        crate::snapshot::AtomicError::Inner(e) => format!("{}: {e}", path.display()),
+    })
+}
+
+/// The snapshot list: save (typed path or dialog), load, overlay, reference, compare.
+pub fn snapshots_ui(
+    ui: &mut Ui,
+    files: &mut FileState,
+    snapshots: &mut Vec<LoadedSnapshot>,
+    reference: &mut Option<usize>,
+    state: &mut AppState,
+) -> Vec<UiCommand> {
+    let mut out = Vec::new();
+    ui.label(RichText::new("Snapshots").strong().size(16.0));
+    let l1 = ui.label("snapshot path (JSON; the CSV is written beside it):");
+    ui.add(
+        egui::TextEdit::singleline(&mut files.snapshot_path)
+            .hint_text("/path/to/snapshot.json")
+            .desired_width(f32::INFINITY),
+    )
+    .labelled_by(l1.id);
+    ui.horizontal(|ui| {
+        let l2 = ui.label("label");
+        ui.add(
+            egui::TextEdit::singleline(&mut files.snapshot_label)
+                .hint_text("e.g. 4 K, 20 µW")
+                .desired_width(150.0),
+        )
+        .labelled_by(l2.id);
+    });
+    ui.horizontal(|ui| {
+        if ui.button("Save snapshot").clicked() {
+            out.push(UiCommand::SaveSnapshot { overwrite: false });
+        }
+        if ui.button("Load snapshot").clicked() {
+            out.push(UiCommand::LoadSnapshot);
+        }
+        if ui.button("Browse…").clicked() {
+            files.browse_snapshot(files.snapshot_path.trim().is_empty());
+        }
+    });
+    if let Some(n) = &files.dialog_note {
+        ui.label(RichText::new(n).small().color(theme::WARN));
+    }
+    let mut remove = None;
+    for (i, s) in snapshots.iter_mut().enumerate() {
+        ui.horizontal(|ui| {
+            let colour = theme::SNAPSHOT_COLOURS[i % theme::SNAPSHOT_COLOURS.len()];
+            ui.label(RichText::new("■").color(colour));
+            ui.checkbox(&mut s.visible, &s.name);
+            let is_ref = *reference == Some(i);
+            if ui
+                .selectable_label(is_ref, "reference")
+                .on_hover_text("mark stray resonances that are not in this snapshot as new")
+                .clicked()
+            {
+                *reference = if is_ref { None } else { Some(i) };
+            }
+            if ui
+                .small_button("×")
+                .on_hover_text("remove from the list")
+                .clicked()
+            {
+                remove = Some(i);
+            }
+        });
+    }
+    if let Some(i) = remove {
+        snapshots.remove(i);
+        *reference = match *reference {
+            Some(r) if r == i => None,
+            Some(r) if r > i => Some(r - 1),
+            other => other,
+        };
+        files.compare = None;
+    }
+    if snapshots.len() >= 2 {
+        let (mut a, mut b) = files.compare.unwrap_or((0, 1));
+        ui.horizontal(|ui| {
+            ui.label("compare");
+            let name = |i: usize| snapshots.get(i).map_or("—".to_string(), |s| s.name.clone());
+            egui::ComboBox::from_id_salt("cmp_a")
+                .selected_text(name(a))
+                .show_ui(ui, |ui| {
+                    for i in 0..snapshots.len() {
+                        ui.selectable_value(&mut a, i, name(i));
+                    }
+                });
+            let l3 = ui.label("÷");
+            let _ = egui::ComboBox::from_id_salt("cmp_b")
+                .selected_text(name(b))
+                .show_ui(ui, |ui| {
+                    for i in 0..snapshots.len() {
+                        ui.selectable_value(&mut b, i, name(i));
+                    }
+                })
+                .response
+                .labelled_by(l3.id);
+        });
+        files.compare = Some((a, b));
+        if let (Some(sa), Some(sb)) = (snapshots.get(a), snapshots.get(b))
+            && a != b
+        {
+            match crate::snapshot::compare(&sa.spectrum, &sb.spectrum) {
+                Ok(c) => {
+                    let pts: Vec<[f64; 2]> = c
+                        .frequency_hz
+                        .iter()
+                        .zip(&c.ratio)
+                        .filter(|(f, r)| **f > 0.0 && **r > 0.0 && r.is_finite())
+                        .map(|(f, r)| [f.log10(), 10.0 * r.log10()])
+                        .collect();
+                    let pts = crate::model::decimate_minmax(
+                        &pts.iter().map(|p| 10f64.powf(p[0])).collect::<Vec<_>>(),
+                        &pts.iter().map(|p| p[1]).collect::<Vec<_>>(),
+                        (
+                            c.frequency_hz.get(1).copied().unwrap_or(1.0),
+                            c.frequency_hz.last().copied().unwrap_or(10.0),
+                        ),
+                        400,
+                    );
+                    ui.label(
+                        RichText::new(format!("{} ÷ {} (dB)", sa.name, sb.name))
+                            .small()
+                            .color(theme::PENCIL),
+                    );
+                    egui_plot::Plot::new("compare")
+                        .height(110.0)
+                        .x_axis_formatter(super::axes::frequency_tick)
+                        .x_grid_spacer(super::axes::log_spacer)
+                        .y_axis_label("dB")
+                        .show(ui, |pui| {
+                            pui.line(
+                                egui_plot::Line::new("ratio", egui_plot::PlotPoints::new(pts))
+                                    .color(theme::TRACE),
+                            );
+                        });
+                }
+                Err(e) => {
+                    ui.label(RichText::new(e.to_string()).color(theme::WARN));
+                }
+            }
+        }
+    }
+    let _ = state;
+    out
+}
+
+impl StillpointApp {
+    fn typed_path(text: &str, what: &str) -> Result<PathBuf, String> {
+        let t = text.trim();
+        if t.is_empty() {
+            Err(format!("type a path for the {what} first"))
+        } else {
+            Ok(PathBuf::from(t))
+        }
+    }
+
+    pub(super) fn save_snapshot(&mut self, overwrite: bool) {
+        let path = match Self::typed_path(&self.files.snapshot_path, "snapshot") {
+            Ok(p) => p,
+            Err(e) => return self.error(e),
+        };
+        let Some(frame) = self.live.frame.clone() else {
+            return self.error("nothing to save yet: no spectrum has arrived");
+        };
+        let Some(spectrum) = frame.spectrum.clone() else {
+            return self.error("nothing to save yet: no spectrum has arrived");
+        };
+        if !overwrite && path.exists() {
+            self.files.confirm_overwrite = Some(path);
+            self.files.confirm_kind = ConfirmKind::Snapshot;
+            return;
+        }
+        let label = self.files.snapshot_label.trim().to_string();
+        let result = crate::model::snapshots::save(
+            &path,
+            &spectrum,
+            frame.report.as_deref(),
+            &self.source,
+            &label,
+            overwrite,
+        );
+        match result {
+            Ok(saved) => {
+                if let Some(dir) = path.parent() {
+                    self.state.last_snapshot_dir = Some(dir.to_path_buf());
+                }
+                self.info(format!("snapshot saved: {}", saved.path.display()));
+                self.snapshots.push(saved);
+            }
+            Err(e) => self.error(format!("cannot save the snapshot: {e}")),
+        }
+    }
+
+    pub(super) fn load_snapshot(&mut self) {
+        let path = match Self::typed_path(&self.files.snapshot_path, "snapshot") {
+            Ok(p) => p,
+            Err(e) => return self.error(e),
+        };
+        match crate::model::snapshots::load(&path) {
+            Ok(s) => {
+                if let Some(dir) = path.parent() {
+                    self.state.last_snapshot_dir = Some(dir.to_path_buf());
+                }
+                self.info(format!(
+                    "snapshot loaded: {} ({} bins)",
+                    s.name,
+                    s.frequencies_hz.len()
+                ));
+                self.snapshots.push(s);
+            }
+            Err(e) => self.error(format!("cannot load {}: {e}", path.display())),
+        }
+    }
+
+    pub(super) fn export_png(&mut self, ctx: &egui::Context, overwrite: bool) {
+        let path = match Self::typed_path(&self.files.png_path, "PNG export") {
+            Ok(p) => p,
+            Err(e) => return self.error(e),
+        };
+        if !overwrite && path.exists() {
+            self.files.confirm_overwrite = Some(path);
+            self.files.confirm_kind = ConfirmKind::Png;
+            return;
+        }
+        let ctx2 = ctx.clone();
+        ctx.request_screenshot(move |image| {
+            let _ = write_png(&path, &image, overwrite);
+            ctx2.request_repaint();
+        });
+        self.info("PNG export requested (written after the next frame)");
+    }
+}

@@ -1,0 +1,410 @@
+//! The rolling spectrum: log-log (or log-dB) plot of the live PSD in the chosen unit with the
+//! overlays (fitted mode, zero-point spectrum and its peak level, SQL of the added noise,
+//! thermal expectation at the bath temperature, snapshots, fit band, stray-resonance and tone
+//! markers). The trace is min/max-decimated to the pixel columns of the current view before
+//! drawing, so a 10⁶-bin spectrum costs about a millisecond per frame and narrow lines stay.
+
+use std::ops::RangeInclusive;
+
+use eframe::egui::{self, Ui, Vec2b};
+use egui_plot::{
+    Corner, GridMark, HLine, Legend, Line, LineStyle, MarkerShape, Plot, PlotBounds, PlotPoints,
+    Points, Span, VLine,
+};
+
+use super::UiCommand;
+use super::axes::{format_hz, format_power, frequency_tick, log_spacer, power_tick};
+use super::theme;
+use crate::dsp::units::DensityUnit;
+use crate::model::curves::{ModeShape, grid_around_mode};
+use crate::model::state::{
+    plot_y, plot_y_from_m2, unit_is_db, unit_is_displacement, unit_label, unit_short,
+};
+use crate::model::{AppState, LiveState, LoadedSnapshot, decimate_minmax};
+
+/// Plot-side state: view requests, band dragging, cached per-bin y values.
+#[derive(Debug, Default)]
+pub struct PlotState {
+    /// Dragging on the plot sets the fit band.
+    pub band_mode: bool,
+    band_drag_start: Option<f64>,
+    /// Set x bounds (log10 Hz) on the next frame.
+    pub request_x: Option<(f64, f64)>,
+    /// Whole span on the next frame.
+    pub reset_view: bool,
+    /// Re-fit the y range to the data in view on the next frame.
+    pub reset_y: bool,
+    view_initialised: bool,
+    cache_key: Option<(u64, DensityUnit, u64)>,
+    freqs: Vec<f64>,
+    ys: Vec<f64>,
+}
+
+fn y_range_in(freqs: &[f64], ys: &[f64], x_hz: (f64, f64)) -> Option<(f64, f64)> {
+    let mut lo = f64::INFINITY;
+    let mut hi = f64::NEG_INFINITY;
+    let a = freqs.partition_point(|&f| f < x_hz.0);
+    let b = freqs.partition_point(|&f| f <= x_hz.1);
+    for &y in ys.get(a..b)? {
+        if y.is_finite() {
+            lo = lo.min(y);
+            hi = hi.max(y);
+        }
+    }
+    (lo.is_finite() && hi > lo).then_some((lo, hi))
+}
+
+impl PlotState {
+    fn refresh_cache(&mut self, live: &LiveState, unit: DensityUnit, m_per_v: Option<f64>) {
+        let key = (live.frames_applied, unit, m_per_v.map_or(0, f64::to_bits));
+        if self.cache_key == Some(key) {
+            return;
+        }
+        self.cache_key = Some(key);
+        let Some(s) = live.frame.as_ref().and_then(|f| f.spectrum.as_ref()) else {
+            self.freqs.clear();
+            self.ys.clear();
+            return;
+        };
+        if self.freqs.len() != s.len() || self.freqs.get(1).copied() != Some(s.resolution_hz) {
+            self.freqs = s.frequencies_hz();
+        }
+        self.ys.clear();
+        self.ys.extend(
+            s.psd_v2_per_hz
+                .iter()
+                .map(|&p| plot_y(p, unit, m_per_v).unwrap_or(f64::NAN)),
+        );
+    }
+
+    /// Draws the spectrum plot `height` points tall. Returns the commands it asks for.
+    pub fn spectrum_ui(
+        &mut self,
+        ui: &mut Ui,
+        height: f32,
+        live: &LiveState,
+        state: &AppState,
+        snapshots: &[LoadedSnapshot],
+    ) -> Vec<UiCommand> {
+        let mut out = Vec::new();
+        let unit = state.unit;
+        let frame = live.frame.as_ref();
+        let report = frame.and_then(|f| f.report.clone());
+        let m_per_v = report
+            .as_ref()
+            .and_then(|r| r.calibration.m_per_v)
+            .filter(|c| c.is_finite() && *c > 0.0);
+        self.refresh_cache(live, unit, m_per_v);
+        let have_data = !self.ys.is_empty() && self.ys.iter().any(|y| y.is_finite());
+        if !have_data {
+            let text = if unit_is_displacement(unit) && m_per_v.is_none() && !self.freqs.is_empty()
+            {
+                format!(
+                    "No calibration yet: {} needs one (choose a method under 'Calibration and \
+                     mode', or switch to a voltage unit).",
+                    unit_short(unit)
+                )
+            } else {
+                "Waiting for the first averaged spectrum…".to_string()
+            };
+            ui.allocate_ui(egui::vec2(ui.available_width(), height), |ui| {
+                ui.centered_and_justified(|ui| {
+                    ui.label(egui::RichText::new(text).color(theme::PENCIL).size(15.0));
+                });
+            });
+            return out;
+        }
+        let full_x = (
+            self.freqs.get(1).copied().unwrap_or(1.0).log10(),
+            self.freqs.last().copied().unwrap_or(10.0).log10(),
+        );
+        let db = unit_is_db(unit);
+        let freqs = &self.freqs;
+        let ys = &self.ys;
+        let band = frame.and_then(|f| f.band_hz);
+        let mode = report.as_ref().and_then(|r| {
+            let f = r.mode.frequency_hz.filter(|v| v.is_finite() && *v > 0.0)?;
+            let g = r.mode.linewidth_hz.filter(|v| v.is_finite() && *v > 0.0)?;
+            Some((
+                ModeShape {
+                    frequency_hz: f,
+                    linewidth_hz: g,
+                },
+                r.mode.variance_v2,
+                r.mode.background_psd_v2_per_hz,
+            ))
+        });
+        let mass = state.calibration.mass_kg;
+        let bath_t = state.calibration.bath_temperature_k;
+        let overlays = state.overlays.clone();
+        let peaks = report.as_ref().map(|r| r.peaks.clone()).unwrap_or_default();
+        let tone = report
+            .as_ref()
+            .and_then(|r| r.calibration.tone_frequency_hz);
+        let band_mode = self.band_mode;
+        let mut request_bounds: Option<PlotBounds> = None;
+        if self.reset_view || !self.view_initialised {
+            self.reset_view = false;
+            self.view_initialised = true;
+            self.request_x = Some(full_x);
+            self.reset_y = true;
+        }
+        if let Some((x0, x1)) = self.request_x.take() {
+            let (y0, y1) =
+                y_range_in(freqs, ys, (10f64.powf(x0), 10f64.powf(x1))).unwrap_or((-1.0, 1.0));
+            let pad = if db { 3.0 } else { 0.3 };
+            request_bounds = Some(PlotBounds::from_min_max([x0, y0 - pad], [x1, y1 + pad]));
+            self.reset_y = false;
+        }
+        let reset_y = std::mem::take(&mut self.reset_y);
+        let mut drag_start = self.band_drag_start;
+        let mut band_set: Option<(f64, f64)> = None;
+        let mut want_reset = false;
+
+        let y_label = unit_label(unit);
+        let y_fmt = move |mark: GridMark, range: &RangeInclusive<f64>| {
+            if db {
+                format!("{:.0}", mark.value)
+            } else {
+                power_tick(mark, range)
+            }
+        };
+        let hover_unit = unit_short(unit);
+        let mut plot = Plot::new("spectrum")
+            .height(height)
+            .legend(
+                Legend::default()
+                    .position(Corner::RightTop)
+                    .background_alpha(0.85),
+            )
+            .x_axis_label("frequency")
+            .y_axis_label(y_label)
+            .x_grid_spacer(log_spacer)
+            .x_axis_formatter(frequency_tick)
+            .y_axis_formatter(y_fmt)
+            .y_axis_min_width(56.0)
+            .auto_bounds(Vec2b::new(false, false))
+            .allow_double_click_reset(false)
+            .allow_drag(!band_mode)
+            .allow_boxed_zoom(!band_mode)
+            .label_formatter(move |pos| {
+                let p = match pos {
+                    egui_plot::HoverPosition::NearDataPoint { position, .. }
+                    | egui_plot::HoverPosition::Elsewhere { position } => *position,
+                };
+                let f = 10f64.powf(p.x);
+                let y = if db {
+                    format!("{:.1} {hover_unit}", p.y)
+                } else {
+                    format!("{:.3e} {hover_unit}", 10f64.powf(p.y))
+                };
+                Some(format!("{}\n{y}", format_hz(f, f * 1e-5)))
+            });
+        if !db {
+            plot = plot.y_grid_spacer(log_spacer);
+        }
+        plot.show(ui, |pui| {
+            if let Some(b) = request_bounds {
+                pui.set_plot_bounds(b);
+            }
+            let bounds = pui.plot_bounds();
+            let (x0, x1) = (bounds.min()[0], bounds.max()[0]);
+            let view_hz = (10f64.powf(x0), 10f64.powf(x1));
+            if reset_y && let Some((y0, y1)) = y_range_in(freqs, ys, view_hz) {
+                let pad = if db { 3.0 } else { 0.3 };
+                pui.set_plot_bounds_y(y0 - pad..=y1 + pad);
+            }
+            let columns = pui.response().rect.width().max(100.0) as usize;
+
+            // Fit band (shaded) first, so the traces draw over it.
+            if overlays.band
+                && let Some((lo, hi)) = band
+            {
+                pui.add(
+                    Span::new("fit band", lo.log10()..=hi.log10())
+                        .fill(theme::BAND)
+                        .border_width(0.0),
+                );
+            }
+            // Snapshots.
+            if overlays.snapshots {
+                for (i, s) in snapshots.iter().filter(|s| s.visible).enumerate() {
+                    let c = s.m_per_v.or(m_per_v);
+                    let sy: Vec<f64> = s
+                        .spectrum
+                        .psd_v2_per_hz
+                        .iter()
+                        .map(|&p| plot_y(p, unit, c).unwrap_or(f64::NAN))
+                        .collect();
+                    let pts = decimate_minmax(&s.frequencies_hz, &sy, view_hz, columns);
+                    if !pts.is_empty() {
+                        let colour = theme::SNAPSHOT_COLOURS[i % theme::SNAPSHOT_COLOURS.len()];
+                        pui.line(
+                            Line::new(format!("snapshot: {}", s.name), PlotPoints::new(pts))
+                                .color(colour)
+                                .width(1.0),
+                        );
+                    }
+                }
+            }
+            // The live trace.
+            let pts = decimate_minmax(freqs, ys, view_hz, columns);
+            pui.line(
+                Line::new("live spectrum", PlotPoints::new(pts))
+                    .color(theme::TRACE)
+                    .width(1.3),
+            );
+            // Reference curves of the fitted mode.
+            if let Some((shape, area_v2, background_v2)) = mode {
+                let grid = grid_around_mode(view_hz, 500, shape);
+                let curve = |f: &dyn Fn(f64) -> Option<f64>| -> Vec<[f64; 2]> {
+                    grid.iter()
+                        .filter_map(|&x| f(x).map(|y| [x.log10(), y]))
+                        .collect()
+                };
+                if overlays.fit
+                    && let (Some(a), Some(b)) = (area_v2, background_v2)
+                {
+                    let (blo, bhi) = band.unwrap_or((
+                        shape.frequency_hz - 25.0 * shape.linewidth_hz,
+                        shape.frequency_hz + 25.0 * shape.linewidth_hz,
+                    ));
+                    let pts = curve(&|f| {
+                        if f < blo || f > bhi {
+                            None
+                        } else {
+                            plot_y(b + shape.line(f, a), unit, m_per_v)
+                        }
+                    });
+                    pui.line(
+                        Line::new("fitted mode", PlotPoints::new(pts))
+                            .color(theme::FIT)
+                            .width(2.0),
+                    );
+                }
+                if let Some(m) = mass.filter(|m| *m > 0.0) {
+                    if overlays.thermal && bath_t > 0.0 {
+                        let pts = curve(&|f| {
+                            plot_y_from_m2(shape.thermal_m2_per_hz(f, m, bath_t), unit, m_per_v)
+                        });
+                        pui.line(
+                            Line::new(
+                                format!("thermal at {bath_t} K (bath)"),
+                                PlotPoints::new(pts),
+                            )
+                            .color(theme::THERMAL)
+                            .style(LineStyle::Dashed { length: 8.0 })
+                            .width(1.5),
+                        );
+                    }
+                    if overlays.sql {
+                        let pts =
+                            curve(&|f| plot_y_from_m2(shape.sql_m2_per_hz(f, m), unit, m_per_v));
+                        pui.line(
+                            Line::new("SQL (added noise)", PlotPoints::new(pts))
+                                .color(theme::SQL)
+                                .style(LineStyle::Dotted { spacing: 5.0 })
+                                .width(1.6),
+                        );
+                    }
+                    if overlays.zero_point {
+                        let pts = curve(&|f| {
+                            plot_y_from_m2(shape.zero_point_m2_per_hz(f, m), unit, m_per_v)
+                        });
+                        pui.line(
+                            Line::new("zero-point spectrum", PlotPoints::new(pts))
+                                .color(theme::ZERO_POINT)
+                                .width(1.6),
+                        );
+                        let peak = shape.zero_point_m2_per_hz(shape.frequency_hz, m);
+                        if let Some(y) = plot_y_from_m2(peak, unit, m_per_v) {
+                            let label =
+                                format!("zero-point peak {} {}", format_power_short(peak), "m²/Hz");
+                            pui.add(
+                                HLine::new(label, y)
+                                    .color(theme::ZERO_POINT)
+                                    .style(LineStyle::Dashed { length: 4.0 })
+                                    .width(1.0),
+                            );
+                        }
+                    }
+                }
+            }
+            // Calibration tone and stray resonances.
+            if let Some(t) = tone.filter(|t| *t > 0.0) {
+                pui.add(
+                    VLine::new("calibration tone", t.log10())
+                        .color(theme::TONE)
+                        .style(LineStyle::Dashed { length: 3.0 })
+                        .width(1.0),
+                );
+            }
+            if overlays.peaks && !peaks.is_empty() {
+                let pts: Vec<[f64; 2]> = peaks
+                    .iter()
+                    .filter_map(|p| {
+                        let k = freqs.partition_point(|&f| f < p.frequency_hz);
+                        let y = (k.saturating_sub(2)..(k + 2).min(ys.len()))
+                            .filter_map(|j| ys.get(j).copied())
+                            .filter(|y| y.is_finite())
+                            .fold(f64::NEG_INFINITY, f64::max);
+                        y.is_finite()
+                            .then(|| [p.frequency_hz.log10(), y + if db { 2.0 } else { 0.15 }])
+                    })
+                    .collect();
+                pui.points(
+                    Points::new("stray resonances", PlotPoints::new(pts))
+                        .shape(MarkerShape::Down)
+                        .color(theme::PEAK)
+                        .filled(true)
+                        .radius(4.0),
+                );
+            }
+            // Band dragging.
+            let resp = pui.response().clone();
+            if band_mode {
+                if resp.drag_started() {
+                    drag_start = pui.pointer_coordinate().map(|p| p.x);
+                }
+                if let (Some(a), Some(p)) = (drag_start, pui.pointer_coordinate()) {
+                    let (lo, hi) = if a <= p.x { (a, p.x) } else { (p.x, a) };
+                    pui.add(
+                        Span::new("new band", lo..=hi)
+                            .fill(egui::Color32::from_rgba_unmultiplied(184, 78, 52, 40))
+                            .border_color(theme::FIT),
+                    );
+                    if resp.drag_stopped() {
+                        band_set = Some((10f64.powf(lo), 10f64.powf(hi)));
+                        drag_start = None;
+                    }
+                }
+            } else if resp.double_clicked() {
+                want_reset = true;
+            }
+        });
+        self.band_drag_start = drag_start;
+        if let Some((lo, hi)) = band_set {
+            self.band_mode = false;
+            if hi > lo * (1.0 + 1e-7) {
+                out.push(UiCommand::SetBand(lo, hi));
+            }
+        }
+        if want_reset {
+            self.reset_view = true;
+        }
+        out
+    }
+}
+
+fn format_power_short(v: f64) -> String {
+    if !(v.is_finite() && v > 0.0) {
+        return "—".into();
+    }
+    let e = v.log10().floor();
+    let m = v / 10f64.powf(e);
+    if (m - 1.0).abs() < 0.005 {
+        format_power(10f64.powf(e))
+    } else {
+        format!("{m:.2}×{}", format_power(10f64.powf(e)))
+    }
+}
