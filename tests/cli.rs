@@ -971,7 +971,6 @@ fn synth_writes_a_wav_hound_can_read_and_a_truth_sidecar() {
 }
 
 #[test]
-#[ignore = "pending the bench command wiring"]
 fn bench_reports_throughput_headroom_and_floor() {
     let output = run(&[
         "bench",

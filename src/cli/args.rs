@@ -555,6 +555,9 @@ pub struct BenchArgs {
     /// Seconds of measurement in total (split over several runs; the median is quoted).
     #[arg(long, default_value_t = 3.0, value_name = "S", value_parser = parse_positive)]
     pub seconds: f64,
+    /// Worker threads of the averager (default: one per core, as spectrum/analyze use).
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u64).range(1..=64))]
+    pub threads: Option<u64>,
     /// Print machine-readable JSON instead of text.
     #[arg(long)]
     pub json: bool,

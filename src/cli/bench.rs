@@ -1,17 +1,172 @@
-//! `stillpoint bench`: can this machine keep up with a given rate and segment?
+//! `stillpoint bench`: can this machine keep up with a given rate and segment? Measures the
+//! Welch averager's sustained throughput and the bare-FFT floor ([`crate::dsp::bench`]) and
+//! the window's per-frame plot preparation ([`crate::model::bench_plot_prep`]); quotes
+//! medians of several runs.
 
+use std::io::{self, Write};
 use std::process::ExitCode;
 
-use anyhow::Result;
+use anyhow::{Context, Result};
+use serde::Serialize;
 
-use super::InputError;
+use crate::dsp::{WelchConfig, bench};
+
 use super::args::BenchArgs;
+use super::config;
+
+/// Measurement runs whose median is quoted.
+const RUNS: usize = 5;
+/// Frame budget of the window at 60 frames per second (ms), for the plot preparation.
+const FRAME_BUDGET_MS: f64 = 1000.0 / 60.0;
+
+/// What `stillpoint bench --json` prints.
+#[derive(Debug, Serialize)]
+struct BenchOutput {
+    rate_hz: f64,
+    segment: usize,
+    window: String,
+    overlap: f64,
+    threads: usize,
+    runs: usize,
+    /// Median sustained Welch throughput, input samples per second.
+    throughput_samples_per_s: f64,
+    /// throughput / rate.
+    headroom: f64,
+    /// headroom > 1.
+    keeps_up: bool,
+    /// Median FFT-only floor on one thread, samples per second.
+    fft_floor_samples_per_s: f64,
+    /// throughput / floor (1 = as fast as the bare FFT on one thread).
+    ratio_to_floor: f64,
+    /// Median time to prepare a 10⁶-bin spectrum for drawing, ms.
+    plot_prep_ms: f64,
+    /// plot_prep_ms within one 60 fps frame.
+    plot_prep_fits_frame: bool,
+}
 
 /// Runs `stillpoint bench`.
 ///
 /// # Errors
-/// Bad options.
+/// Bad options (segment, overlap), stdout closed.
 pub fn run(args: &BenchArgs) -> Result<ExitCode> {
-    let _ = args;
-    Err(InputError("bench: waiting for dsp::bench".into()).into())
+    let welch_args = super::args::WelchArgs {
+        segment: Some(args.segment),
+        overlap: args.overlap,
+        window: args.window,
+        detrend: super::args::DetrendArg::Mean,
+        averages: None,
+        averaging: super::args::AveragingArg::Mean,
+        time_constant: 16.0,
+    };
+    let welch: WelchConfig = config::welch_config(&welch_args, args.rate, None)?;
+    let threads = args
+        .threads
+        .map_or_else(config::worker_threads, |t| t as usize);
+    let slice_s = args.seconds / (2 * RUNS) as f64;
+    let mut welch_rates = Vec::with_capacity(RUNS);
+    let mut floor_rates = Vec::with_capacity(RUNS);
+    for _ in 0..RUNS {
+        let report = bench::compare(&welch, slice_s, threads)?;
+        welch_rates.push(report.welch.samples_per_s);
+        floor_rates.push(report.fft_floor.samples_per_s);
+    }
+    let throughput = median(&mut welch_rates);
+    let floor = median(&mut floor_rates);
+    let plot_prep_ms = crate::model::bench_plot_prep(RUNS).as_secs_f64() * 1e3;
+    let headroom = throughput / args.rate;
+    let output = BenchOutput {
+        rate_hz: args.rate,
+        segment: welch.segment,
+        window: welch.window.name().to_string(),
+        overlap: welch.overlap,
+        threads,
+        runs: RUNS,
+        throughput_samples_per_s: throughput,
+        headroom,
+        keeps_up: headroom > 1.0,
+        fft_floor_samples_per_s: floor,
+        ratio_to_floor: throughput / floor,
+        plot_prep_ms,
+        plot_prep_fits_frame: plot_prep_ms <= FRAME_BUDGET_MS,
+    };
+    let stdout = io::stdout();
+    let mut out = stdout.lock();
+    if args.json {
+        let text = serde_json::to_string_pretty(&output).context("cannot encode the result")?;
+        writeln!(out, "{text}").context("cannot write to stdout")?;
+    } else {
+        write_text(&mut out, &output).context("cannot write to stdout")?;
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+/// Median of `values` (sorted in place); 0 for none.
+fn median(values: &mut [f64]) -> f64 {
+    values.sort_by(f64::total_cmp);
+    let n = values.len();
+    match n {
+        0 => 0.0,
+        _ if n % 2 == 1 => values.get(n / 2).copied().unwrap_or(0.0),
+        _ => {
+            let a = values.get(n / 2 - 1).copied().unwrap_or(0.0);
+            let b = values.get(n / 2).copied().unwrap_or(0.0);
+            0.5 * (a + b)
+        }
+    }
+}
+
+/// The human-readable report.
+fn write_text(out: &mut dyn Write, r: &BenchOutput) -> io::Result<()> {
+    writeln!(
+        out,
+        "Welch averager: segment {} samples, {} window, {} % overlap, {} thread{} (medians of {} runs)",
+        r.segment,
+        r.window,
+        r.overlap * 100.0,
+        r.threads,
+        if r.threads == 1 { "" } else { "s" },
+        r.runs
+    )?;
+    writeln!(
+        out,
+        "  sustained throughput   {:.1} MS/s",
+        r.throughput_samples_per_s / 1e6
+    )?;
+    writeln!(
+        out,
+        "  requested rate         {:.4} MS/s  → headroom {:.1}×",
+        r.rate_hz / 1e6,
+        r.headroom
+    )?;
+    writeln!(out, "  keeps up: {}", if r.keeps_up { "yes" } else { "no" })?;
+    writeln!(
+        out,
+        "  FFT-only floor         {:.1} MS/s (1 thread); averager at {:.2}× the floor",
+        r.fft_floor_samples_per_s / 1e6,
+        r.ratio_to_floor
+    )?;
+    writeln!(
+        out,
+        "Window plot preparation (10⁶-bin spectrum → screen columns): {:.2} ms per frame ({} a 60 fps frame of {:.1} ms)",
+        r.plot_prep_ms,
+        if r.plot_prep_fits_frame {
+            "fits"
+        } else {
+            "exceeds"
+        },
+        FRAME_BUDGET_MS
+    )?;
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn median_of_odd_and_even() {
+        assert_eq!(median(&mut [3.0, 1.0, 2.0]), 2.0);
+        assert_eq!(median(&mut [4.0, 1.0, 3.0, 2.0]), 2.5);
+        assert_eq!(median(&mut []), 0.0);
+    }
 }

@@ -1,6 +1,6 @@
 //! Output files of the headless commands: atomic replacement through
 //! [`crate::snapshot::write_atomic`] (an existing file is only ever replaced by a complete
-//! result), `-` for stdout, and the spectrum CSV.
+//! result) and `-` for stdout.
 
 use std::io::{self, Write};
 use std::path::Path;
@@ -68,74 +68,10 @@ pub fn check_output_path(path: &Path) -> Result<()> {
     Ok(())
 }
 
-/// Shortest text that reads back to the same `f64` (Rust's `Display`/`LowerExp` are both
-/// shortest round-trip); exponent form outside 1e-4 ≤ |x| < 1e16 (as Python's repr) to keep tiny PSDs short.
-pub fn format_number(value: f64) -> String {
-    let magnitude = value.abs();
-    if value == 0.0 || (1e-4..1e16).contains(&magnitude) {
-        format!("{value}")
-    } else {
-        format!("{value:e}")
-    }
-}
-
-/// Writes the spectrum CSV: header `frequency_hz,psd_v2_per_hz[,psd_m2_per_hz]`, one row per
-/// bin.
-///
-/// # Errors
-/// Write failures of `out`.
-pub fn write_spectrum_csv(
-    out: &mut dyn Write,
-    frequencies_hz: &[f64],
-    psd_v2_per_hz: &[f64],
-    m2_per_v2: Option<f64>,
-) -> io::Result<()> {
-    match m2_per_v2 {
-        Some(_) => writeln!(out, "frequency_hz,psd_v2_per_hz,psd_m2_per_hz")?,
-        None => writeln!(out, "frequency_hz,psd_v2_per_hz")?,
-    }
-    for (f, p) in frequencies_hz.iter().zip(psd_v2_per_hz) {
-        match m2_per_v2 {
-            Some(c2) => writeln!(
-                out,
-                "{},{},{}",
-                format_number(*f),
-                format_number(*p),
-                format_number(p * c2)
-            )?,
-            None => writeln!(out, "{},{}", format_number(*f), format_number(*p))?,
-        }
-    }
-    Ok(())
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
     use std::fs;
-
-    #[test]
-    fn numbers_round_trip_and_stay_short() {
-        for x in [
-            0.0,
-            1.0,
-            0.1,
-            1000.0,
-            1.234_567_890_123_456_7e-20,
-            3.0e-5,
-            9.99e-6,
-            2.5e16,
-            f64::MIN_POSITIVE,
-            f64::MAX,
-            123_456.789,
-        ] {
-            let text = format_number(x);
-            assert_eq!(text.parse::<f64>().unwrap(), x, "{text}");
-        }
-        assert_eq!(format_number(1e-20), "1e-20");
-        assert_eq!(format_number(1000.0), "1000");
-        assert_eq!(format_number(0.5), "0.5");
-    }
 
     #[test]
     fn atomic_write_keeps_old_file_on_failure() {

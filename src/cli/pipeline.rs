@@ -18,8 +18,10 @@ use super::InputError;
 use super::args::{SourceArgs, WelchArgs};
 use super::config;
 
-/// Samples per block read from the source.
-const BLOCK_SAMPLES: usize = 1 << 16;
+/// Fewest samples per block read from the source.
+const MIN_BLOCK_SAMPLES: usize = 1 << 16;
+/// Most samples per block (the acquisition layer's limit).
+const MAX_BLOCK_SAMPLES: usize = 1 << 24;
 
 /// A finished spectrum and what happened on the way.
 #[derive(Debug)]
@@ -62,10 +64,12 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
     {
         return Err(too_short(len, welch_config.segment).into());
     }
-    let mut averager = Welch::new(welch_config.clone())?;
+    let threads = config::worker_threads();
+    let mut averager = Welch::new(welch_config.clone())?.with_threads(threads);
     let progress = Progress::new(record_samples);
     let description = reader.describe();
-    let acquisition = Acquisition::spawn(reader, headless_options(), None)?;
+    let options = headless_options(welch_config.segment, welch_config.hop(), threads);
+    let acquisition = Acquisition::spawn(reader, options, None)?;
     let stats = feed(&acquisition, &mut averager, &progress)
         .with_context(|| format!("while reading {}", source_label(&source_config.spec)))?;
     drop(acquisition);
@@ -98,11 +102,13 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
 }
 
 /// Acquisition settings of the headless commands: block on a full channel (no sample is
-/// lost), no pacing, large blocks.
-fn headless_options() -> AcqOptions {
+/// lost), no pacing, and blocks long enough that each push completes 2 × `threads`
+/// segments (so the averager transforms them in parallel), with a few blocks in flight.
+fn headless_options(segment: usize, hop: usize, threads: usize) -> AcqOptions {
+    let wanted = segment.saturating_add(hop.saturating_mul(2 * threads));
     AcqOptions {
-        block_samples: BLOCK_SAMPLES,
-        channel_capacity: 16,
+        block_samples: wanted.clamp(MIN_BLOCK_SAMPLES, MAX_BLOCK_SAMPLES),
+        channel_capacity: 4,
         ..AcqOptions::headless()
     }
 }

@@ -6,6 +6,7 @@ use std::process::ExitCode;
 use anyhow::Result;
 
 use crate::report::{self, AnalysisOptions};
+use crate::snapshot;
 
 use super::args::{HeterodyneArgs, SpectrumArgs};
 use super::config::{self, CalibrationKind};
@@ -24,9 +25,7 @@ pub fn run(args: &SpectrumArgs) -> Result<ExitCode> {
         warn(warning);
     }
     let m_per_v = calibrate(&run.spectrum, kind, &options)?;
-    let m2_per_v2 = m_per_v.map(|c| c * c);
-    let frequencies_hz = run.spectrum.frequencies_hz();
-    if let Some(c2) = m2_per_v2
+    if let Some(c2) = m_per_v.map(|c| c * c)
         && run
             .spectrum
             .psd_v2_per_hz
@@ -39,7 +38,7 @@ pub fn run(args: &SpectrumArgs) -> Result<ExitCode> {
         .into());
     }
     output::write_atomically(&args.output, |out| {
-        output::write_spectrum_csv(out, &frequencies_hz, &run.spectrum.psd_v2_per_hz, m2_per_v2)
+        snapshot::write_spectrum_csv(out, &run.spectrum, m_per_v)
     })?;
     Ok(ExitCode::SUCCESS)
 }
