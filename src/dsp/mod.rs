@@ -1,9 +1,19 @@
-//! Spectral estimation: periodic (DFT-even) windows and the streaming Welch averager.
+//! Spectral estimation: periodic (DFT-even) windows and their constants, the streaming Welch
+//! averager, display units and band integrals, and throughput benchmarks.
 //!
 //! Output is always the **one-sided PSD in V²/Hz** (METHODS.md §1):
 //! `PSD_k = 2 P_k / (f_s S₂)` for 0 < k < N/2 and `P_k / (f_s S₂)` at DC and (N even) Nyquist,
 //! with `P_k` the average of `|Y_k|²` over segments, `S₂ = Σ w²`. Bins run from DC to Nyquist in
 //! ascending frequency, `f_k = k f_s / N`. Computed in f64 with one real-FFT plan per size.
+//!
+//! - [`window`]: [`WindowKind`] samples, [`window::WindowConstants`] (S₁, S₂, NENBW, ENBW,
+//!   −3 dB width, scallop loss, PSLL), overlap correlation, `K_eff`, bin correlation and the
+//!   fit-error inflation factor.
+//! - [`welch`]: [`Welch`] (push blocks of any size; linear, exponential, median, max-hold;
+//!   restart; NaN/Inf segments skipped; optional worker threads) and the [`Spectrum`] it fills.
+//! - [`units`]: [`units::DensityUnit`] conversions, band variance/rms, cumulative rms,
+//!   [`units::tone_power`].
+//! - [`bench`](mod@bench): Welch throughput and the FFT-only floor, for `stillpoint bench`.
 
 pub mod bench;
 mod error;
@@ -13,4 +23,4 @@ pub mod window;
 
 pub use error::{DspError, Result};
 pub use welch::{Averaging, Detrend, Spectrum, Welch, WelchConfig};
-pub use window::WindowKind;
+pub use window::{WindowConstants, WindowKind};

@@ -220,6 +220,25 @@ impl Spectrum {
         k as f64 * self.resolution_hz
     }
 
+    /// Normalised equivalent noise bandwidth `ENBW/Δf = N S₂/S₁²` (bins).
+    pub fn nenbw_bins(&self) -> f64 {
+        if self.resolution_hz > 0.0 {
+            self.enbw_hz / self.resolution_hz
+        } else {
+            0.0
+        }
+    }
+
+    /// Power spectrum `PS_k = PSD_k × ENBW` (V_rms²): the rms² of a tone centred on bin k
+    /// (METHODS.md §1; off-centre tones read low by the window's scallop loss — use
+    /// [`super::units::tone_power`] instead). Never use it for noise.
+    pub fn power_spectrum_v2(&self) -> Vec<f64> {
+        self.psd_v2_per_hz
+            .iter()
+            .map(|p| p * self.enbw_hz)
+            .collect()
+    }
+
     /// All bin frequencies.
     pub fn frequencies_hz(&self) -> Vec<f64> {
         (0..self.len()).map(|k| self.frequency_hz(k)).collect()
