@@ -607,12 +607,19 @@ impl Engine {
                 .zip(self.batch.chunks_mut(per * bins))
                 .zip(self.batch_ok.chunks_mut(per))
                 .enumerate();
+            let mut own = None;
             for (t, ((worker, rows), oks)) in chunks {
                 let first = t * per;
                 if first >= count {
                     break;
                 }
                 let len = per.min(count - first);
+                if t == 0 {
+                    // The caller's thread does the first share itself (warm buffers, one
+                    // spawn fewer).
+                    own = Some((worker, rows, oks, first, len));
+                    continue;
+                }
                 let spawned = std::thread::Builder::new()
                     .name(format!("welch-worker-{t}"))
                     .spawn_scoped(scope, move || {
@@ -621,6 +628,9 @@ impl Engine {
                 if spawned.is_err() {
                     failed.push((t, first, len));
                 }
+            }
+            if let Some((worker, rows, oks, first, len)) = own {
+                run_chunk(worker, (pending, block), first, len, hop, rows, oks);
             }
         });
         // A worker that could not be started: do its share here.
