@@ -1009,3 +1009,125 @@ fn bench_reports_throughput_headroom_and_floor() {
     assert_success(&text, "bench text");
     assert!(stdout(&text).contains("keeps up:"), "{}", stdout(&text));
 }
+
+/// `synth thermal` → `analyze`: the fitted mode and the tone calibration recover the
+/// synthesiser's truth within 4 reported standard deviations (and the reported σ are not
+/// absurdly large: ≤ 10 % of the value). The truth comes from the sidecar, i.e. from the
+/// formulas of METHODS.md §2/§5b as the synthesiser implements them.
+#[test]
+fn analyze_recovers_the_synthesised_truth() {
+    let dir = tempfile::tempdir().unwrap();
+    let wav = dir.path().join("thermal.wav");
+    assert_success(
+        &run(&[
+            "synth",
+            "thermal",
+            "--seed",
+            "5",
+            "--duration",
+            "2",
+            "-o",
+            s(&wav),
+        ]),
+        "synth",
+    );
+    let truth = read_json(&dir.path().join("thermal.truth.json"));
+    let f_m = truth["mode"]["frequency_hz"].as_f64().unwrap();
+    let tone_hz = truth["tone"]["frequency_hz"].as_f64().unwrap();
+    let tone_rms_m = truth["tone"]["rms_m"].as_f64().unwrap();
+    let mass = truth["mode"]["mass_kg"].as_f64().unwrap();
+    let band = format!("{}:{}", f_m - 600.0, f_m + 600.0);
+    let (tone_s, rms_s, mass_s) = (
+        tone_hz.to_string(),
+        tone_rms_m.to_string(),
+        mass.to_string(),
+    );
+    let out = dir.path().join("report.json");
+    let output = run(&[
+        "analyze",
+        s(&wav),
+        "--segment",
+        "16384",
+        "--tone-freq",
+        &tone_s,
+        "--tone-rms-m",
+        &rms_s,
+        "--mode-band",
+        &band,
+        "--mass",
+        &mass_s,
+        "--quiet",
+        "-o",
+        s(&out),
+    ]);
+    assert_success(&output, "analyze");
+    let report = read_json(&out);
+    let checks = [
+        (
+            "mode.frequency_hz",
+            truth["mode"]["frequency_hz"].as_f64().unwrap(),
+        ),
+        (
+            "mode.linewidth_hz",
+            truth["mode"]["linewidth_hz"].as_f64().unwrap(),
+        ),
+        (
+            "mode.variance_m2",
+            truth["mode"]["variance_m2"].as_f64().unwrap(),
+        ),
+        ("calibration.m_per_v", truth["m_per_v"].as_f64().unwrap()),
+        (
+            "quantum.x_zpf_m",
+            truth["mode"]["x_zpf_m"].as_f64().unwrap(),
+        ),
+    ];
+    for (key, want) in checks {
+        let got = json_path(&report, key).and_then(serde_json::Value::as_f64);
+        let got = got.unwrap_or_else(|| panic!("{key} is null: {report}"));
+        let sigma = json_path(&report, &format!("{key}_uncertainty"))
+            .and_then(serde_json::Value::as_f64)
+            // x_zpf has no uncertainty key: it follows from the given mass and f_m alone.
+            .unwrap_or(1e-3 * want.abs());
+        assert!(
+            sigma <= 0.1 * got.abs(),
+            "{key}: σ {sigma} too large for {got}"
+        );
+        assert!(
+            (got - want).abs() <= 4.0 * sigma,
+            "{key}: {got} ± {sigma}, truth {want}"
+        );
+    }
+    assert_eq!(
+        json_path(&report, "calibration.method"),
+        Some(&serde_json::json!("tone"))
+    );
+
+    // spectrum with the same calibration options: psd_m2 = (m/V)² × psd_v2 with analyze's m/V.
+    let csv_path = dir.path().join("cal.csv");
+    assert_success(
+        &run(&[
+            "spectrum",
+            s(&wav),
+            "--segment",
+            "16384",
+            "--tone-freq",
+            &tone_s,
+            "--tone-rms-m",
+            &rms_s,
+            "--mode-band",
+            &band,
+            "--mass",
+            &mass_s,
+            "-o",
+            s(&csv_path),
+        ]),
+        "tone-calibrated spectrum",
+    );
+    let m_per_v = report["calibration"]["m_per_v"].as_f64().unwrap();
+    let csv = read_csv(&csv_path);
+    assert_eq!(csv.headers.len(), 3);
+    for row in csv.rows.iter().filter(|r| r[1] > 0.0) {
+        let ratio = row[2] / row[1];
+        assert!((ratio / (m_per_v * m_per_v) - 1.0).abs() < 1e-9, "{row:?}");
+    }
+}

@@ -77,11 +77,30 @@ fn reference_peaks(path: &Path) -> Result<Vec<f64>> {
         .collect())
 }
 
-/// `value ± err unit` with 4 significant digits, or `—` when absent.
+/// `value` with `digits` significant digits: plain between 1e-3 and 1e6, else exponent.
+fn sig(value: f64, digits: usize) -> String {
+    let magnitude = value.abs();
+    if value == 0.0 || !value.is_finite() {
+        return format!("{value}");
+    }
+    if (1e-3..1e6).contains(&magnitude) {
+        let decimals = (digits as i32 - 1 - magnitude.log10().floor() as i32).max(0) as usize;
+        format!("{value:.decimals$}")
+    } else {
+        format!("{:.*e}", digits.saturating_sub(1), value)
+    }
+}
+
+/// `value ± err unit`, or `—` when absent.
 fn with_error(value: Option<f64>, error: Option<f64>, unit: &str) -> String {
+    let unit = if unit.is_empty() {
+        String::new()
+    } else {
+        format!(" {unit}")
+    };
     match (value, error) {
-        (Some(v), Some(e)) => format!("{v:.4e} ± {e:.2e} {unit}"),
-        (Some(v), None) => format!("{v:.4e} {unit}"),
+        (Some(v), Some(e)) => format!("{} ± {}{unit}", sig(v, 6), sig(e, 2)),
+        (Some(v), None) => format!("{}{unit}", sig(v, 6)),
         _ => "—".to_string(),
     }
 }
@@ -93,33 +112,33 @@ fn write_summary(out: &mut dyn Write, report: &Report) -> io::Result<()> {
     let cal = &report.calibration;
     writeln!(
         out,
-        "Welch: N = {}, {} window, {} % overlap, {} averages, RBW {:.4e} Hz (ENBW {:.4e} Hz)",
+        "Welch: N = {}, {} window, {} % overlap, {} averages, RBW {} Hz, ENBW {} Hz",
         report.welch.segment,
         report.welch.window,
         report.welch.overlap * 100.0,
         report.welch.averages,
-        report.welch.resolution_hz,
-        report.welch.enbw_hz
+        sig(report.welch.resolution_hz, 5),
+        sig(report.welch.enbw_hz, 5)
     )?;
     writeln!(
         out,
-        "mode frequency f_m      {}",
+        "mode frequency f_m     {}",
         with_error(mode.frequency_hz, mode.frequency_hz_uncertainty, "Hz")
     )?;
     writeln!(
         out,
-        "linewidth γ (FWHM)      {}",
+        "linewidth γ (FWHM)     {}",
         with_error(mode.linewidth_hz, mode.linewidth_hz_uncertainty, "Hz")
     )?;
     writeln!(
         out,
-        "quality factor Q        {}",
+        "quality factor Q       {}",
         with_error(mode.quality_factor, mode.quality_factor_uncertainty, "")
     )?;
     let method = cal.method.as_deref().unwrap_or("none");
     writeln!(
         out,
-        "calibration ({method:<13}) {}",
+        "calibration            {} ({method})",
         with_error(cal.m_per_v, cal.m_per_v_uncertainty, "m/V")
     )?;
     writeln!(
@@ -129,7 +148,7 @@ fn write_summary(out: &mut dyn Write, report: &Report) -> io::Result<()> {
     )?;
     writeln!(
         out,
-        "effective temperature   {}",
+        "effective temperature  {}",
         with_error(
             quantum.effective_temperature_k,
             quantum.effective_temperature_k_uncertainty,
@@ -146,6 +165,20 @@ fn write_summary(out: &mut dyn Write, report: &Report) -> io::Result<()> {
             ""
         )
     )?;
-    writeln!(out, "stray peaks             {}", report.peaks.len())?;
+    writeln!(out, "stray peaks            {}", report.peaks.len())?;
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn significant_digits() {
+        assert_eq!(sig(86099.54797, 6), "86099.5");
+        assert_eq!(sig(1.0131, 2), "1.0");
+        assert_eq!(sig(2.0054e-9, 4), "2.005e-9");
+        assert_eq!(sig(7.56e7, 3), "7.56e7");
+        assert_eq!(sig(0.0, 3), "0");
+    }
 }
