@@ -12,7 +12,7 @@
 use std::alloc::{GlobalAlloc, Layout, System};
 use std::cell::Cell;
 use std::fs::{self, File, OpenOptions};
-use std::io::{Cursor, Read, Write};
+use std::io::{Cursor, Read, Seek, Write};
 use std::net::TcpListener;
 use std::path::{Path, PathBuf};
 use std::thread;
@@ -841,6 +841,38 @@ fn follow_wav_ignores_the_unfinished_data_size() {
     }
     let got = read_until(reader.as_mut(), FRAMES);
     assert_eq!(got, wav_expected(&codes, 2, 1, 1.0));
+    // The recorder finishes: writes the real sizes and appends a LIST chunk after the data,
+    // whose bytes must not be read as samples.
+    f.write_all(b"LIST\x08\0\0\0INFOjunk").unwrap();
+    let data_len = (codes.len() * 2) as u32;
+    f.seek(std::io::SeekFrom::Start(40)).unwrap();
+    f.write_all(&data_len.to_le_bytes()).unwrap();
+    f.seek(std::io::SeekFrom::Start(4)).unwrap();
+    f.write_all(&(36 + data_len + 16).to_le_bytes()).unwrap();
+    f.flush().unwrap();
+    let mut out = [0.0; 16];
+    assert_eq!(
+        reader
+            .read_block_timeout(&mut out, Duration::from_millis(300))
+            .unwrap(),
+        None
+    );
+    assert_eq!(reader.stats().samples, FRAMES as u64);
+}
+
+#[test]
+fn empty_finalised_wav_with_trailing_chunk_has_no_samples() {
+    // data size 0 in a header whose RIFF size matches the file: really empty; the LIST chunk
+    // after it is not audio. (A 0 that the RIFF size does not back is a placeholder instead.)
+    let mut bytes = wav_header(1, 1, 16, 0, 0, 0);
+    bytes.extend_from_slice(b"LIST\x04\0\0\0abcd");
+    let riff = (bytes.len() - 8) as u32;
+    bytes[4..8].copy_from_slice(&riff.to_le_bytes());
+    let mut r = WavReader::new(Cursor::new(bytes.clone()), 0, 1.0, None).unwrap();
+    assert_eq!(read_all(&mut r), Vec::<f64>::new());
+    bytes[4..8].copy_from_slice(&0_u32.to_le_bytes()); // never finalised: read what follows
+    let mut r = WavReader::new(Cursor::new(bytes), 0, 1.0, None).unwrap();
+    assert_eq!(read_all(&mut r).len(), 6);
 }
 
 // ---------------------------------------------------------------------------------------------

@@ -4,8 +4,11 @@
 //! [`POLL_INTERVAL`]. If the file shrinks (truncated in place) or the path now names another
 //! file (rotated: new inode), it reopens from the start, drops any partial frame and counts
 //! [`ReaderStats::reconnects`](super::ReaderStats::reconnects). For WAV the header's data size
-//! is ignored (recorders fill it in only when they close the file); a replacement WAV must
-//! have the same encoding, channels and rate.
+//! is not trusted while the file grows (recorders fill it in only when they close the file):
+//! samples are read to the end of the bytes written; once a real size appears (re-read at
+//! every read) and is not behind what was read, reading stops there, so chunks a recorder
+//! appends after the data are not taken for samples. A replacement WAV must have the same
+//! encoding, channels and rate.
 
 use std::fs::{self, File};
 use std::io::{self, Read, Seek, SeekFrom};
@@ -49,6 +52,11 @@ struct FollowSource {
     wav: Option<WavHeader>,
     /// The current file still needs its WAV header parsed.
     needs_header: bool,
+    /// WAV: offset of the first data byte of the current file.
+    data_offset: u64,
+    /// WAV: end of the data once the recorder has written a real data size (then chunks
+    /// appended after the data are not read as samples).
+    data_end: Option<u64>,
 }
 
 fn open_error(path: &Path, source: io::Error) -> AcquireError {
@@ -69,6 +77,8 @@ impl FollowSource {
             pos: 0,
             wav: None,
             needs_header: wav,
+            data_offset: 0,
+            data_end: None,
         })
     }
 
@@ -79,6 +89,8 @@ impl FollowSource {
             Ok(header) => {
                 self.file.seek(SeekFrom::Start(header.data_offset))?;
                 self.pos = header.data_offset;
+                self.data_offset = header.data_offset;
+                self.data_end = None;
                 self.needs_header = false;
                 Ok(Some(header))
             }
@@ -108,6 +120,29 @@ impl FollowSource {
             }
         }
         Ok(true)
+    }
+
+    /// WAV: re-reads the data size field. A real size (not 0 or 0xFFFFFFFF) that does not
+    /// end before what was already read sets [`FollowSource::data_end`]. Returns true if more
+    /// data may now be read.
+    fn refresh_data_end(&mut self) -> Result<bool> {
+        if self.wav.is_none() || self.data_offset < 4 {
+            return Ok(false);
+        }
+        let mut field = [0_u8; 4];
+        self.file.seek(SeekFrom::Start(self.data_offset - 4))?;
+        let got = self.file.read_exact(&mut field);
+        self.file.seek(SeekFrom::Start(self.pos))?;
+        if got.is_err() {
+            return Ok(false);
+        }
+        let size = u32::from_le_bytes(field);
+        let end = self.data_offset + u64::from(size);
+        if size == 0 || size == u32::MAX || end < self.pos || Some(end) == self.data_end {
+            return Ok(false);
+        }
+        self.data_end = Some(end);
+        Ok(self.pos < end)
     }
 
     /// At the end of the current bytes: reopens if the file was truncated or replaced.
@@ -162,7 +197,19 @@ impl ByteSource for FollowSource {
                 }
                 continue;
             }
-            match self.file.read(buf) {
+            // A recorder may have finalised the header since the last look.
+            self.refresh_data_end()?;
+            let allowed = self
+                .data_end
+                .map_or(buf.len() as u64, |end| end.saturating_sub(self.pos));
+            let take = usize::try_from(allowed)
+                .unwrap_or(usize::MAX)
+                .min(buf.len());
+            let read = match buf.get_mut(..take) {
+                Some(dest) if take > 0 => self.file.read(dest),
+                _ => Ok(0),
+            };
+            match read {
                 Ok(0) => {}
                 Ok(n) => {
                     self.pos += n as u64;

@@ -48,7 +48,8 @@ pub struct WavHeader {
     /// Byte offset of the first data byte.
     pub data_offset: u64,
     /// Data chunk size the header declares (after RF64 resolution); `None` for the streaming
-    /// placeholders 0 and 0xFFFFFFFF (length unknown: read to the end of the file).
+    /// placeholders (0xFFFFFFFF, or 0 when the RIFF size does not match the file either):
+    /// length unknown, read to the end of the file.
     pub data_bytes_declared: Option<u64>,
     /// End of the RIFF form the header declares (`None` for a placeholder).
     pub riff_end_declared: Option<u64>,
@@ -286,7 +287,9 @@ pub(crate) fn parse_header<R: Read + Seek>(
             };
             let declared = if rf64 && size == u32::MAX {
                 ds64_data
-            } else if size == u32::MAX || size == 0 {
+            } else if size == u32::MAX || (size == 0 && riff_end != Some(file_len)) {
+                // Streaming placeholders: 0xFFFFFFFF, or 0 in a header whose RIFF size does
+                // not describe this file either (never finalised).
                 None
             } else {
                 Some(u64::from(size))
@@ -498,7 +501,7 @@ impl WavReader {
             source,
         })?;
         Self::new(
-            BufReader::with_capacity(64 * 1024, file),
+            BufReader::with_capacity(8 * 1024, file),
             channel,
             volts_per_unit,
             rate_hz,
