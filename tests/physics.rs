@@ -498,3 +498,292 @@ fn mode_fit_refuses_bad_bands_and_flat_noise() {
     // A band of three bins.
     assert!(fit::fit_mode(&s, (1_000.0, 1_012.0)).is_err());
 }
+
+// ---------- calibration (T7) ----------
+
+/// T7 (METHODS.md §9): a noise-free synthetic voltage PSD (gain K, thermal mode of the §7
+/// example at 4 K, PM tone β = 1e−3 at 1.05 MHz, bin-centred, Hann kernel; G/2π = 1 GHz/nm)
+/// recovers ⟨x²⟩, c² and g₀/2π = 9160.79 Hz within 1e−6 through `analyze` (area form, the tone
+/// read as Σ(PSD − B)Δf), and through the peak × ENBW form of Gorodetsky et al. (2010).
+#[test]
+fn t7_calibration_round_trip() {
+    let c = checks();
+    let gain = num(&c, "t7.gain_v_per_m");
+    let beta = num(&c, "t7.beta_rad");
+    let f_mod = num(&c, "t7.f_mod_hz");
+    let pull = num(&c, "t7.freq_pull_hz_per_m");
+    let o = example();
+    let n_be = occupancy::bose_einstein(1e6, 4.0);
+    let area_v = gain * gain * o.x_zpf_m().powi(2) * (2.0 * n_be + 1.0);
+    let df = 2.0;
+    let n = 1usize << 21;
+    let fs = df * n as f64;
+    let enbw = 1.5 * df;
+    let floor = 1e-14;
+    let tone_power = num(&c, "t7.tone_power_v2");
+    let k_tone = (f_mod / df).round() as usize;
+    let mut psd: Vec<f64> = (0..=n / 2)
+        .map(|k| floor + oscillator::oscillator_psd(k as f64 * df, area_v, 1e6, o.linewidth_hz))
+        .collect();
+    // Hann, bin-centred: PS = P at k₀ and P/4 at k₀ ± 1 (PSD = PS/ENBW).
+    psd[k_tone] += tone_power / enbw;
+    psd[k_tone - 1] += 0.25 * tone_power / enbw;
+    psd[k_tone + 1] += 0.25 * tone_power / enbw;
+    let s = Spectrum {
+        sample_rate_hz: fs,
+        segment: n,
+        overlap: 0.5,
+        window: WindowKind::Hann,
+        detrend: Detrend::Mean,
+        averaging: Averaging::Linear,
+        averages: 1_000_000_000,
+        k_eff: 1e12, // noise-free: the χ² median bias of the floor → 1
+        resolution_hz: df,
+        enbw_hz: enbw,
+        psd_v2_per_hz: psd,
+    };
+    let opts = stillpoint::report::AnalysisOptions {
+        tone_frequency_hz: Some(f_mod),
+        pm_depth_rad: Some(beta),
+        freq_pull_hz_per_m: Some(pull),
+        bath_temperature_k: Some(4.0),
+        mass_kg: Some(1e-13),
+        mode_band_hz: Some((1e6 - 500.0, 1e6 + 500.0)),
+        ..Default::default()
+    };
+    let r = stillpoint::report::analyze(&s, &opts).unwrap();
+    assert_eq!(r.calibration.method.as_deref(), Some("tone"));
+    close(
+        r.calibration.tone_power_v2.unwrap(),
+        tone_power,
+        1e-6,
+        "tone power",
+    );
+    let m_per_v = r.calibration.m_per_v.unwrap();
+    close(m_per_v * m_per_v, num(&c, "t7.c2_m2_per_v2"), 1e-6, "c²");
+    close(
+        r.mode.variance_m2.unwrap(),
+        num(&c, "example.variance_quantum_m2"),
+        1e-6,
+        "⟨x²⟩",
+    );
+    close(
+        r.calibration.g0_hz.unwrap(),
+        num(&c, "t7.g0_over_2pi_hz"),
+        1e-6,
+        "g₀/2π (area form)",
+    );
+    close(
+        r.calibration.g0_hz.unwrap(),
+        9160.79,
+        1e-6,
+        "g₀/2π vs METHODS",
+    );
+    close(
+        r.quantum.occupancy.unwrap(),
+        n_be,
+        1e-6,
+        "n̄ from the calibrated area",
+    );
+    // G10's peak form: S_VV(f_m)Γ/4 over S_VV(f_mod)·ENBW (bin-centred tone).
+    let peak_v = r.mode.peak_psd_v2_per_hz.unwrap();
+    let a_peak = Estimate::new(peak_v * o.damping_rad_s() / 4.0, 0.0);
+    let p_peak = Estimate::new(tone_power / enbw * enbw, 0.0);
+    let g0 = stillpoint::physics::calibration::g0_hz(beta, f_mod, a_peak, p_peak, n_be).unwrap();
+    close(g0.value, 9160.79, 1e-6, "g₀/2π (peak × ENBW form)");
+    // The tone is read from the spectrum in the peak form too.
+    let tr = stillpoint::physics::calibration::read_tone(
+        &s,
+        f_mod,
+        &stillpoint::physics::calibration::ToneOptions::default(),
+        None,
+    )
+    .unwrap();
+    close(
+        tr.peak_power,
+        tone_power
+            + (floor + oscillator::oscillator_psd(f_mod, area_v, 1e6, o.linewidth_hz)) * enbw,
+        1e-6,
+        "PS peak = P + floor·ENBW (bin-centred)",
+    );
+    // No stray peaks on a clean synthetic spectrum of 10⁶ bins.
+    assert!(r.peaks.is_empty(), "{:?}", r.peaks);
+}
+
+/// T8 (METHODS.md §9): R = 1.5 with 2 % errors on each area → n̄ = 2.00, σ_n = 0.170; our Monte
+/// Carlo s.d. agrees with the reference 0.173 (numpy, 4·10⁵ draws) within 3 %.
+#[test]
+fn t8_sideband_ratio() {
+    use stillpoint::physics::sideband::occupancy_from_ratio;
+    let c = checks();
+    let n = occupancy_from_ratio(Estimate::new(1.5, 1.5 * 0.02 * 2f64.sqrt())).unwrap();
+    close(n.value, num(&c, "t8.occupancy"), 1e-12, "n̄");
+    close(n.sigma, num(&c, "t8.occupancy_sigma"), 1e-12, "σ_n");
+    assert_eq!(format!("{:.3}", n.sigma), "0.170");
+    let mut rng = Rng::new(8);
+    let draws = 100_000;
+    let mut sum = 0.0;
+    let mut sum2 = 0.0;
+    for _ in 0..draws {
+        let r = 1.5 * (1.0 + 0.02 * rng.gauss()) / (1.0 + 0.02 * rng.gauss());
+        let v = 1.0 / (r - 1.0);
+        sum += v;
+        sum2 += v * v;
+    }
+    let mean = sum / draws as f64;
+    let sd = (sum2 / draws as f64 - mean * mean).sqrt();
+    close(sd, num(&c, "t8.mc_sd"), 0.03, "Monte Carlo s.d.");
+    close(
+        mean,
+        num(&c, "t8.mc_mean"),
+        0.005,
+        "Monte Carlo mean (nonlinearity bias)",
+    );
+    for row in c["t8"]["others"].as_array().unwrap() {
+        let r = row["ratio"].as_f64().unwrap();
+        close(
+            occupancy_from_ratio(Estimate::new(r, 0.0)).unwrap().value,
+            row["occupancy"].as_f64().unwrap(),
+            1e-12,
+            "R→n̄",
+        );
+    }
+}
+
+/// The χ²_ν/ν median ratio used by the robust floors, against scipy.stats.chi2.median.
+#[test]
+fn chi2_median_ratio_matches_scipy() {
+    let c = checks();
+    for row in c["chi2_median_over_mean"].as_array().unwrap() {
+        let nu = row["nu"].as_f64().unwrap();
+        let want = row["ratio"].as_f64().unwrap();
+        let ours = stillpoint::physics::calibration::chi2_median_ratio(nu);
+        assert!(
+            (ours / want - 1.0).abs() < 0.015,
+            "ν={nu}: {ours} vs {want}"
+        );
+    }
+}
+
+/// Our analytic ρ_bin agrees with the dsp module's direct sums (helper B's implementation).
+#[test]
+fn bin_correlation_agrees_with_dsp() {
+    for w in [
+        WindowKind::Hann,
+        WindowKind::Hamming,
+        WindowKind::BlackmanHarris,
+        WindowKind::FlatTop,
+    ] {
+        let ours = window_stats::bin_correlation(w);
+        for lag in 1..=6 {
+            let theirs = w.bin_correlation(4096, lag);
+            let mine = ours.get(lag - 1).copied().unwrap_or(0.0);
+            assert!(
+                (mine - theirs).abs() < 1e-9,
+                "{w:?} lag {lag}: {mine} vs {theirs}"
+            );
+        }
+        close(
+            window_stats::error_inflation(w),
+            w.fit_error_inflation(4096),
+            1e-9,
+            "inflation",
+        );
+    }
+}
+
+/// Bad physics input: NaN never reaches the report; impossible options are refused.
+#[test]
+fn bad_physics_input() {
+    use stillpoint::report::{AnalysisError, AnalysisOptions, analyze};
+    let mut rng = Rng::new(1);
+    let s = synthetic_spectrum(10_000.0, 4096, 20.0, &mut rng, |f| {
+        1e-9 + oscillator::oscillator_psd(f, 1e-6, 2_000.0, 10.0)
+    });
+    for o in [
+        AnalysisOptions {
+            mass_kg: Some(-1e-12),
+            mode_band_hz: Some((1_900.0, 2_100.0)),
+            ..Default::default()
+        },
+        AnalysisOptions {
+            mass_kg: Some(0.0),
+            ..Default::default()
+        },
+        AnalysisOptions {
+            bath_temperature_k: Some(-4.0),
+            mass_kg: Some(1e-12),
+            ..Default::default()
+        },
+        AnalysisOptions {
+            mode_band_hz: Some((4_000.0, 6_000.0)),
+            ..Default::default()
+        },
+        AnalysisOptions {
+            mode_band_hz: Some((2_100.0, 1_900.0)),
+            ..Default::default()
+        },
+        AnalysisOptions {
+            tone_frequency_hz: Some(9_000.0),
+            tone_rms_m: Some(1e-12),
+            ..Default::default()
+        },
+        AnalysisOptions {
+            tone_frequency_hz: Some(1_000.0),
+            ..Default::default()
+        },
+        AnalysisOptions {
+            carrier_hz: Some(3_000.0),
+            mode_band_hz: Some((100.0, 200.0)),
+            ..Default::default()
+        },
+    ] {
+        let e = analyze(&s, &o).unwrap_err();
+        let AnalysisError::Input(msg) = &e else {
+            panic!("{e}")
+        };
+        assert!(
+            msg.contains("--") || msg.contains("band") || msg.contains("mass"),
+            "{msg}"
+        );
+        assert!(!msg.contains('\n'), "one line: {msg}");
+    }
+    // No peak in band → null with a reason.
+    let r = analyze(
+        &s,
+        &AnalysisOptions {
+            mode_band_hz: Some((3_000.0, 3_500.0)),
+            mass_kg: Some(1e-12),
+            m_per_v: Some(1e-9),
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    assert!(r.mode.frequency_hz.is_none() && r.quantum.occupancy.is_none());
+    assert!(
+        r.notes.iter().any(|n| n.contains("no mode found")),
+        "{:?}",
+        r.notes
+    );
+    let json = serde_json::to_string(&r).unwrap();
+    assert!(!json.contains("NaN") && !json.contains("Infinity"));
+    // With the mode: quantum keys present, SQL = zero-point peak.
+    let r = analyze(
+        &s,
+        &AnalysisOptions {
+            mode_band_hz: Some((1_800.0, 2_200.0)),
+            mass_kg: Some(1e-12),
+            m_per_v: Some(1e-9),
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    let zp = r.quantum.zero_point_peak_psd_m2_per_hz.unwrap();
+    close(
+        r.quantum.sql_psd_at_resonance_m2_per_hz.unwrap(),
+        zp,
+        1e-9,
+        "SQL = zero point",
+    );
+    assert!(r.quantum.occupancy.is_some() && r.quantum.effective_temperature_k.is_some());
+}
