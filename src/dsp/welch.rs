@@ -9,11 +9,20 @@
 //! sample index, like `scipy.signal.detrend`) is removed *before* windowing, the segment is
 //! multiplied by the periodic window `w_j` and transformed with a real FFT (f64, `realfft`, one
 //! plan and all buffers made in [`Welch::new`]; nothing is allocated per segment except the
-//! stored periodograms of a median average):
+//! stored periodograms of a median average, which grow without bound unless `max_averages`
+//! is set):
 //! `Y_k = Σ_j w_j (x_j − trend_j) e^{−2πi jk/N}`, k = 0 … ⌊N/2⌋. A segment holding any NaN or
 //! ±Inf sample is skipped and counted ([`Welch::skipped_segments`]).
 //!
 //! **Averaging** ([`Averaging`]) combines the powers `|Y_k|²` in f64 — never amplitudes or dB.
+//!
+//! **Threads.** [`Welch::set_threads`] lets long pushes transform batches of segments on
+//! scoped worker threads (spawned per batch of ≥ 2 segments per thread, ~1 ms of work or more
+//! each); the periodograms are added in segment order on the caller's thread, so the result
+//! is bit-identical for any thread count and any block sizes.
+//!
+//! **Limits.** Samples are volts in f64; a segment whose windowed power overflows f64
+//! (|x| ≳ 1e150) gives an infinite PSD, which callers must refuse (the segment is not skipped).
 //!
 //! **Normalisation (one-sided PSD, V²/Hz).** `PSD_k = 2 P_k / (f_s S₂)` for 0 < k < N/2 and
 //! `P_k / (f_s S₂)` at k = 0 and, for even N, at k = N/2 (no mirror partner), where P_k is the
