@@ -406,11 +406,30 @@ fn non_finite_segments_are_skipped_and_counted() {
             assert!((g - mean).abs() <= 1e-12 * mean.max(1e-300));
         }
     }
-    // Huge but finite samples are not mistaken for non-finite ones.
-    x[700] = 1e300;
-    let mut w = Welch::new(c).unwrap();
+    // Large but finite samples are not mistaken for non-finite ones…
+    x[700] = 1e100;
+    let mut w = Welch::new(c.clone()).unwrap();
     w.push(&x);
     assert_eq!(w.skipped_segments(), 0);
+    assert!(
+        w.spectrum()
+            .unwrap()
+            .psd_v2_per_hz
+            .iter()
+            .all(|p| p.is_finite())
+    );
+    // …but samples whose power would overflow f64 are skipped: the PSD stays finite.
+    x[700] = 1e200;
+    let mut w = Welch::new(c).unwrap();
+    w.push(&x);
+    assert_eq!(w.skipped_segments(), 2);
+    assert!(
+        w.spectrum()
+            .unwrap()
+            .psd_v2_per_hz
+            .iter()
+            .all(|p| p.is_finite())
+    );
 }
 
 #[test]

@@ -21,8 +21,9 @@
 //! each); the periodograms are added in segment order on the caller's thread, so the result
 //! is bit-identical for any thread count and any block sizes.
 //!
-//! **Limits.** Samples are volts in f64; a segment whose windowed power overflows f64
-//! (|x| ≳ 1e150) gives an infinite PSD, which callers must refuse (the segment is not skipped).
+//! **Limits.** A segment whose energy `Σ x²` is so large that its power could overflow f64
+//! (samples beyond ~1e140 V) is skipped and counted like a non-finite one, so the PSD is
+//! always finite.
 //!
 //! **Normalisation (one-sided PSD, V²/Hz).** `PSD_k = 2 P_k / (f_s S₂)` for 0 < k < N/2 and
 //! `P_k / (f_s S₂)` at k = 0 and, for even N, at k = N/2 (no mirror partner), where P_k is the
@@ -299,6 +300,9 @@ impl std::fmt::Debug for Welch {
 /// Turns one segment into its periodogram |Y_k|² (one per thread).
 struct Transformer {
     detrend: Detrend,
+    /// Largest segment energy Σx² whose periodogram, summed over 10¹⁰ segments, stays
+    /// finite: |Y_k|² ≤ N max w² Σx² (Cauchy–Schwarz).
+    energy_limit: f64,
     window: Arc<[f64]>,
     fft: Arc<dyn RealToComplex<f64>>,
     fft_in: Vec<f64>,
@@ -311,8 +315,14 @@ impl Transformer {
         let fft_in = fft.make_input_vec();
         let fft_out = fft.make_output_vec();
         let scratch = fft.make_scratch_vec();
+        let w_max = window
+            .iter()
+            .fold(0.0f64, |m, w| m.max(w.abs()))
+            .max(1e-300);
+        let energy_limit = f64::MAX / (1e10 * window.len().max(1) as f64 * w_max * w_max);
         Self {
             detrend,
+            energy_limit,
             window,
             fft,
             fft_in,
@@ -336,7 +346,14 @@ impl Transformer {
         if head.len() + tail.len() != self.fft_in.len() {
             return false;
         }
-        if !detrend_and_window(head, tail, &self.window, self.detrend, &mut self.fft_in) {
+        if !detrend_and_window(
+            head,
+            tail,
+            &self.window,
+            self.detrend,
+            self.energy_limit,
+            &mut self.fft_in,
+        ) {
             return false;
         }
         // Lengths are fixed by the plan, so this cannot fail.
@@ -706,8 +723,8 @@ fn run_chunk(
 struct SegmentSums {
     sum: [f64; 4],
     moment: [f64; 4],
-    /// Σ x·0: 0 for finite samples, NaN as soon as one is NaN or ±Inf (no branch).
-    probe: [f64; 4],
+    /// Σ x²: NaN or +Inf as soon as a sample is NaN, ±Inf or too large to square (no branch).
+    energy: [f64; 4],
 }
 
 impl SegmentSums {
@@ -725,7 +742,7 @@ impl SegmentSums {
             for c in &mut chunks {
                 for (lane, &v) in c.iter().enumerate() {
                     self.sum[lane] += v;
-                    self.probe[lane] += v * 0.0;
+                    self.energy[lane] += v * v;
                     self.moment[lane] += (j + lane as f64) * v;
                 }
                 j += 4.0;
@@ -734,7 +751,7 @@ impl SegmentSums {
             for c in &mut chunks {
                 for (lane, &v) in c.iter().enumerate() {
                     self.sum[lane] += v;
-                    self.probe[lane] += v * 0.0;
+                    self.energy[lane] += v * v;
                 }
             }
         }
@@ -748,11 +765,11 @@ impl SegmentSums {
         let lane = j % 4;
         if let (Some(s), Some(p), Some(m)) = (
             self.sum.get_mut(lane),
-            self.probe.get_mut(lane),
+            self.energy.get_mut(lane),
             self.moment.get_mut(lane),
         ) {
             *s += v;
-            *p += v * 0.0;
+            *p += v * v;
             if linear {
                 *m += (j as f64 - centre) * v;
             }
@@ -798,12 +815,14 @@ fn window_piece(
 }
 
 /// Detrends the segment `head ++ tail`, multiplies it by the window and writes it into
-/// `out` (N values). Returns false if the segment holds a non-finite sample.
+/// `out` (N values). Returns false if the segment holds a non-finite sample, or if its energy
+/// `Σ x²` exceeds `energy_limit` (its power could overflow f64).
 fn detrend_and_window(
     head: &[f64],
     tail: &[f64],
     window: &[f64],
     detrend: Detrend,
+    energy_limit: f64,
     out: &mut [f64],
 ) -> bool {
     let n = out.len();
@@ -813,7 +832,8 @@ fn detrend_and_window(
     let mut sums = SegmentSums::default();
     sums.add(head, 0, centre, linear);
     sums.add(tail, head.len(), centre, linear);
-    if !SegmentSums::total(sums.probe).is_finite() {
+    let energy = SegmentSums::total(sums.energy);
+    if !(energy.is_finite() && energy <= energy_limit) {
         return false;
     }
     let mean = SegmentSums::total(sums.sum) / nf;
@@ -995,7 +1015,8 @@ impl Welch {
         self.engine.acc.segments
     }
 
-    /// Segments skipped since the last restart because they held NaN/Inf.
+    /// Segments skipped since the last restart because they held NaN/Inf (or samples so large,
+    /// beyond ~1e140, that their power would overflow).
     pub fn skipped_segments(&self) -> usize {
         self.engine.acc.skipped
     }
