@@ -242,6 +242,22 @@ fn bad_inputs_fail_cleanly_and_keep_the_existing_output() {
             2,
         ),
         (
+            "absurd segment on stdin",
+            vec![
+                "spectrum",
+                "-",
+                "--sample-format",
+                "f32",
+                "--rate",
+                "1e3",
+                "--segment",
+                "1000000000000",
+                "-o",
+                &out_s,
+            ],
+            2,
+        ),
+        (
             "output folder missing",
             vec!["spectrum", wav, "-o", "/nonexistent-folder-xyz/out.csv"],
             2,
@@ -1129,5 +1145,90 @@ fn analyze_recovers_the_synthesised_truth() {
     for row in csv.rows.iter().filter(|r| r[1] > 0.0) {
         let ratio = row[2] / row[1];
         assert!((ratio / (m_per_v * m_per_v) - 1.0).abs() < 1e-9, "{row:?}");
+    }
+}
+
+#[test]
+fn follow_waits_for_a_growing_file_until_enough_segments() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("growing.f32");
+    let samples = noise_f32(5 * 1024, 1.0, 17);
+    let bytes = f32_le_bytes(&samples);
+    // Two segments' worth now, the rest a little later.
+    fs::write(&path, &bytes[..2 * 4096]).unwrap();
+    let out = dir.path().join("follow.csv");
+    let mut child = bin()
+        .args([
+            "spectrum",
+            s(&path),
+            "--sample-format",
+            "f32",
+            "--rate",
+            "1000",
+            "--segment",
+            "1024",
+            "--overlap",
+            "0",
+            "--averages",
+            "4",
+            "--follow",
+            "-o",
+            s(&out),
+        ])
+        .stdin(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    std::thread::sleep(std::time::Duration::from_millis(400));
+    assert!(
+        child.try_wait().unwrap().is_none(),
+        "finished before the file grew"
+    );
+    let mut file = fs::OpenOptions::new().append(true).open(&path).unwrap();
+    file.write_all(&bytes[2 * 4096..]).unwrap();
+    drop(file);
+    let status = child.wait().unwrap();
+    let mut err = String::new();
+    child
+        .stderr
+        .take()
+        .unwrap()
+        .read_to_string(&mut err)
+        .unwrap();
+    assert!(status.success(), "{err}");
+    // The same as the first 4 segments of the whole record read at once.
+    let whole = dir.path().join("whole.f32");
+    fs::write(&whole, &bytes[..4 * 4096]).unwrap();
+    let reference = dir.path().join("whole.csv");
+    assert_success(
+        &run(&[
+            "spectrum",
+            s(&whole),
+            "--sample-format",
+            "f32",
+            "--rate",
+            "1000",
+            "--segment",
+            "1024",
+            "--overlap",
+            "0",
+            "-o",
+            s(&reference),
+        ]),
+        "whole",
+    );
+    assert_eq!(fs::read(&out).unwrap(), fs::read(&reference).unwrap());
+}
+
+#[test]
+fn monitor_rejects_bad_options_before_opening_a_window() {
+    for args in [
+        &["monitor", "-", "--rate", "1e3"][..],
+        &["monitor", "x.bin", "--sample-format", "f32"][..],
+        &["monitor", "x.wav", "--carrier", "1e5"][..],
+        &["monitor", "x.wav", "--overlap", "1.5"][..],
+    ] {
+        let output = run(args);
+        assert_clean_failure(&output, 2, &format!("{args:?}"), None);
     }
 }

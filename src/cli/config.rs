@@ -75,6 +75,9 @@ pub fn source_config(args: &SourceArgs) -> Result<SourceConfig> {
     Ok(config)
 }
 
+/// Longest segment accepted (2²⁷ samples: ~3 GB of working buffers).
+pub const MAX_SEGMENT: usize = 1 << 27;
+
 /// The default segment: [`DEFAULT_SEGMENT`], or the largest power of two ≤ L/8 when the
 /// record length L is known and shorter (never below 2).
 pub fn default_segment(record_samples: Option<u64>) -> usize {
@@ -109,6 +112,11 @@ pub fn welch_config(
             .map_err(|_| InputError(format!("--segment {n} is too large for this machine")))?,
         None => default_segment(record_samples),
     };
+    if segment > MAX_SEGMENT {
+        return Err(InputError(format!(
+            "--segment {segment} is more than this program handles ({MAX_SEGMENT} samples)"
+        )));
+    }
     if segment < 2 {
         return Err(InputError(format!(
             "--segment must be at least 2 samples, got {segment}"

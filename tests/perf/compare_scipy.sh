@@ -12,6 +12,7 @@ SAMPLES=${SAMPLES:-33554432}
 SEGMENT=${SEGMENT:-65536}
 RUNS=${RUNS:-5}
 WORK=${WORK:-$(mktemp -d)}
+mkdir -p "$WORK"
 TOOL="python3 tests/perf/perf_tool.py"
 BIN=${BIN:-target/release/stillpoint}
 

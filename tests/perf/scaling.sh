@@ -11,6 +11,7 @@ RUNS=${RUNS:-3}
 LENGTHS=${LENGTHS:-"22 24 26"}
 SEGMENTS=${SEGMENTS:-"12 16 20"}
 WORK=${WORK:-$(mktemp -d)}
+mkdir -p "$WORK"
 TOOL="python3 tests/perf/perf_tool.py"
 BIN=${BIN:-target/release/stillpoint}
 
