@@ -8,6 +8,7 @@
 // A counting global allocator (below) needs `unsafe impl GlobalAlloc`; it only forwards to
 // the system allocator and records the largest request made on the current thread.
 #![allow(unsafe_code)]
+#![allow(clippy::unwrap_used)] // test helpers outside #[test] functions
 
 use std::alloc::{GlobalAlloc, Layout, System};
 use std::cell::Cell;
@@ -655,7 +656,7 @@ fn serve_once(listener: &TcpListener, bytes: &[u8], seed: u64) {
         let n = (1 + (rng.next() % 1000) as usize).min(bytes.len() - at);
         stream.write_all(&bytes[at..at + n]).unwrap();
         at += n;
-        if rng.next() % 8 == 0 {
+        if rng.next().is_multiple_of(8) {
             thread::sleep(Duration::from_millis(1));
         }
     }

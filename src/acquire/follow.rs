@@ -283,7 +283,7 @@ impl FollowReader {
             }
             thread::sleep(POLL_INTERVAL);
         };
-        let sample_rate_hz = wav::check_options(&header, channel, rate_hz)?;
+        let sample_rate_hz = wav::check_options(&header, channel, rate_hz, volts_per_unit)?;
         source.wav = Some(header);
         Ok(Self {
             frames: FrameReader::new(

@@ -383,12 +383,15 @@ pub(crate) fn data_extent(header: &WavHeader, file_len: u64) -> Result<(u64, boo
     }
 }
 
-/// Checks a channel choice and a rate override against a header; returns the rate.
+/// Checks a channel choice, a rate override and the scale against a header; returns the rate.
 pub(crate) fn check_options(
     header: &WavHeader,
     channel: usize,
     rate_hz: Option<f64>,
+    volts_per_unit: f64,
 ) -> Result<f64> {
+    super::check_rate(rate_hz)?;
+    super::check_volts_per_unit(volts_per_unit)?;
     if channel >= usize::from(header.channels) {
         return Err(AcquireError::Config(format!(
             "--channel {channel} is out of range: the WAV file has {} channel(s) (0 to {})",
@@ -489,7 +492,8 @@ impl WavReader {
     ///
     /// # Errors
     /// [`AcquireError::Open`] if the file cannot be opened, [`AcquireError::Wav`] for a damaged
-    /// or unsupported header, [`AcquireError::Config`] for a channel out of range.
+    /// or unsupported header, [`AcquireError::Config`] for a channel out of range, a rate
+    /// that is not a positive finite number, or a zero or non-finite `volts_per_unit`.
     pub fn open(
         path: &Path,
         channel: usize,
@@ -520,7 +524,7 @@ impl WavReader {
     ) -> Result<Self> {
         let file_len = stream_len(&mut reader)?;
         let header = parse_header(&mut reader, file_len).map_err(HeaderError::into_acquire)?;
-        let sample_rate_hz = check_options(&header, channel, rate_hz)?;
+        let sample_rate_hz = check_options(&header, channel, rate_hz, volts_per_unit)?;
         let (data_bytes, truncated) = data_extent(&header, file_len)?;
         reader.seek(SeekFrom::Start(header.data_offset))?;
         let source = DataChunk {
