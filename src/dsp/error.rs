@@ -18,6 +18,12 @@ pub enum DspError {
         /// Segment length.
         segment: usize,
     },
+    /// Every segment was skipped (NaN/Inf or overflowing samples).
+    #[error("no usable segment: all {skipped} segments held non-finite or overflowing samples")]
+    NoUsableSegment {
+        /// Segments skipped.
+        skipped: usize,
+    },
     /// A displacement unit was asked for without a calibration.
     #[error("{unit} needs a calibration (metres per volt), but none is set")]
     Uncalibrated {

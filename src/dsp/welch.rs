@@ -1094,14 +1094,21 @@ impl Welch {
 /// Welch PSD of a whole slice (convenience for tests and small records).
 ///
 /// # Errors
-/// Invalid settings, or fewer samples than one segment.
+/// Invalid settings, fewer samples than one segment ([`DspError::TooShort`]), or no segment
+/// without NaN/Inf ([`DspError::NoUsableSegment`]).
 pub fn welch(samples: &[f64], config: &WelchConfig) -> Result<Spectrum> {
     let mut w = Welch::new(config.clone())?;
     w.push(samples);
-    w.spectrum().ok_or(DspError::TooShort {
-        samples: samples.len() as u64,
-        segment: config.segment,
-    })
+    match w.spectrum() {
+        Some(spectrum) => Ok(spectrum),
+        None if w.skipped_segments() > 0 => Err(DspError::NoUsableSegment {
+            skipped: w.skipped_segments(),
+        }),
+        None => Err(DspError::TooShort {
+            samples: samples.len() as u64,
+            segment: config.segment,
+        }),
+    }
 }
 
 #[cfg(test)]
@@ -1181,6 +1188,10 @@ mod tests {
             welch(&noise(99, 1), &WelchConfig::new(1.0, 100)),
             Err(DspError::TooShort { .. })
         ));
+        assert_eq!(
+            welch(&[f64::NAN; 150], &WelchConfig::new(1.0, 100)),
+            Err(DspError::NoUsableSegment { skipped: 2 })
+        );
     }
 
     #[test]
