@@ -659,9 +659,8 @@ pub fn parse_meta(bytes: &[u8], path: &Path) -> Result<SnapshotMeta> {
         )));
     }
     let w = &meta.welch;
-    if !(w.resolution_hz.is_finite() && w.resolution_hz > 0.0)
-        || !(w.sample_rate_hz.is_finite() && w.sample_rate_hz > 0.0)
-    {
+    let positive = |v: f64| v.is_finite() && v > 0.0;
+    if !(positive(w.resolution_hz) && positive(w.sample_rate_hz)) {
         return Err(err(
             "welch.resolution_hz and welch.sample_rate_hz must be positive".to_string(),
         ));
@@ -747,8 +746,38 @@ pub fn load(path: &Path) -> Result<Snapshot> {
             }
         }
     };
+    assemble(meta, &csv, &csv_path, json_path, warnings)
+}
+
+/// Parses a snapshot from the bytes of its two files without touching the file system
+/// (no recovery of interrupted saves; a hash mismatch is a warning). For tests and fuzzing.
+///
+/// # Errors
+/// As [`load`].
+pub fn from_bytes(json: &[u8], csv: &[u8]) -> Result<Snapshot> {
+    let json_path = PathBuf::from("<metadata>");
+    let meta = parse_meta(json, &json_path)?;
+    let mut warnings = Vec::new();
+    if format!("{:016x}", fnv1a64(csv)) != meta.data_fnv1a64 {
+        warnings.push(format!(
+            "{} was modified after it was saved (its hash differs from the metadata)",
+            meta.data_file
+        ));
+    }
+    let csv_path = PathBuf::from(meta.data_file.clone());
+    assemble(meta, csv, &csv_path, json_path, warnings)
+}
+
+/// Checks the CSV against the metadata and builds the snapshot.
+fn assemble(
+    meta: SnapshotMeta,
+    csv: &[u8],
+    csv_path: &Path,
+    json_path: PathBuf,
+    warnings: Vec<String>,
+) -> Result<Snapshot> {
     let location = csv_path.display().to_string();
-    let table = parse_csv(&csv).map_err(|e| match e {
+    let table = parse_csv(csv).map_err(|e| match e {
         SnapshotError::Csv {
             location: l,
             message,
