@@ -740,18 +740,25 @@ impl SegmentSums {
         if linear {
             let mut j = base as f64 - centre;
             for c in &mut chunks {
-                for (lane, &v) in c.iter().enumerate() {
-                    self.sum[lane] += v;
-                    self.energy[lane] += v * v;
-                    self.moment[lane] += (j + lane as f64) * v;
+                let lanes = self
+                    .sum
+                    .iter_mut()
+                    .zip(&mut self.energy)
+                    .zip(&mut self.moment)
+                    .zip(c)
+                    .zip([0.0, 1.0, 2.0, 3.0]);
+                for ((((s, e), m), &v), u) in lanes {
+                    *s += v;
+                    *e += v * v;
+                    *m += (j + u) * v;
                 }
                 j += 4.0;
             }
         } else {
             for c in &mut chunks {
-                for (lane, &v) in c.iter().enumerate() {
-                    self.sum[lane] += v;
-                    self.energy[lane] += v * v;
+                for ((s, e), &v) in self.sum.iter_mut().zip(&mut self.energy).zip(c) {
+                    *s += v;
+                    *e += v * v;
                 }
             }
         }
@@ -776,8 +783,8 @@ impl SegmentSums {
         }
     }
 
-    fn total(a: [f64; 4]) -> f64 {
-        (a[0] + a[1]) + (a[2] + a[3])
+    fn total([a, b, c, d]: [f64; 4]) -> f64 {
+        (a + b) + (c + d)
     }
 }
 
