@@ -938,7 +938,8 @@ impl Welch {
     /// Feeds samples (volts); completes and averages every segment they finish.
     /// Segments containing a non-finite sample are skipped and counted.
     /// Returns the number of segments accepted by this call. Once a linear average is
-    /// complete ([`Welch::is_complete`]) further samples are ignored until [`Welch::restart`].
+    /// complete ([`Welch::is_complete`]) further samples are ignored (and the partial segment
+    /// dropped) until [`Welch::restart`].
     pub fn push(&mut self, samples: &[f64]) -> usize {
         let n = self.engine.n;
         let hop = self.config.hop();
@@ -946,6 +947,9 @@ impl Welch {
         let mut rest = samples;
         loop {
             if self.engine.acc.is_complete() {
+                // Samples are being dropped: the stream is no longer contiguous, so the
+                // first segment after a restart starts with fresh data.
+                self.pending.clear();
                 return accepted;
             }
             // Parallel mode: batches of segments of `pending ++ rest` go to the workers.
@@ -965,6 +969,7 @@ impl Welch {
                 // Whole segments straight from the caller's block: no copy.
                 while let Some(segment) = rest.get(..n) {
                     if self.engine.acc.is_complete() {
+                        self.pending.clear();
                         return accepted;
                     }
                     if self.engine.process(segment, &[]) {
