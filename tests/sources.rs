@@ -1214,3 +1214,35 @@ proptest! {
         prop_assert!(largest <= allowance(0, 100, frame), "allocated {}", largest);
     }
 }
+
+#[test]
+fn idle_live_sources_do_not_hold_up_shutdown() {
+    // A followed file that never grows and a TCP peer that never sends: the worker must still
+    // see Shutdown within a read slice (~100 ms), so dropping the handle is prompt.
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("quiet.f32");
+    fs::write(&path, f32_bytes(0..4)).unwrap();
+    let listener = TcpListener::bind("127.0.0.1:0").unwrap();
+    let address = listener.local_addr().unwrap().to_string();
+    let server = thread::spawn(move || {
+        let (stream, _) = listener.accept().unwrap();
+        thread::sleep(Duration::from_millis(900));
+        drop(stream);
+    });
+    let followed = acquire::open(&follow_config(&path)).unwrap();
+    let mut tcp = tcp_config(&address, SampleFormat::I16, Endian::Little, 0);
+    tcp.reconnect = true;
+    let silent = acquire::open(&tcp).unwrap();
+    for reader in [followed, silent] {
+        let acq = Acquisition::spawn(reader, AcqOptions::window(), None).unwrap();
+        thread::sleep(Duration::from_millis(300));
+        let started = Instant::now();
+        drop(acq);
+        assert!(
+            started.elapsed() < Duration::from_millis(500),
+            "{:?}",
+            started.elapsed()
+        );
+    }
+    server.join().unwrap();
+}
