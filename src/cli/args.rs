@@ -28,7 +28,10 @@ Examples:
   stillpoint spectrum run.wav --segment 65536 -o run.csv
   stillpoint spectrum adc.bin --sample-format i16 --endian big --channels 2 --channel 1 \\
       --rate 2e6 --volts-per-unit 3.05e-5 -o adc.csv
-  nc digitiser 5000 | stillpoint spectrum - --sample-format f32 --rate 1e6 --averages 200 -o live.csv
+  my-daq --stream | stillpoint spectrum - --sample-format f32 --rate 1e6 \\
+      --averages 200 -o live.csv
+  stillpoint spectrum tcp://192.168.1.20:5000 --sample-format i16 --rate 2e6 --averages 500 \\
+      --m-per-v 2e-9 -o live.csv
   stillpoint analyze run.wav --mode-band 0.99e6:1.01e6 --mass 1e-13 --bath-temperature 4 -o run.json
   stillpoint analyze het.wav --carrier 5e6 --lo-side above --mode-band 0.99e6:1.01e6 \\
       --tone-freq 1.05e6 --pm-depth 1e-3 --freq-pull 1e18 --mass 1e-13 -o het.json
@@ -456,7 +459,7 @@ pub struct SpectrumArgs {
     pub calibration: CalibrationArgs,
     /// Output CSV file (`-` for stdout). Written atomically: an existing file is replaced
     /// only by a complete, successful result.
-    #[arg(short, long, value_name = "OUT.csv")]
+    #[arg(short, long, value_name = "OUT.csv", help_heading = "Output")]
     pub output: PathBuf,
 }
 
@@ -478,8 +481,8 @@ pub struct AnalyzeArgs {
     /// Stray-peak threshold: height over the robust noise floor in dB (default 10 dB).
     #[arg(long, value_name = "DB", value_parser = parse_positive, help_heading = "Stray peaks")]
     pub peak_threshold: Option<f64>,
-    /// Known peak frequencies in Hz, comma separated: every listed peak is marked new or
-    /// known (new_since_reference).
+    /// Known peak frequencies in Hz, comma separated: each stray peak found is then marked
+    /// new or known (new_since_reference).
     #[arg(long, value_name = "HZ,HZ,...", value_delimiter = ',', value_parser = parse_positive,
           help_heading = "Stray peaks")]
     pub reference_peaks: Vec<f64>,
@@ -487,10 +490,10 @@ pub struct AnalyzeArgs {
     #[arg(long, value_name = "OLD.json", help_heading = "Stray peaks")]
     pub reference: Option<PathBuf>,
     /// Do not print the summary on stdout.
-    #[arg(short, long)]
+    #[arg(short, long, help_heading = "Output")]
     pub quiet: bool,
     /// Output JSON file (`-` for stdout). Written atomically.
-    #[arg(short, long, value_name = "OUT.json")]
+    #[arg(short, long, value_name = "OUT.json", help_heading = "Output")]
     pub output: PathBuf,
 }
 
@@ -518,7 +521,7 @@ pub struct SynthArgs {
     pub set: Vec<String>,
     /// Output WAV file; the truth sidecar is written next to it as OUT.truth.json. Both are
     /// written atomically.
-    #[arg(short, long, value_name = "OUT.wav")]
+    #[arg(short, long, value_name = "OUT.wav", help_heading = "Output")]
     pub output: PathBuf,
 }
 
