@@ -95,6 +95,9 @@ fn scenario_list_and_generator() {
         // Every scenario's truth is complete and every default validates.
         let t = cfg.truth().unwrap();
         assert!(!t.peaks.is_empty(), "{name}");
+        // METHODS §5b assumption 3: the equivalent PM depth must satisfy β ≪ 1.
+        let beta = t.tone.unwrap().pm_depth_rad;
+        assert!(beta < 0.1, "{name}: beta = {beta}");
     }
     assert!(synth::generator("nonsense", 1).is_none());
     assert!(matches!(

@@ -311,8 +311,8 @@ impl ScenarioConfig {
             m_per_v: 2.0e-9,
             floor_v2_per_hz: 2.5e-10,
             tone_frequency_hz: 89_000.0,
-            tone_rms_m: 2.0e-11,
-            freq_pull_hz_per_m: 1.0e16,
+            tone_rms_m: 2.0e-12,
+            freq_pull_hz_per_m: 1.0e15,
             mains_hz: 50.0,
             mains_harmonics: 0,
             mains_rms_v: 0.0,
@@ -325,7 +325,6 @@ impl ScenarioConfig {
             "cooldown" => Ok(Self {
                 duration_secs: 6.0,
                 quality_factor: 2_000.0,
-                tone_rms_m: 5.0e-12,
                 cooldown: Some(CooldownParams {
                     base_temperature_k: 4.0,
                     base_frequency_hz: 86_400.0,
@@ -360,7 +359,6 @@ impl ScenarioConfig {
                 frequency_hz: 86_400.0,
                 quality_factor: 12_000.0,
                 temperature_k: 4.0,
-                tone_rms_m: 5.0e-12,
                 mains_harmonics: 12,
                 mains_rms_v: 3.0e-3,
                 strays: default_strays(),
