@@ -1300,3 +1300,22 @@ fn lo_side_picks_the_red_sideband() {
     }
     assert!((ratios[0] * ratios[1] - 1.0).abs() < 1e-9, "{ratios:?}");
 }
+
+#[test]
+fn clipping_is_reported_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut samples = integer_noise(8192, 4);
+    samples[100..110].fill(i16::MAX);
+    samples[200] = i16::MIN;
+    let wav = dir.path().join("clip.wav");
+    write_wav_i16(&wav, 10_000, &samples);
+    let out = dir.path().join("clip.csv");
+    let output = run(&["spectrum", s(&wav), "--segment", "1024", "-o", s(&out)]);
+    assert_success(&output, "clipped");
+    let err = stderr(&output);
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(
+        err.contains("warning") && err.contains("11 samples") && err.contains("clipping"),
+        "{err}"
+    );
+}
