@@ -1,6 +1,6 @@
 //! Validated configuration built from the parsed arguments: the source, the Welch settings
 //! and the analysis options, with every cross-option check the grammar cannot express.
-//! Shared by the headless commands and (through [`monitor_config`]) the window.
+//! Shared by the headless commands and `monitor` (the window).
 
 use crate::acquire::{SourceConfig, SourceSpec};
 use crate::dsp::{Averaging, WelchConfig};
