@@ -115,6 +115,12 @@ fn median(values: &mut [f64]) -> f64 {
     }
 }
 
+/// A number with up to 6 decimals and no trailing zeros (`10`, `0.25`).
+fn trimmed(value: f64) -> String {
+    let text = format!("{value:.6}");
+    text.trim_end_matches('0').trim_end_matches('.').to_string()
+}
+
 /// The human-readable report.
 fn write_text(out: &mut dyn Write, r: &BenchOutput) -> io::Result<()> {
     writeln!(
@@ -134,8 +140,8 @@ fn write_text(out: &mut dyn Write, r: &BenchOutput) -> io::Result<()> {
     )?;
     writeln!(
         out,
-        "  requested rate         {:.4} MS/s  → headroom {:.1}×",
-        r.rate_hz / 1e6,
+        "  requested rate         {} MS/s  → headroom {:.1}×",
+        trimmed(r.rate_hz / 1e6),
         r.headroom
     )?;
     writeln!(out, "  keeps up: {}", if r.keeps_up { "yes" } else { "no" })?;
@@ -168,5 +174,7 @@ mod tests {
         assert_eq!(median(&mut [3.0, 1.0, 2.0]), 2.0);
         assert_eq!(median(&mut [4.0, 1.0, 3.0, 2.0]), 2.5);
         assert_eq!(median(&mut []), 0.0);
+        assert_eq!(trimmed(10.0), "10");
+        assert_eq!(trimmed(0.25), "0.25");
     }
 }
