@@ -319,3 +319,145 @@ fn stray_peaks_found_and_compared() {
     );
     assert!((t.frequency_hz - 5_000.25).abs() < 0.2 * df);
 }
+
+/// Speed (run with `cargo test --release --test recovery speed -- --ignored --nocapture`):
+/// `analyze` on the spectrum of a 2²² -sample record with 65 536-sample segments (32 769 bins),
+/// and the mode fit alone.
+#[test]
+#[ignore = "timing, run by hand in release"]
+fn speed_of_analyze_and_fit() {
+    let fs = 1.0e6;
+    let (fm, g) = (100_000.0, 60.0);
+    let mut rng = Rng::new(3);
+    let mut x = circulant_record(1 << 22, fs, &mut rng, |f| {
+        1e-12 + oscillator_psd(f, 1e-6, fm, g)
+    });
+    add_tone(&mut x, fs, 104_321.0, 1e-4, 0.0);
+    let s = hann_spectrum(&x, fs, 65_536);
+    let opts = AnalysisOptions {
+        mode_band_hz: Some((99_000.0, 101_000.0)),
+        tone_frequency_hz: Some(104_321.0),
+        tone_rms_m: Some(1e-12),
+        mass_kg: Some(1e-12),
+        ..Default::default()
+    };
+    let reps = 50;
+    let t0 = std::time::Instant::now();
+    for _ in 0..reps {
+        std::hint::black_box(analyze(&s, &opts).unwrap());
+    }
+    let t_analyze = t0.elapsed().as_secs_f64() / reps as f64;
+    let t0 = std::time::Instant::now();
+    for _ in 0..reps {
+        std::hint::black_box(fit::fit_mode(&s, (99_000.0, 101_000.0)).unwrap());
+    }
+    let t_fit = t0.elapsed().as_secs_f64() / reps as f64;
+    let t0 = std::time::Instant::now();
+    for _ in 0..reps {
+        std::hint::black_box(peaks::find_peaks(&s, &peaks::PeakOptions::default()));
+    }
+    let t_peaks = t0.elapsed().as_secs_f64() / reps as f64;
+    println!(
+        "bins {}: analyze {:.3} ms, fit alone {:.3} ms ({} bins), peaks {:.3} ms",
+        s.len(),
+        t_analyze * 1e3,
+        t_fit * 1e3,
+        fit::fit_mode(&s, (99_000.0, 101_000.0)).unwrap().bins,
+        t_peaks * 1e3
+    );
+    // A 10⁶-bin spectrum for the peak finder.
+    let big = Spectrum {
+        psd_v2_per_hz: (0..1_000_001)
+            .map(|k| 1e-12 * (1.0 + 0.1 * ((k as f64) * 0.37).sin()))
+            .collect(),
+        ..s.clone()
+    };
+    let t0 = std::time::Instant::now();
+    std::hint::black_box(peaks::find_peaks(&big, &peaks::PeakOptions::default()));
+    println!(
+        "peaks on 10⁶ bins: {:.3} ms",
+        t0.elapsed().as_secs_f64() * 1e3
+    );
+}
+
+/// A record from `crate::synth` (helper D's thermal scenario, seed 11, 4 s) against its truth
+/// sidecar: f_m within 5e-4, γ within 15 %, m/V within 3 % (tone), n̄ within 15 %.
+#[test]
+fn synth_thermal_record_against_truth() {
+    let mut cfg = stillpoint::synth::ScenarioConfig::defaults("thermal").unwrap();
+    cfg.seed = 11;
+    let truth = cfg.truth().unwrap();
+    let x = cfg.samples().unwrap();
+    let s = hann_spectrum(&x, cfg.sample_rate_hz, 65_536);
+    let mode = truth.mode.clone().unwrap();
+    let tone = truth.tone.clone().unwrap();
+    let fm = mode.frequency_hz;
+    let opts = AnalysisOptions {
+        tone_frequency_hz: Some(tone.frequency_hz),
+        tone_rms_m: Some(tone.rms_m),
+        mode_band_hz: Some((fm - 25.0 * mode.linewidth_hz, fm + 25.0 * mode.linewidth_hz)),
+        mass_kg: Some(mode.mass_kg),
+        ..Default::default()
+    };
+    let r = analyze(&s, &opts).unwrap();
+    let rel = |a: f64, b: f64| (a / b - 1.0).abs();
+    println!(
+        "synth thermal: f {:?} γ {:?}/{} m/V {:?}/{} n̄ {:?}/{}",
+        r.mode.frequency_hz,
+        r.mode.linewidth_hz,
+        mode.linewidth_hz,
+        r.calibration.m_per_v,
+        truth.m_per_v,
+        r.quantum.occupancy,
+        mode.occupancy
+    );
+    println!(
+        "tone power {:?} ± {:?} truth {}",
+        r.calibration.tone_power_v2, r.calibration.tone_power_v2_uncertainty, tone.power_v2
+    );
+    assert!(rel(r.mode.frequency_hz.unwrap(), fm) < 5e-4);
+    assert!(rel(r.mode.linewidth_hz.unwrap(), mode.linewidth_hz) < 0.15);
+    assert!(rel(r.calibration.m_per_v.unwrap(), truth.m_per_v) < 0.03);
+    assert!(rel(r.quantum.occupancy.unwrap(), mode.occupancy) < 0.15);
+    assert!(rel(r.quantum.x_zpf_m.unwrap(), mode.x_zpf_m) < 1e-3);
+}
+
+/// The synth heterodyne scenario with unequal sideband gains, corrected by its two calibration
+/// lines (imbalance tones): n̄ within 20 % of the truth.
+#[test]
+fn synth_heterodyne_record_against_truth() {
+    let mut cfg = stillpoint::synth::ScenarioConfig::defaults("heterodyne").unwrap();
+    cfg.seed = 5;
+    if let Some(h) = cfg.heterodyne.as_mut() {
+        h.blue_gain = 1.3;
+    }
+    let truth = cfg.truth().unwrap();
+    let x = cfg.samples().unwrap();
+    let s = hann_spectrum(&x, cfg.sample_rate_hz, 16_384);
+    let sb = truth.sidebands.clone().unwrap();
+    let fm = sb.mechanical_frequency_hz;
+    let g = sb.linewidth_hz;
+    let opts = AnalysisOptions {
+        carrier_hz: Some(sb.carrier_hz),
+        lo_above: Some(sb.lo_side == "above"),
+        mode_band_hz: Some((fm - 10.0 * g, fm + 10.0 * g)),
+        imbalance_tones_hz: Some((
+            sb.calibration_red_frequency_hz,
+            sb.calibration_blue_frequency_hz,
+        )),
+        ..Default::default()
+    };
+    let r = analyze(&s, &opts).unwrap();
+    let out = r.sidebands.clone().unwrap();
+    println!(
+        "synth heterodyne: {out:?}; truth n̄ {} R {}",
+        sb.occupancy, sb.ratio
+    );
+    let n = out.occupancy.unwrap();
+    assert!(
+        (n / sb.occupancy - 1.0).abs() < 0.2,
+        "n̄ {n} vs {}",
+        sb.occupancy
+    );
+    assert!((out.red.frequency_hz.unwrap() - sb.red_frequency_hz).abs() < g);
+}
