@@ -68,7 +68,7 @@ fn median_in_place(v: &mut [f64]) -> f64 {
 }
 
 /// Robust floor of a PSD: running median over `window_bins` divided by the χ²_ν/ν median ratio
-/// (ν = 2 K_eff), evaluated every ~window/8 bins and interpolated geometrically in between.
+/// (ν = 2 K_eff), evaluated every ~window/4 bins and interpolated geometrically in between.
 pub fn robust_floor(psd: &[f64], window_bins: usize, k_eff: f64) -> Vec<f64> {
     let n = psd.len();
     if n == 0 {
@@ -76,7 +76,7 @@ pub fn robust_floor(psd: &[f64], window_bins: usize, k_eff: f64) -> Vec<f64> {
     }
     let w = window_bins.clamp(3, n.max(3));
     let half = w / 2;
-    let step = (w / 8).max(1);
+    let step = (w / 4).max(1);
     let bias = chi2_median_ratio(2.0 * k_eff.max(1.0));
     let mut scratch = Vec::with_capacity(w + 1);
     let mut nodes: Vec<(usize, f64)> = Vec::with_capacity(n / step + 2);
