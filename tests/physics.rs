@@ -787,3 +787,38 @@ fn bad_physics_input() {
     );
     assert!(r.quantum.occupancy.is_some() && r.quantum.effective_temperature_k.is_some());
 }
+
+/// Small K_eff (= 2, ν = 4): the model-weighted fit iterated to convergence is the Gamma
+/// (χ²_ν) maximum-likelihood fit (Percival & Walden 1993, from memory), so it stays unbiased
+/// and its 1σ still covers ~68 % where data-weighted least squares would be biased low.
+#[test]
+fn mode_fit_coverage_at_small_k_eff() {
+    let (fs, n, k_eff) = (20_000.0, 8192, 2.0);
+    let (fm, g, area, bg) = (3_000.37, 25.0, 2.0e-3, 1.0e-7);
+    let seeds = 200;
+    let mut hits = [0usize; 2];
+    let mut mean_area = 0.0;
+    for seed in 0..seeds {
+        let mut rng = Rng::new(10_000 + seed);
+        let s = synthetic_spectrum(fs, n, k_eff, &mut rng, |f| {
+            bg + oscillator::oscillator_psd(f, area, fm, g)
+        });
+        let r = fit::fit_mode(&s, (2_500.0, 3_500.0)).unwrap();
+        hits[0] += usize::from((r.frequency_hz.value - fm).abs() <= r.frequency_hz.sigma);
+        hits[1] += usize::from((r.linewidth_hz.value - g).abs() <= r.linewidth_hz.sigma);
+        mean_area += r.area.value / seeds as f64;
+    }
+    let frac: Vec<f64> = hits.iter().map(|h| *h as f64 / seeds as f64).collect();
+    println!(
+        "K_eff = 2 coverage (f_m, γ): {frac:?}; mean area / truth {:.4}",
+        mean_area / area
+    );
+    for f in &frac {
+        assert!((0.58..=0.78).contains(f), "{frac:?}");
+    }
+    assert!(
+        (mean_area / area - 1.0).abs() < 0.03,
+        "area bias {}",
+        mean_area / area
+    );
+}
