@@ -394,6 +394,13 @@ fn slow_consumer_drops_are_counted_to_the_sample() {
         status.reader.samples,
         rss_bytes().unwrap_or(0) as f64 / 1e6
     );
+    // Figure for tests/perf/SOAK.md (not asserted): the tone read through a gappy stream.
+    let sp = welch.spectrum().unwrap();
+    eprintln!(
+        "slow consumer: tone power {:.4e} V² (truth 1e-6, σ {:.1e}) through the gaps",
+        tone_power_v2(&sp, 89_000.0),
+        tone_power_se_v2(&sp, 89_000.0)
+    );
     assert!(status.dropped_blocks > 0, "a slow consumer dropped nothing");
     assert_eq!(status.dropped_samples, 5000 * status.dropped_blocks);
     assert_eq!(received + status.dropped_samples, status.reader.samples);
