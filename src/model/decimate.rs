@@ -56,6 +56,8 @@ pub fn decimate_minmax(
         push_point(&mut out, start);
     }
 
+    // Columns are found by binary search on the (ascending) frequencies, so the per-bin work
+    // is a bare min/max scan of a slice. Bins here are all above lo > 0 Hz.
     let mut k = first_in;
     let mut column = 0usize;
     while k < end_in && column < pixel_columns {
@@ -66,34 +68,35 @@ pub fn decimate_minmax(
             10f64.powf(log_lo + step * (column + 1) as f64)
         };
         let col_start = k;
+        let col_end = k + freqs[k..end_in].partition_point(|&f| f <= edge_hz);
+        k = col_end;
+        column += 1;
+        let count = col_end - col_start;
+        if count == 0 {
+            continue;
+        }
+        if count <= 2 {
+            for j in col_start..col_end {
+                push_point(&mut out, j);
+            }
+            continue;
+        }
         let mut min_k = usize::MAX;
         let mut max_k = usize::MAX;
         let mut min_v = f64::INFINITY;
         let mut max_v = f64::NEG_INFINITY;
-        while k < end_in {
-            let f = freqs[k];
-            if f > edge_hz {
-                break;
+        for (j, &v) in values[col_start..col_end].iter().enumerate() {
+            // NaN fails both comparisons; ±Inf is checked only when it would win.
+            if v < min_v && v.is_finite() {
+                min_v = v;
+                min_k = col_start + j;
             }
-            let v = values[k];
-            if f > 0.0 && v.is_finite() {
-                if v < min_v {
-                    min_v = v;
-                    min_k = k;
-                }
-                if v > max_v {
-                    max_v = v;
-                    max_k = k;
-                }
+            if v > max_v && v.is_finite() {
+                max_v = v;
+                max_k = col_start + j;
             }
-            k += 1;
         }
-        let count = k - col_start;
-        if count <= 2 {
-            for j in col_start..k {
-                push_point(&mut out, j);
-            }
-        } else if min_k != usize::MAX {
+        if min_k != usize::MAX && max_k != usize::MAX {
             let (a, b) = if min_k <= max_k {
                 (min_k, max_k)
             } else {
@@ -104,7 +107,6 @@ pub fn decimate_minmax(
                 push_point(&mut out, b);
             }
         }
-        column += 1;
     }
     if end > end_in {
         push_point(&mut out, end_in);

@@ -137,6 +137,11 @@ pub struct Frame {
     pub generation: u64,
     /// The current spectrum (shared, not copied).
     pub spectrum: Option<Arc<Spectrum>>,
+    /// Bin frequencies of `spectrum`, Hz (shared while the grid is unchanged).
+    pub frequencies_hz: Option<Arc<Vec<f64>>>,
+    /// log10 of `spectrum`'s PSD in V²/Hz (NaN where the PSD is not positive), computed here
+    /// so the window only decimates and maps (see [`super::state::unit_affine`]).
+    pub log_psd: Option<Arc<Vec<f64>>>,
     /// Analysis of that spectrum.
     pub report: Option<Arc<Report>>,
     /// Why the analysis failed (bad options), if it did.
@@ -278,7 +283,10 @@ struct Worker {
     generation: u64,
     status: EngineStatus,
     band_hz: Option<(f64, f64)>,
+    waterfall_range_hz: Option<(f64, f64)>,
     spectrum: Option<Arc<Spectrum>>,
+    frequencies_hz: Option<Arc<Vec<f64>>>,
+    log_psd: Option<Arc<Vec<f64>>>,
     report: Option<Arc<Report>>,
     analysis_error: Option<String>,
     segments_at_analysis: usize,
@@ -310,7 +318,10 @@ impl Worker {
             generation: 0,
             status: EngineStatus::default(),
             band_hz,
+            waterfall_range_hz: None,
             spectrum: None,
+            frequencies_hz: None,
+            log_psd: None,
             report: None,
             analysis_error: None,
             segments_at_analysis: 0,
@@ -367,10 +378,13 @@ impl Worker {
         self.source = None;
         self.generation += 1;
         self.spectrum = None;
+        self.frequencies_hz = None;
+        self.log_psd = None;
         self.report = None;
         self.analysis_error = None;
         self.last_history = None;
         self.band_hz = self.config.analysis.mode_band_hz;
+        self.waterfall_range_hz = None;
         self.status = EngineStatus::default();
         match start_source(config, self.config.playback_speed) {
             Ok((source, rate, description)) => {
@@ -440,6 +454,10 @@ impl Worker {
                 options,
                 follow_mode,
             } => {
+                if options.mode_band_hz != self.band_hz {
+                    // A band set by hand: the waterfall re-centres on it.
+                    self.waterfall_range_hz = None;
+                }
                 self.band_hz = options.mode_band_hz;
                 self.config.analysis = options;
                 self.config.follow_mode = follow_mode;
@@ -536,6 +554,26 @@ impl Worker {
         let fresh = segments != self.segments_at_analysis;
         if fresh && let Some(w) = &self.welch {
             self.spectrum = w.spectrum().map(Arc::new);
+            if let Some(sp) = &self.spectrum {
+                let grid_changed = self.frequencies_hz.as_ref().is_none_or(|f| {
+                    f.len() != sp.len() || f.get(1).copied() != Some(sp.resolution_hz)
+                });
+                if grid_changed {
+                    self.frequencies_hz = Some(Arc::new(sp.frequencies_hz()));
+                }
+                self.log_psd = Some(Arc::new(
+                    sp.psd_v2_per_hz
+                        .iter()
+                        .map(|&p| {
+                            if p > 0.0 && p.is_finite() {
+                                p.log10()
+                            } else {
+                                f64::NAN
+                            }
+                        })
+                        .collect(),
+                ));
+            }
             self.segments_at_analysis = segments;
             self.analyse();
         }
@@ -571,8 +609,15 @@ impl Worker {
             && let Some(s) = &self.spectrum
         {
             self.last_history = Some(Instant::now());
-            waterfall_row =
-                waterfall_row_of(s, self.config.waterfall_columns, self.status.elapsed_s);
+            if self.waterfall_range_hz.is_none() {
+                self.waterfall_range_hz = self.band_hz.map(|b| waterfall_span(b, s));
+            }
+            waterfall_row = waterfall_row_of(
+                s,
+                self.waterfall_range_hz,
+                self.config.waterfall_columns,
+                self.status.elapsed_s,
+            );
             trend = self
                 .report
                 .as_ref()
@@ -581,6 +626,8 @@ impl Worker {
         let frame = Frame {
             generation: self.generation,
             spectrum: self.spectrum.clone(),
+            frequencies_hz: self.frequencies_hz.clone(),
+            log_psd: self.log_psd.clone(),
             report: self.report.clone(),
             analysis_error: self.analysis_error.clone(),
             band_hz: self.band_hz,
@@ -622,10 +669,29 @@ fn reader_warnings(status: &AcqStatus) -> Vec<String> {
     w
 }
 
-/// Waterfall row over (Δf, Nyquist).
-fn waterfall_row_of(s: &Spectrum, columns: usize, time_s: f64) -> Option<WaterfallRow> {
-    let lo = s.resolution_hz;
-    let hi = s.frequency_hz(s.len().saturating_sub(1));
+/// The waterfall span for a fit band: the band and 2.5 band widths either side (so the
+/// mode's drift during a cooldown and a nearby calibration tone stay in view), clipped to
+/// the spectrum. Fixed once chosen, so rows stay comparable while the band follows the mode.
+fn waterfall_span(band: (f64, f64), s: &Spectrum) -> (f64, f64) {
+    let w = band.1 - band.0;
+    let nyquist = s.frequency_hz(s.len().saturating_sub(1));
+    let lo = (band.0 - 2.5 * w).max(s.resolution_hz);
+    let hi = (band.1 + 2.5 * w).min(nyquist);
+    if hi > lo {
+        (lo, hi)
+    } else {
+        (s.resolution_hz, nyquist)
+    }
+}
+
+/// Waterfall row over `range_hz`, or (Δf, Nyquist) without one.
+fn waterfall_row_of(
+    s: &Spectrum,
+    range_hz: Option<(f64, f64)>,
+    columns: usize,
+    time_s: f64,
+) -> Option<WaterfallRow> {
+    let (lo, hi) = range_hz.unwrap_or((s.resolution_hz, s.frequency_hz(s.len().saturating_sub(1))));
     if !(lo > 0.0 && hi > lo) {
         return None;
     }
@@ -759,6 +825,54 @@ mod tests {
         assert!((0.5 * (lo + hi) - 120.0).abs() < 1e-9);
         assert!((hi - lo - 100.0).abs() < 1e-9); // ±50 Hz = 25 γ
         assert!(auto_band(&s, &Report::default(), &opts).is_none());
+    }
+
+    #[test]
+    fn demo_source_gives_frames_with_analysis_and_history_then_pauses() {
+        let mut cfg = EngineConfig::new(SourceConfig::new(crate::acquire::SourceSpec::Demo {
+            scenario: "cooldown".into(),
+            seed: 1,
+        }));
+        cfg.welch.segment = 4096;
+        cfg.history_interval = Duration::from_millis(100);
+        cfg.publish_interval = Duration::from_millis(50);
+        let woken = Arc::new(std::sync::atomic::AtomicUsize::new(0));
+        let w = Arc::clone(&woken);
+        let engine = Engine::start(
+            cfg,
+            Box::new(move || {
+                w.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+            }),
+        )
+        .unwrap();
+        let mut live = crate::model::LiveState::new();
+        let t0 = Instant::now();
+        while t0.elapsed() < Duration::from_secs(30)
+            && !(live.waterfall.rows().len() >= 2 && live.trends.points().len() >= 2)
+        {
+            if let Some(f) = engine.recv_frame_timeout(Duration::from_millis(200)) {
+                live.apply(f);
+            }
+        }
+        let frame = live.frame.clone().expect("no frame from the demo");
+        let s = frame.spectrum.expect("no spectrum");
+        assert_eq!(s.segment, 4096);
+        assert_eq!(frame.status.sample_rate_hz, s.sample_rate_hz);
+        assert!(frame.status.averages > 0);
+        assert!(frame.report.is_some());
+        assert!(live.waterfall.rows().len() >= 2, "no waterfall rows");
+        assert!(
+            woken.load(std::sync::atomic::Ordering::Relaxed) > 0,
+            "waker never called"
+        );
+        // Frozen: at most the one frame that reports the pause, then silence.
+        assert!(engine.send(EngineCommand::Pause));
+        std::thread::sleep(Duration::from_millis(300));
+        let _ = engine.drain_frames();
+        std::thread::sleep(Duration::from_millis(400));
+        assert!(engine.drain_frames().is_empty(), "frames while paused");
+        assert!(engine.send(EngineCommand::Resume));
+        assert!(engine.recv_frame_timeout(Duration::from_secs(10)).is_some());
     }
 
     #[test]

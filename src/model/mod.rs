@@ -107,6 +107,8 @@ mod tests {
         let frame = |generation: u64, t: f64| Frame {
             generation,
             spectrum: None,
+            frequencies_hz: None,
+            log_psd: None,
             report: None,
             analysis_error: None,
             band_hz: None,

@@ -82,6 +82,24 @@ pub fn plot_y(psd_v2_per_hz: f64, unit: DensityUnit, m_per_v: Option<f64>) -> Op
     y.is_finite().then_some(y)
 }
 
+/// The plot's y as an affine function of log10(PSD / (V²/Hz)): `y = a·log10(S) + b` with
+/// a > 0 (so min/max decimation commutes with it). `None` for a displacement unit without a
+/// calibration. Agrees with [`plot_y`].
+pub fn unit_affine(unit: DensityUnit, m_per_v: Option<f64>) -> Option<(f64, f64)> {
+    let log_c2 = match m_per_v {
+        Some(c) if c.is_finite() && c > 0.0 => Some(2.0 * c.log10()),
+        _ => None,
+    };
+    Some(match unit {
+        DensityUnit::V2PerHz => (1.0, 0.0),
+        DensityUnit::VPerRtHz => (0.5, 0.0),
+        DensityUnit::DbV2PerHz => (10.0, 0.0),
+        DensityUnit::M2PerHz => (1.0, log_c2?),
+        DensityUnit::MPerRtHz => (0.5, 0.5 * log_c2?),
+        DensityUnit::DbM2PerHz => (10.0, 10.0 * log_c2?),
+    })
+}
+
 /// Same as [`plot_y`] for a value already in m²/Hz (quantum reference curves): `None` for
 /// a voltage unit unless `m_per_v` lets it be converted back to V²/Hz.
 pub fn plot_y_from_m2(psd_m2_per_hz: f64, unit: DensityUnit, m_per_v: Option<f64>) -> Option<f64> {
@@ -449,6 +467,11 @@ mod tests {
         assert!(plot_y(0.0, DensityUnit::V2PerHz, None).is_none());
         assert!(plot_y(f64::NAN, DensityUnit::V2PerHz, None).is_none());
         assert!(close(plot_y_from_m2(1e-24, DensityUnit::V2PerHz, c), -12.0));
+        for u in UNIT_CYCLE {
+            let (a, b) = unit_affine(u, c).unwrap();
+            assert!(close(plot_y(s, u, c), a * s.log10() + b), "{u:?}");
+        }
+        assert!(unit_affine(DensityUnit::MPerRtHz, None).is_none());
         assert!(plot_y_from_m2(1e-24, DensityUnit::M2PerHz, None).is_none());
     }
 

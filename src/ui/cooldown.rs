@@ -7,7 +7,7 @@ use eframe::egui::{
 };
 use egui_plot::{Line, Plot, PlotPoints};
 
-use super::axes::{format_hz, format_power};
+use super::axes::{format_hz, format_power, frequency_tick, log_spacer};
 use super::theme;
 use crate::model::LiveState;
 
@@ -170,18 +170,36 @@ impl CooldownState {
             let uv2 = Rect::from_min_max(pos2(0.0, 1.0), pos2(1.0, (rows - n2) / rows));
             painter.image(tex.id(), bottom, uv2, Color32::WHITE);
         }
-        // Frequency ticks (log axis) under the image.
+        // Frequency ticks under the image (log axis; round frequencies when narrow).
         let (lo, hi) = last.range_hz;
         let (llo, lhi) = (lo.log10(), hi.log10());
         let axis_y = rect.max.y;
-        let mut d = llo.ceil() as i64;
-        while (d as f64) <= lhi {
-            let x = rect.min.x + rect.width() * ((d as f64 - llo) / (lhi - llo)) as f32;
+        let range = llo..=lhi;
+        let marks = log_spacer(egui_plot::GridInput {
+            bounds: (llo, lhi),
+            base_step_size: (lhi - llo) / f64::from(rect.width().max(1.0)),
+        });
+        let mut last_label_x = f32::NEG_INFINITY;
+        for m in marks {
+            let text = frequency_tick(m, &range);
+            if text.is_empty() {
+                continue;
+            }
+            let x = rect.min.x + rect.width() * ((m.value - llo) / (lhi - llo)) as f32;
             painter.line_segment(
-                [pos2(x, axis_y - 5.0), pos2(x, axis_y)],
+                [pos2(x, axis_y - 6.0), pos2(x, axis_y)],
                 egui::Stroke::new(1.0, theme::INK),
             );
-            d += 1;
+            if x - last_label_x > 70.0 && x > rect.min.x + 30.0 && x < rect.max.x - 30.0 {
+                painter.text(
+                    pos2(x, axis_y - 7.0),
+                    egui::Align2::CENTER_BOTTOM,
+                    text,
+                    egui::FontId::proportional(11.0),
+                    theme::INK,
+                );
+                last_label_x = x;
+            }
         }
         ui.horizontal(|ui| {
             ui.label(
@@ -225,7 +243,7 @@ fn trends_ui(ui: &mut Ui, live: &LiveState, height: f32) {
         ("occupancy n", t.series(|p| p.occupancy), theme::ZERO_POINT),
         ("m/V", t.series(|p| p.m_per_v), theme::TONE),
     ];
-    let strip_h = ((height - 40.0) / 4.0 - 6.0).max(36.0);
+    let strip_h = ((height - 30.0 - 4.0 * 24.0) / 4.0).max(34.0);
     let link = ui.scope_id().with("trend_link");
     for (i, (name, pts, colour)) in strips.into_iter().enumerate() {
         let last = pts.last().map(|p| p[1]);
@@ -246,6 +264,7 @@ fn trends_ui(ui: &mut Ui, live: &LiveState, height: f32) {
             .allow_scroll(false)
             .y_axis_min_width(56.0)
             .x_axis_formatter(|m, _| format!("{:.0} s", m.value))
+            .y_axis_formatter(|m, _| super::axes::format_sig(m.value, 3))
             .show(ui, |pui| {
                 pui.line(
                     Line::new(name, PlotPoints::new(pts))

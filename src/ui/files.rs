@@ -37,6 +37,8 @@ pub struct FileState {
     /// Shown when a dialog could not be opened.
     pub dialog_note: Option<String>,
     compare: Option<(usize, usize)>,
+    /// Results of PNG exports, written by the screenshot callback (another thread).
+    pub png_results: std::sync::Arc<std::sync::Mutex<Vec<Result<String, String>>>>,
 }
 
 /// True if a native file dialog has a chance of opening (a D-Bus session for the desktop
@@ -374,6 +376,22 @@ impl StillpointApp {
         }
     }
 
+    /// Reports finished PNG exports.
+    pub(super) fn drain_png_results(&mut self) {
+        let done: Vec<Result<String, String>> = self
+            .files
+            .png_results
+            .lock()
+            .map(|mut l| std::mem::take(&mut *l))
+            .unwrap_or_default();
+        for r in done {
+            match r {
+                Ok(p) => self.info(format!("PNG saved: {p}")),
+                Err(e) => self.error(format!("cannot save the PNG: {e}")),
+            }
+        }
+    }
+
     pub(super) fn export_png(&mut self, ctx: &egui::Context, overwrite: bool) {
         let path = match Self::typed_path(&self.files.png_path, "PNG export") {
             Ok(p) => p,
@@ -385,8 +403,12 @@ impl StillpointApp {
             return;
         }
         let ctx2 = ctx.clone();
+        let results = std::sync::Arc::clone(&self.files.png_results);
         ctx.request_screenshot(move |image| {
-            let _ = write_png(&path, &image, overwrite);
+            let r = write_png(&path, &image, overwrite).map(|()| path.display().to_string());
+            if let Ok(mut list) = results.lock() {
+                list.push(r);
+            }
             ctx2.request_repaint();
         });
         self.info("PNG export requested (written after the next frame)");

@@ -59,7 +59,8 @@ impl MonitorOptions {
             analysis.mass_kg = Some(s.mass_kg);
             let f0 = s.frequency_hz;
             analysis.mode_band_hz = Some((f0 - 700.0, f0 + 700.0));
-            let mut w = WelchConfig::new(s.sample_rate_hz, 131_072);
+            // ~1 Hz bins: the cold mode (γ ≈ 7 Hz) spans several ENBW.
+            let mut w = WelchConfig::new(s.sample_rate_hz, 262_144);
             w.averaging = crate::dsp::Averaging::Exponential {
                 time_constant_segments: 8.0,
             };
@@ -237,6 +238,7 @@ impl StillpointApp {
             start_time: None,
         };
         app.ui.sync_from(&app.state);
+        app.plot.quiet = app.screenshot.is_some();
         app.start_engine(&ctx);
         app
     }
@@ -649,6 +651,7 @@ impl StillpointApp {
 impl eframe::App for StillpointApp {
     fn logic(&mut self, ctx: &egui::Context, _frame: &mut eframe::Frame) {
         self.drain_engine();
+        self.drain_png_results();
         self.keyboard(ctx);
         self.screenshot_tick(ctx);
     }

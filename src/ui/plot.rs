@@ -15,10 +15,9 @@ use egui_plot::{
 use super::UiCommand;
 use super::axes::{format_hz, format_power, frequency_tick, log_spacer, power_tick};
 use super::theme;
-use crate::dsp::units::DensityUnit;
 use crate::model::curves::{ModeShape, grid_around_mode};
 use crate::model::state::{
-    plot_y, plot_y_from_m2, unit_is_db, unit_is_displacement, unit_label, unit_short,
+    plot_y, plot_y_from_m2, unit_affine, unit_is_db, unit_is_displacement, unit_label, unit_short,
 };
 use crate::model::{AppState, LiveState, LoadedSnapshot, decimate_minmax};
 
@@ -27,6 +26,8 @@ use crate::model::{AppState, LiveState, LoadedSnapshot, decimate_minmax};
 pub struct PlotState {
     /// Dragging on the plot sets the fit band.
     pub band_mode: bool,
+    /// No hover read-out (screenshots).
+    pub quiet: bool,
     band_drag_start: Option<f64>,
     /// Set x bounds (log10 Hz) on the next frame.
     pub request_x: Option<(f64, f64)>,
@@ -35,48 +36,30 @@ pub struct PlotState {
     /// Re-fit the y range to the data in view on the next frame.
     pub reset_y: bool,
     view_initialised: bool,
-    cache_key: Option<(u64, DensityUnit, u64)>,
-    freqs: Vec<f64>,
-    ys: Vec<f64>,
 }
 
-fn y_range_in(freqs: &[f64], ys: &[f64], x_hz: (f64, f64)) -> Option<(f64, f64)> {
+/// (min, max) of the finite log10 PSD values in a frequency range, mapped to plot y.
+fn y_range_in(
+    freqs: &[f64],
+    logs: &[f64],
+    x_hz: (f64, f64),
+    affine: (f64, f64),
+) -> Option<(f64, f64)> {
     let mut lo = f64::INFINITY;
     let mut hi = f64::NEG_INFINITY;
     let a = freqs.partition_point(|&f| f < x_hz.0);
     let b = freqs.partition_point(|&f| f <= x_hz.1);
-    for &y in ys.get(a..b)? {
+    for &y in logs.get(a..b)? {
         if y.is_finite() {
             lo = lo.min(y);
             hi = hi.max(y);
         }
     }
-    (lo.is_finite() && hi > lo).then_some((lo, hi))
+    let (p, q) = affine;
+    (lo.is_finite() && hi > lo).then_some((p * lo + q, p * hi + q))
 }
 
 impl PlotState {
-    fn refresh_cache(&mut self, live: &LiveState, unit: DensityUnit, m_per_v: Option<f64>) {
-        let key = (live.frames_applied, unit, m_per_v.map_or(0, f64::to_bits));
-        if self.cache_key == Some(key) {
-            return;
-        }
-        self.cache_key = Some(key);
-        let Some(s) = live.frame.as_ref().and_then(|f| f.spectrum.as_ref()) else {
-            self.freqs.clear();
-            self.ys.clear();
-            return;
-        };
-        if self.freqs.len() != s.len() || self.freqs.get(1).copied() != Some(s.resolution_hz) {
-            self.freqs = s.frequencies_hz();
-        }
-        self.ys.clear();
-        self.ys.extend(
-            s.psd_v2_per_hz
-                .iter()
-                .map(|&p| plot_y(p, unit, m_per_v).unwrap_or(f64::NAN)),
-        );
-    }
-
     /// Draws the spectrum plot `height` points tall. Returns the commands it asks for.
     pub fn spectrum_ui(
         &mut self,
@@ -94,11 +77,15 @@ impl PlotState {
             .as_ref()
             .and_then(|r| r.calibration.m_per_v)
             .filter(|c| c.is_finite() && *c > 0.0);
-        self.refresh_cache(live, unit, m_per_v);
-        let have_data = !self.ys.is_empty() && self.ys.iter().any(|y| y.is_finite());
+        let empty = Vec::new();
+        let freqs: &[f64] = frame
+            .and_then(|f| f.frequencies_hz.as_deref())
+            .unwrap_or(&empty);
+        let logs: &[f64] = frame.and_then(|f| f.log_psd.as_deref()).unwrap_or(&empty);
+        let affine = unit_affine(unit, m_per_v);
+        let have_data = affine.is_some() && logs.iter().any(|y| y.is_finite());
         if !have_data {
-            let text = if unit_is_displacement(unit) && m_per_v.is_none() && !self.freqs.is_empty()
-            {
+            let text = if unit_is_displacement(unit) && m_per_v.is_none() && !freqs.is_empty() {
                 format!(
                     "No calibration yet: {} needs one (choose a method under 'Calibration and \
                      mode', or switch to a voltage unit).",
@@ -114,13 +101,12 @@ impl PlotState {
             });
             return out;
         }
+        let (ya, yb) = affine.unwrap_or((1.0, 0.0));
         let full_x = (
-            self.freqs.get(1).copied().unwrap_or(1.0).log10(),
-            self.freqs.last().copied().unwrap_or(10.0).log10(),
+            freqs.get(1).copied().unwrap_or(1.0).log10(),
+            freqs.last().copied().unwrap_or(10.0).log10(),
         );
         let db = unit_is_db(unit);
-        let freqs = &self.freqs;
-        let ys = &self.ys;
         let band = frame.and_then(|f| f.band_hz);
         let mode = report.as_ref().and_then(|r| {
             let f = r.mode.frequency_hz.filter(|v| v.is_finite() && *v > 0.0)?;
@@ -141,17 +127,60 @@ impl PlotState {
         let tone = report
             .as_ref()
             .and_then(|r| r.calibration.tone_frequency_hz);
+        let sb = report.as_ref().and_then(|r| r.sidebands.clone());
+        let sidebands = [
+            (
+                "red sideband (Stokes, n+1)",
+                sb.as_ref().and_then(|s| s.red.frequency_hz),
+                theme::FIT,
+            ),
+            (
+                "blue sideband (anti-Stokes, n)",
+                sb.as_ref().and_then(|s| s.blue.frequency_hz),
+                theme::TRACE,
+            ),
+        ];
+        // In heterodyne the mode's lines sit at carrier ± f_m, not at f_m: no mode curves.
+        let heterodyne = state.calibration.carrier_hz.is_some() || sb.is_some();
         let band_mode = self.band_mode;
+        let quiet = self.quiet;
         let mut request_bounds: Option<PlotBounds> = None;
-        if self.reset_view || !self.view_initialised {
-            self.reset_view = false;
+        if !self.view_initialised {
+            // Start on the mode region when a band is known (the physics is there), else on
+            // the whole span.
             self.view_initialised = true;
-            self.request_x = Some(full_x);
-            self.reset_y = true;
+            self.request_x = Some(band.map_or(full_x, |(lo, hi)| {
+                let w = hi - lo;
+                (
+                    (lo - 2.5 * w).max(10f64.powf(full_x.0)).log10(),
+                    (hi + 2.5 * w).min(10f64.powf(full_x.1)).log10(),
+                )
+            }));
         }
+        if self.reset_view {
+            self.reset_view = false;
+            self.request_x = Some(full_x);
+        }
+        // The lowest reference level drawn (the zero-point peak) stays inside the y range.
+        let zp_y = mode.and_then(|(shape, _, _)| {
+            let m = mass.filter(|m| *m > 0.0 && overlays.zero_point)?;
+            plot_y_from_m2(
+                shape.zero_point_m2_per_hz(shape.frequency_hz, m),
+                unit,
+                m_per_v,
+            )
+        });
+        let with_refs = move |r: Option<(f64, f64)>| {
+            r.map(|(a, b)| (zp_y.map_or(a, |z| a.min(z - if db { 5.0 } else { 0.5 })), b))
+        };
         if let Some((x0, x1)) = self.request_x.take() {
-            let (y0, y1) =
-                y_range_in(freqs, ys, (10f64.powf(x0), 10f64.powf(x1))).unwrap_or((-1.0, 1.0));
+            let (y0, y1) = with_refs(y_range_in(
+                freqs,
+                logs,
+                (10f64.powf(x0), 10f64.powf(x1)),
+                (ya, yb),
+            ))
+            .unwrap_or((-1.0, 1.0));
             let pad = if db { 3.0 } else { 0.3 };
             request_bounds = Some(PlotBounds::from_min_max([x0, y0 - pad], [x1, y1 + pad]));
             self.reset_y = false;
@@ -174,7 +203,8 @@ impl PlotState {
             .height(height)
             .legend(
                 Legend::default()
-                    .position(Corner::RightTop)
+                    .position(Corner::LeftTop)
+                    .follow_insertion_order(true)
                     .background_alpha(0.85),
             )
             .x_axis_label("frequency")
@@ -187,7 +217,11 @@ impl PlotState {
             .allow_double_click_reset(false)
             .allow_drag(!band_mode)
             .allow_boxed_zoom(!band_mode)
+            .show_crosshair(!quiet)
             .label_formatter(move |pos| {
+                if quiet {
+                    return None;
+                }
                 let p = match pos {
                     egui_plot::HoverPosition::NearDataPoint { position, .. }
                     | egui_plot::HoverPosition::Elsewhere { position } => *position,
@@ -210,7 +244,8 @@ impl PlotState {
             let bounds = pui.plot_bounds();
             let (x0, x1) = (bounds.min()[0], bounds.max()[0]);
             let view_hz = (10f64.powf(x0), 10f64.powf(x1));
-            if reset_y && let Some((y0, y1)) = y_range_in(freqs, ys, view_hz) {
+            if reset_y && let Some((y0, y1)) = with_refs(y_range_in(freqs, logs, view_hz, (ya, yb)))
+            {
                 let pad = if db { 3.0 } else { 0.3 };
                 pui.set_plot_bounds_y(y0 - pad..=y1 + pad);
             }
@@ -248,14 +283,17 @@ impl PlotState {
                 }
             }
             // The live trace.
-            let pts = decimate_minmax(freqs, ys, view_hz, columns);
+            let mut pts = decimate_minmax(freqs, logs, view_hz, columns);
+            for p in &mut pts {
+                p[1] = ya * p[1] + yb;
+            }
             pui.line(
                 Line::new("live spectrum", PlotPoints::new(pts))
                     .color(theme::TRACE)
                     .width(1.3),
             );
             // Reference curves of the fitted mode.
-            if let Some((shape, area_v2, background_v2)) = mode {
+            if let Some((shape, area_v2, background_v2)) = mode.filter(|_| !heterodyne) {
                 let grid = grid_around_mode(view_hz, 500, shape);
                 let curve = |f: &dyn Fn(f64) -> Option<f64>| -> Vec<[f64; 2]> {
                     grid.iter()
@@ -330,6 +368,17 @@ impl PlotState {
                     }
                 }
             }
+            // Motional sidebands of a heterodyne record.
+            for (name, f, colour) in &sidebands {
+                if let Some(f) = f.filter(|f| *f > 0.0) {
+                    pui.add(
+                        VLine::new(*name, f.log10())
+                            .color(*colour)
+                            .style(LineStyle::Dashed { length: 6.0 })
+                            .width(1.2),
+                    );
+                }
+            }
             // Calibration tone and stray resonances.
             if let Some(t) = tone.filter(|t| *t > 0.0) {
                 pui.add(
@@ -344,8 +393,8 @@ impl PlotState {
                     .iter()
                     .filter_map(|p| {
                         let k = freqs.partition_point(|&f| f < p.frequency_hz);
-                        let y = (k.saturating_sub(2)..(k + 2).min(ys.len()))
-                            .filter_map(|j| ys.get(j).copied())
+                        let y = (k.saturating_sub(2)..(k + 2).min(logs.len()))
+                            .filter_map(|j| logs.get(j).map(|l| ya * l + yb))
                             .filter(|y| y.is_finite())
                             .fold(f64::NEG_INFINITY, f64::max);
                         y.is_finite()
