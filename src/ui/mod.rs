@@ -59,8 +59,9 @@ impl MonitorOptions {
             analysis.mass_kg = Some(s.mass_kg);
             let f0 = s.frequency_hz;
             analysis.mode_band_hz = Some((f0 - 700.0, f0 + 700.0));
-            // ~1 Hz bins: the cold mode (γ ≈ 7 Hz) spans several ENBW.
-            let mut w = WelchConfig::new(s.sample_rate_hz, 262_144);
+            // ~2 Hz bins, 0.5 s segments: quick to follow the cooldown (the report notes when the
+            // cold mode's linewidth nears the resolution).
+            let mut w = WelchConfig::new(s.sample_rate_hz, 131_072);
             w.averaging = crate::dsp::Averaging::Exponential {
                 time_constant_segments: 8.0,
             };
