@@ -489,11 +489,21 @@ impl Worker {
                 }
             }
             AcqEvent::Status(s) => {
+                let warnings = reader_warnings(&s);
+                // A changed counter or warning is news even without a new segment (a stalled
+                // or reconnecting stream): publish it.
+                if warnings != self.status.warnings
+                    || s.dropped_blocks != self.status.dropped_blocks
+                    || s.dropped_samples != self.status.dropped_samples
+                {
+                    self.dirty = true;
+                }
                 self.status.dropped_blocks = s.dropped_blocks;
                 self.status.dropped_samples = s.dropped_samples;
-                self.status.warnings = reader_warnings(&s);
-                if !s.description.is_empty() {
+                self.status.warnings = warnings;
+                if !s.description.is_empty() && s.description != self.status.source {
                     self.status.source = s.description;
+                    self.dirty = true;
                 }
             }
             AcqEvent::Stopped(None) => {
