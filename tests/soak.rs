@@ -187,7 +187,7 @@ fn soak(source: SourceConfig, speed: Option<f64>, wall_s: f64) -> SoakResult {
 /// so the early/late difference of two independent band means has
 /// σ = √2 / √(K_eff · M / 1.5). We allow 6 σ. Early and late spectra are ≥ 10 τ apart, so
 /// independent. The tone power is not checked here: dropped blocks leave gaps inside
-/// segments, which spread a line's power out of its bins (see tests/perf/SOAK.md); the
+/// segments, whose phase jumps can spread a line's power out of its bins (SOAK.md); the
 /// lossless test below checks it.
 #[test]
 fn engine_soak_memory_bounded_and_no_drift_on_a_stationary_source() {
