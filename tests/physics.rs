@@ -822,3 +822,40 @@ fn mode_fit_coverage_at_small_k_eff() {
         mean_area / area
     );
 }
+
+/// Regression: a line that drifted by many linewidths during the average (as in a cooldown)
+/// is wider and flatter than the model. The fit used to drive the background negative, the
+/// model weights then diverged and it reported "did not converge". It must give a fit whose
+/// misfit shows in χ²_red and in the uncertainties, with a non-negative background.
+/// (Check values: the smeared line's area is the sum of the areas put in — exact by
+/// construction, METHODS.md §2 Hz-form area.)
+#[test]
+fn fit_of_a_line_smeared_by_drift_converges_with_honest_misfit() {
+    let mut rng = Rng::new(7);
+    let (fs, n) = (250_000.0, 1 << 17);
+    let (b, area, gamma) = (1e-10, 1e-4, 8.0);
+    let centres: Vec<f64> = (0..30).map(|j| 86_000.0 + 10.0 * j as f64).collect();
+    let s = synthetic_spectrum(fs, n, 20.0, &mut rng, |f| {
+        b + centres
+            .iter()
+            .map(|c| {
+                (area / centres.len() as f64) * (2.0 / std::f64::consts::PI) * c * c * gamma
+                    / ((c * c - f * f).powi(2) + gamma * gamma * f * f)
+            })
+            .sum::<f64>()
+    });
+    let fit = stillpoint::physics::fit::fit_mode(&s, (85_500.0, 87_000.0))
+        .expect("a drifted line is still a line");
+    assert!(fit.background_psd.value >= 0.0);
+    assert!(fit.frequency_hz.value > 86_000.0 && fit.frequency_hz.value < 86_300.0);
+    assert!(
+        fit.reduced_chi2 > 1.5,
+        "misfit must show: χ²_red = {}",
+        fit.reduced_chi2
+    );
+    assert!(
+        (fit.area.value / area - 1.0).abs() < 0.3,
+        "area {} vs {area}",
+        fit.area.value
+    );
+}

@@ -208,7 +208,26 @@ impl Model for ModeModel<'_> {
     }
 
     fn admissible(&self, p: &[f64]) -> bool {
-        p.iter().all(|v| v.is_finite()) && p[1] > 0.0 && p[2] > 0.0 && p[3] > 0.0
+        // The background is a noise density (shot + electronic noise): it cannot be negative
+        // anywhere in the band. Without this, a line that drifted during the average (wider
+        // and flatter than the model) drives B below zero and the model weights diverge.
+        let background_at = |f: f64| {
+            if self.sloped {
+                p[0] + p.get(4).copied().unwrap_or(0.0) * (f - self.f_ref)
+            } else {
+                p[0]
+            }
+        };
+        let (lo, hi) = (
+            self.freqs.first().copied().unwrap_or(self.f_ref),
+            self.freqs.last().copied().unwrap_or(self.f_ref),
+        );
+        p.iter().all(|v| v.is_finite())
+            && p[1] > 0.0
+            && p[2] > 0.0
+            && p[3] > 0.0
+            && background_at(lo) >= 0.0
+            && background_at(hi) >= 0.0
     }
 }
 

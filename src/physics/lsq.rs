@@ -254,7 +254,9 @@ fn lm_fixed_weights(
             return Ok(p);
         }
     }
-    Err(SolveFailure::NotConverged)
+    // Every accepted step lowered χ², so after `max_iter` steps `p` is the best point found;
+    // the outer re-weighting loop decides whether the parameters have settled.
+    Ok(p)
 }
 
 /// Model-weighted least squares iterated to convergence of the weights
@@ -276,6 +278,8 @@ pub(crate) fn fit_model_weighted(
     };
     let mut p = start.to_vec();
     let mut converged = false;
+    // Largest parameter move of the last re-weighting pass, in units of its 1σ.
+    let mut last_move_sigma = f64::INFINITY;
     for _ in 0..40 {
         let s = model_values(model, &p, data.len()).ok_or(SolveFailure::BadStart)?;
         let inv_var: Vec<f64> = s.iter().map(|v| k_eff / (v * v)).collect();
@@ -283,15 +287,27 @@ pub(crate) fn fit_model_weighted(
         // Compare the move with the parameter scales from the current normal matrix.
         let (_, jtj, _) =
             normal_equations(model, &next, data, &inv_var).ok_or(SolveFailure::BadStart)?;
-        let settled = (0..n).all(|k| {
-            let sd = 1.0 / jtj[k * n + k].sqrt();
-            (next[k] - p[k]).abs() <= 1e-6 * sd || next[k] == p[k]
-        });
+        last_move_sigma = (0..n)
+            .map(|k| {
+                let sd = 1.0 / jtj[k * n + k].sqrt();
+                if next[k] == p[k] {
+                    0.0
+                } else {
+                    (next[k] - p[k]).abs() / sd
+                }
+            })
+            .fold(0.0, f64::max);
         p = next;
-        if settled {
+        if last_move_sigma <= 1e-6 {
             converged = true;
             break;
         }
+    }
+    // A poor model (e.g. a line that drifted during the average) can make the weights cycle
+    // without settling to 1e-6σ; a cycle far smaller than the statistical error is harmless,
+    // and the misfit then shows in χ²_red, which scales the reported uncertainties.
+    if !converged && !last_move_sigma.is_nan() && last_move_sigma <= 0.05 {
+        converged = true;
     }
     if !converged {
         return Err(SolveFailure::NotConverged);
