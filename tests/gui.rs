@@ -79,7 +79,11 @@ fn demo_window_end_to_end() {
 
     // Toggle an overlay.
     assert!(h.state().state().overlays.sql);
-    h.get_by_role_and_label(egui::accesskit::Role::CheckBox, "SQL (added noise)")
+    // Once the fit has run, the plot legend has an entry of the same name; the overlay
+    // checkbox in the side panel is laid out first.
+    h.get_all_by_role_and_label(egui::accesskit::Role::CheckBox, "SQL (added noise)")
+        .next()
+        .expect("the SQL overlay checkbox")
         .click();
     h.run_steps(2);
     assert!(!h.state().state().overlays.sql);
