@@ -3,157 +3,31 @@
 //! and hostile values and random strings never make parsing or conversion panic, and every
 //! error is one non-empty line (clap's usage errors: one `error:` line followed only by
 //! clap's usage/tip/"For more information" lines). Nothing is run (no I/O, no window).
-//! Same property as the fuzz target `tests/fuzz/fuzz_targets/cli_args.rs`.
+//! Same property as the fuzz target `tests/fuzz/fuzz_targets/cli_args.rs`, drawn from the
+//! same alphabet (`tests/common/cli_tokens.rs`). Also checked here: that alphabet holds every
+//! subcommand, option name and enumerated value of the grammar, and the fuzz target's fast
+//! parser (`cli_tokens::parse`) gives the same result as `Cli::try_parse_from`.
 
-use clap::Parser;
+#[path = "common/cli_tokens.rs"]
+mod cli_tokens;
+
+use std::collections::BTreeSet;
+
 use clap::error::ErrorKind;
+use clap::{CommandFactory, Parser};
+use cli_tokens::{NAMES, VALUES};
 use proptest::prelude::*;
 use stillpoint::cli::args::{AveragingArg, Cli, Command, DetrendArg, HeterodyneArgs, WelchArgs};
 use stillpoint::cli::config::{
     MAX_SEGMENT, analysis_options, calibration_kind, default_segment, source_config, welch_config,
 };
 
-/// Every subcommand and option name of the grammar (src/cli/args.rs).
-const NAMES: &[&str] = &[
-    "spectrum",
-    "analyze",
-    "synth",
-    "bench",
-    "monitor",
-    "--segment",
-    "--overlap",
-    "--window",
-    "--rate",
-    "--sample-format",
-    "--endian",
-    "--channels",
-    "--channel",
-    "--volts-per-unit",
-    "--follow",
-    "--detrend",
-    "--averages",
-    "--averaging",
-    "--time-constant",
-    "--m-per-v",
-    "--tone-freq",
-    "--tone-rms-m",
-    "--pm-depth",
-    "--freq-pull",
-    "--bath-temperature",
-    "--mode-band",
-    "--mass",
-    "--sloped-background",
-    "--carrier",
-    "--lo-side",
-    "--sideband-imbalance",
-    "--imbalance-tones",
-    "--speed",
-    "--screenshot",
-    "--screenshot-after",
-    "--fresh-settings",
-    "-o",
-    "--output",
-    "--peak-threshold",
-    "--reference-peaks",
-    "--reference",
-    "-q",
-    "--quiet",
-    "--seed",
-    "--duration",
-    "--format",
-    "--set",
-    "--seconds",
-    "--threads",
-    "--json",
-    "--help",
-    "--version",
-    "-h",
-    "-V",
-];
-
-/// Plausible and hostile values.
-const VALUES: &[&str] = &[
-    "0",
-    "-1",
-    "1",
-    "2",
-    "0.5",
-    "0.999999",
-    "1e308",
-    "-1e308",
-    "1e309",
-    "nan",
-    "NaN",
-    "inf",
-    "-inf",
-    "",
-    " ",
-    "5:3",
-    "3:5",
-    "0:1",
-    "-1:2",
-    "a:b",
-    ":",
-    "1e6:",
-    "0.99e6:1.01e6",
-    "1e-300",
-    "4.9e-324",
-    "65536",
-    "1048576",
-    "134217728",
-    "134217729",
-    "4294967295",
-    "4294967296",
-    "18446744073709551615",
-    "18446744073709551616",
-    "99999999999999999999999999999",
-    "1,2,3",
-    "1,,2",
-    "µ",
-    "Ω",
-    "１",
-    "\u{202e}",
-    "日本",
-    "-",
-    "--",
-    "x.wav",
-    "X.WAV",
-    "x.bin",
-    "tcp://h:1",
-    "tcp://h",
-    "tcp://",
-    "i16",
-    "i24",
-    "i32",
-    "f32",
-    "f64",
-    "u8",
-    "little",
-    "big",
-    "rect",
-    "hann",
-    "hamming",
-    "blackman-harris",
-    "flattop",
-    "none",
-    "mean",
-    "linear",
-    "median",
-    "max-hold",
-    "exponential",
-    "above",
-    "below",
-    "cooldown",
-    "temperature_k=4",
-    "=",
-    "out.csv",
-    "out.json",
-];
-
 fn token() -> impl Strategy<Value = String> {
     prop_oneof![
         4 => prop::sample::select(NAMES).prop_map(str::to_string),
         4 => prop::sample::select(VALUES).prop_map(str::to_string),
+        // The fuzz target's `0x01 k` token.
+        1 => any::<u8>().prop_map(|k| cli_tokens::token(usize::from(k)).to_string()),
         // `--name=value` forms.
         1 => (prop::sample::select(NAMES), prop::sample::select(VALUES))
             .prop_map(|(n, v)| format!("{n}={v}")),
@@ -363,4 +237,240 @@ fn known_good_command_lines_convert() {
             _ => {}
         }
     }
+}
+
+/// Subcommand names (with aliases), `--long` and `-s` option names (with aliases) and
+/// enumerated possible values (with aliases) of `command` and of every command under it.
+fn walk_grammar(
+    command: &clap::Command,
+    names: &mut BTreeSet<String>,
+    values: &mut BTreeSet<String>,
+) {
+    for arg in command.get_arguments() {
+        if let Some(long) = arg.get_long() {
+            names.insert(format!("--{long}"));
+        }
+        for alias in arg.get_all_aliases().unwrap_or_default() {
+            names.insert(format!("--{alias}"));
+        }
+        if let Some(short) = arg.get_short() {
+            names.insert(format!("-{short}"));
+        }
+        for alias in arg.get_all_short_aliases().unwrap_or_default() {
+            names.insert(format!("-{alias}"));
+        }
+        for value in arg.get_possible_values() {
+            values.extend(value.get_name_and_aliases().map(str::to_string));
+        }
+    }
+    for sub in command.get_subcommands() {
+        names.insert(sub.get_name().to_string());
+        names.extend(sub.get_all_aliases().map(str::to_string));
+        walk_grammar(sub, names, values);
+    }
+}
+
+/// The shared alphabet cannot fall behind the grammar: NAMES holds every subcommand and option
+/// name of the built command (hidden ones, the generated `help` subcommand, `--help` and
+/// `--version` included); VALUES holds every enumerated value and every synth scenario.
+#[test]
+fn token_alphabet_covers_the_grammar() {
+    let mut command = Cli::command();
+    command.build();
+    let (mut names, mut values) = (BTreeSet::new(), BTreeSet::new());
+    walk_grammar(&command, &mut names, &mut values);
+    values.extend(
+        stillpoint::synth::SCENARIO_HELP
+            .iter()
+            .map(|(name, _)| name.to_string()),
+    );
+    // Guards against a walk that finds nothing (and so checks nothing).
+    for expected in ["synth", "help", "--mode-band", "-o", "--version"] {
+        assert!(
+            names.contains(expected),
+            "walk missed {expected}: {names:?}"
+        );
+    }
+    for expected in ["blackman-harris", "max-hold", "big", "cooldown"] {
+        assert!(
+            values.contains(expected),
+            "walk missed {expected}: {values:?}"
+        );
+    }
+
+    let listed: BTreeSet<String> = NAMES.iter().map(|s| s.to_string()).collect();
+    let missing: Vec<_> = names.difference(&listed).collect();
+    assert!(
+        missing.is_empty(),
+        "missing from cli_tokens::NAMES: {missing:?}"
+    );
+    assert_eq!(listed.len(), NAMES.len(), "duplicate in cli_tokens::NAMES");
+
+    let listed: BTreeSet<&str> = VALUES.iter().copied().collect();
+    let missing: Vec<_> = values
+        .iter()
+        .filter(|v| !listed.contains(v.as_str()))
+        .collect();
+    assert!(
+        missing.is_empty(),
+        "missing from cli_tokens::VALUES: {missing:?}"
+    );
+    assert_eq!(
+        listed.len(),
+        VALUES.len(),
+        "duplicate in cli_tokens::VALUES"
+    );
+}
+
+/// Starts of the equivalence check's argument vectors: each subcommand with its required
+/// arguments (parses on its own), none, and the `help` subcommand (whose own subcommand tree
+/// the fast parser must not expand).
+const STARTS: &[&[&str]] = &[
+    &[],
+    &["monitor", "x.wav"],
+    &["spectrum", "x.bin", "-o", "o.csv"],
+    &["analyze", "x.wav", "-o", "o.json"],
+    &["synth", "cooldown", "-o", "o.wav"],
+    &["bench"],
+    &["help"],
+    &["help", "help"],
+];
+
+/// Hand-picked corners of the equivalence check: help and version in every place, `help`
+/// nested, errors of each kind, `--` and values that look like options.
+const TRICKY: &[&[&str]] = &[
+    &[],
+    &["help"],
+    &["help", "help"],
+    &["help", "help", "synth"],
+    &["help", "synth"],
+    &["help", "synth", "x"],
+    &["help", "bogus"],
+    &["help", "--rate"],
+    &["synth", "help"],
+    &["bench", "help"],
+    &["-h"],
+    &["--help"],
+    &["-V"],
+    &["--version"],
+    &["bench", "-V"],
+    &["bench", "-h"],
+    &["analyze", "--help"],
+    &["bench", "--rate"],
+    &["bench", "--rate", "0"],
+    &["bench", "--window", "hann", "--window", "rect"],
+    &["bench", "--", "--rate"],
+    &["spectrum", "--", "-o", "o.csv"],
+    &["spectrum", "-", "-o", "-"],
+    &["spectrum", "x.bin", "-oo.csv"],
+    &["spectrum", "x.bin", "--output=o.csv", "--rate=-1"],
+    &[
+        "analyze",
+        "x.wav",
+        "-qo",
+        "o.json",
+        "--reference-peaks",
+        "1,2,3",
+    ],
+    &["analyze", "x.wav", "-o", "o.json", "--carrier", "5e6"],
+    &["monitor"],
+    &["monitor", "x.wav", "--speed", "2", "--screenshot", "s.png"],
+    &[
+        "synth", "cooldown", "-o", "o.wav", "--set", "a=1", "--set", "b=2",
+    ],
+    &["--screenshot-after", "nan"],
+    &["--fresh-settings", "bench"],
+    &["bogus"],
+    &["--bogus"],
+];
+
+/// Argument vectors for the equivalence check: half from a start followed by option and value
+/// pairs (so that a fair share parses), half from the free-form tokens above.
+fn argv_for_equivalence() -> impl Strategy<Value = Vec<String>> {
+    let pair = (prop::sample::select(NAMES), prop::sample::select(VALUES))
+        .prop_map(|(n, v)| vec![n.to_string(), v.to_string()]);
+    let from_start = (
+        prop::sample::select(STARTS),
+        prop::collection::vec(pair, 0..4),
+    )
+        .prop_map(|(start, pairs)| {
+            start
+                .iter()
+                .map(|s| s.to_string())
+                .chain(pairs.into_iter().flatten())
+                .collect::<Vec<_>>()
+        });
+    let free = prop::collection::vec(token(), 0..14);
+    prop_oneof![from_start, free].prop_map(|tokens| {
+        let mut argv = vec!["stillpoint".to_string()];
+        argv.extend(tokens);
+        argv
+    })
+}
+
+/// `cli_tokens::parse` and `Cli::try_parse_from` on `argv`: the same parsed `Cli` (by its
+/// Debug form; returns true), or errors of the same kind and text (returns false).
+fn fast_and_slow_agree(argv: &[String]) -> Result<bool, TestCaseError> {
+    match (cli_tokens::parse(argv), Cli::try_parse_from(argv)) {
+        (Ok(fast), Ok(slow)) => {
+            prop_assert_eq!(format!("{fast:?}"), format!("{slow:?}"), "{:?}", argv);
+            Ok(true)
+        }
+        (Err(fast), Err(slow)) => {
+            prop_assert_eq!(fast.kind(), slow.kind(), "{:?}", argv);
+            prop_assert_eq!(fast.to_string(), slow.to_string(), "{:?}", argv);
+            Ok(false)
+        }
+        (fast, slow) => Err(TestCaseError::fail(format!(
+            "{argv:?}\nfast {fast:?}\nslow {slow:?}"
+        ))),
+    }
+}
+
+/// The fuzz target's fast parser (`cli_tokens::parse`: one grammar built once and parsed with
+/// again and again, after errors too) gives what `Cli::try_parse_from` gives: the same parsed
+/// `Cli` (by its Debug form), or an error of the same kind and text. The hand-picked corners
+/// twice over (the second time after every kind of outcome), then 400 generated vectors.
+#[test]
+fn fast_parse_agrees_with_try_parse_from() {
+    use proptest::test_runner::{Config, TestRunner};
+    use std::sync::atomic::{AtomicUsize, Ordering};
+
+    for _ in 0..2 {
+        for argv in TRICKY {
+            let argv: Vec<String> = std::iter::once("stillpoint")
+                .chain(argv.iter().copied())
+                .map(str::to_string)
+                .collect();
+            if let Err(e) = fast_and_slow_agree(&argv) {
+                panic!("{e}");
+            }
+        }
+    }
+
+    // 400 cases: well under 1 s in the dev profile.
+    let mut runner = TestRunner::new(Config {
+        cases: 400,
+        failure_persistence: None,
+        ..Config::default()
+    });
+    let (parsed, failed) = (AtomicUsize::new(0), AtomicUsize::new(0));
+    let result = runner.run(&argv_for_equivalence(), |argv| {
+        let counter = if fast_and_slow_agree(&argv)? {
+            &parsed
+        } else {
+            &failed
+        };
+        counter.fetch_add(1, Ordering::Relaxed);
+        Ok(())
+    });
+    if let Err(e) = result {
+        panic!("{e}");
+    }
+    // Both outcomes were compared often enough to mean something (about 70 parse).
+    let (parsed, failed) = (parsed.into_inner(), failed.into_inner());
+    assert!(
+        parsed >= 30 && failed >= 30,
+        "parsed {parsed}, failed {failed}"
+    );
 }
