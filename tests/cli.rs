@@ -683,6 +683,52 @@ fn averages_limits_the_segments_and_default_segment_fits_a_short_record() {
     assert_eq!(fs::read(&one).unwrap(), fs::read(&short_out).unwrap());
 }
 
+/// `--averages K` with the median, max-hold and exponential averages uses exactly the first
+/// K segment positions, like a record of (K − 1)·D + N samples (the parallel averager
+/// transforms ahead in groups, so the CLI must cut the stream, not count finished segments).
+#[test]
+fn averages_limits_every_averaging_mode_to_the_first_k_segments() {
+    let dir = tempfile::tempdir().unwrap();
+    let wav = noise_wav(dir.path(), 200_000);
+    let short = dir.path().join("short.wav");
+    write_wav_f32(&short, 10_000, 1, &noise_f32(4 * 512 + 1024, 0.5, 7));
+    for averaging in ["median", "max-hold", "exponential"] {
+        let limited = dir.path().join(format!("{averaging}-5.csv"));
+        let exact = dir.path().join(format!("{averaging}-short.csv"));
+        let full = dir.path().join(format!("{averaging}-all.csv"));
+        for (source, path, k) in [
+            (&wav, &limited, Some("5")),
+            (&short, &exact, None),
+            (&wav, &full, None),
+        ] {
+            let mut args = vec![
+                "spectrum",
+                s(source),
+                "--segment",
+                "1024",
+                "--averaging",
+                averaging,
+                "-o",
+                s(path),
+            ];
+            if let Some(k) = k {
+                args.extend(["--averages", k]);
+            }
+            assert_success(&run(&args), averaging);
+        }
+        assert_eq!(
+            fs::read(&limited).unwrap(),
+            fs::read(&exact).unwrap(),
+            "{averaging}"
+        );
+        assert_ne!(
+            fs::read(&limited).unwrap(),
+            fs::read(&full).unwrap(),
+            "{averaging}"
+        );
+    }
+}
+
 #[test]
 fn damaged_input_is_analysed_with_one_warning_each() {
     let dir = tempfile::tempdir().unwrap();
@@ -1013,6 +1059,30 @@ fn bench_reports_throughput_headroom_and_floor() {
     let headroom = v["headroom"].as_f64().unwrap();
     assert!(throughput > 0.0 && ((headroom - throughput / 1e5) / headroom).abs() < 1e-9);
     assert_eq!(v["keeps_up"].as_bool().unwrap(), headroom > 1.0);
+    // The live path (default --live both): a generator process over a pipe and over
+    // loopback TCP, once as fast as it goes and once paced at --rate for 0.5 s. A paced
+    // generator writes exactly rate × seconds samples unless its FIFO overflows, so every
+    // sample is either averaged or counted as lost; 100 kS/s is far below what even a debug
+    // build sustains, so none is lost.
+    let live = v["live"].as_array().expect("bench JSON lacks live[]");
+    let transports: Vec<&str> = live
+        .iter()
+        .map(|r| r["transport"].as_str().unwrap())
+        .collect();
+    assert_eq!(transports, ["pipe", "pipe", "tcp", "tcp"], "{v}");
+    for run in live {
+        assert_eq!(run["dropped_blocks"].as_u64(), Some(0), "{run}");
+        let averaged = run["samples_averaged"].as_u64().unwrap();
+        assert!(run["segments"].as_u64().unwrap() >= 1, "{run}");
+        match run["paced_rate_hz"].as_f64() {
+            None => assert!(averaged > 0 && run["samples_per_s"].as_f64().unwrap() > 0.0),
+            Some(rate) => {
+                assert_eq!(rate, 1e5);
+                assert_eq!(run["samples_lost_at_source"].as_u64(), Some(0), "{run}");
+                assert_eq!(averaged, 50_000, "{run}");
+            }
+        }
+    }
     let text = run(&[
         "bench",
         "--rate",
@@ -1021,9 +1091,12 @@ fn bench_reports_throughput_headroom_and_floor() {
         "1024",
         "--seconds",
         "0.3",
+        "--live",
+        "none",
     ]);
     assert_success(&text, "bench text");
     assert!(stdout(&text).contains("keeps up:"), "{}", stdout(&text));
+    assert!(!stdout(&text).contains("Live path"), "{}", stdout(&text));
 }
 
 /// `synth thermal` → `analyze`: the fitted mode and the tone calibration recover the

@@ -449,6 +449,8 @@ fn parallel_mode_is_bit_identical() {
             w.push(&x[..20_000]);
             w.push(&x[20_000..21_000]);
             w.push(&x[21_000..]);
+            // Workers return their groups asynchronously: flush before reading the estimate.
+            w.flush();
             assert_eq!(w.spectrum().unwrap(), single, "{averaging:?} {threads}");
             assert_eq!(
                 w.skipped_segments(),
@@ -462,6 +464,7 @@ fn parallel_mode_is_bit_identical() {
                 w.push(&x[at..at + len]);
                 at += len;
             }
+            w.flush();
             assert_eq!(
                 w.spectrum().unwrap(),
                 single,

@@ -561,9 +561,45 @@ pub struct BenchArgs {
     /// Worker threads of the averager (default: one per core, as spectrum/analyze use).
     #[arg(long, value_name = "N", value_parser = clap::value_parser!(u64).range(1..=64))]
     pub threads: Option<u64>,
+    /// Also measure the whole live path (raw f32 from a generator process through a pipe,
+    /// as `stillpoint spectrum -` reads it, and/or loopback TCP): as fast as it goes, and
+    /// paced at --rate with a 50 ms FIFO at the source, counting lost samples.
+    #[arg(long, value_enum, default_value = "both", value_name = "WHICH")]
+    pub live: LiveChoice,
+    /// Internal: be the generator process of another `stillpoint bench` (raw little-endian
+    /// f32 to stdout, or to the first client of a loopback TCP listener whose port is
+    /// printed on stdout first) for --seconds.
+    #[arg(long, value_enum, hide = true)]
+    pub emit: Option<LiveTransport>,
+    /// Internal, with --emit: pace at --rate like a digitiser with a 50 ms FIFO, counting
+    /// the samples it loses; without it, as fast as possible.
+    #[arg(long, hide = true, requires = "emit")]
+    pub emit_paced: bool,
     /// Print machine-readable JSON instead of text.
     #[arg(long)]
     pub json: bool,
+}
+
+/// Which live paths `stillpoint bench` measures (`--live`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum LiveChoice {
+    /// the averager alone
+    None,
+    /// a pipe (standard input of `spectrum -`)
+    Pipe,
+    /// loopback TCP
+    Tcp,
+    /// pipe and TCP
+    Both,
+}
+
+/// The byte stream of the bench generator.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum LiveTransport {
+    /// standard output
+    Pipe,
+    /// a loopback TCP listener (its port is printed on standard output first)
+    Tcp,
 }
 
 /// A number in SI or plain notation (`1e6`, `250000`, `2.5e-3`).

@@ -11,7 +11,8 @@ use serde::Serialize;
 
 use crate::dsp::{WelchConfig, bench};
 
-use super::args::BenchArgs;
+use super::args::{BenchArgs, LiveChoice, LiveTransport};
+use super::bench_live::{self, FIFO_SECONDS, LiveRun};
 use super::config;
 
 /// Measurement runs whose median is quoted.
@@ -42,6 +43,9 @@ struct BenchOutput {
     plot_prep_ms: f64,
     /// plot_prep_ms within one 60 fps frame.
     plot_prep_fits_frame: bool,
+    /// The whole live path fed by a generator process (`--live`): for each transport, one
+    /// run as fast as it goes and one paced at `rate_hz`.
+    live: Vec<LiveRun>,
 }
 
 /// Runs `stillpoint bench`.
@@ -49,6 +53,11 @@ struct BenchOutput {
 /// # Errors
 /// Bad options (segment, overlap), stdout closed.
 pub fn run(args: &BenchArgs) -> Result<ExitCode> {
+    if let Some(to) = args.emit {
+        let rate = args.emit_paced.then_some(args.rate);
+        bench_live::run_generator(to, rate, args.seconds)?;
+        return Ok(ExitCode::SUCCESS);
+    }
     let welch_args = super::args::WelchArgs {
         segment: Some(args.segment),
         overlap: args.overlap,
@@ -74,6 +83,21 @@ pub fn run(args: &BenchArgs) -> Result<ExitCode> {
     let floor = median(&mut floor_rates);
     let plot_prep_ms = crate::model::bench_plot_prep(RUNS).as_secs_f64() * 1e3;
     let headroom = throughput / args.rate;
+    let transports: &[LiveTransport] = match args.live {
+        LiveChoice::None => &[],
+        LiveChoice::Pipe => &[LiveTransport::Pipe],
+        LiveChoice::Tcp => &[LiveTransport::Tcp],
+        LiveChoice::Both => &[LiveTransport::Pipe, LiveTransport::Tcp],
+    };
+    let live_s = (args.seconds / 2.0).max(0.5);
+    let mut live = Vec::with_capacity(2 * transports.len());
+    for &transport in transports {
+        for rate in [None, Some(args.rate)] {
+            live.push(bench_live::measure(
+                transport, &welch, threads, rate, live_s,
+            )?);
+        }
+    }
     let output = BenchOutput {
         rate_hz: args.rate,
         segment: welch.segment,
@@ -88,6 +112,7 @@ pub fn run(args: &BenchArgs) -> Result<ExitCode> {
         ratio_to_floor: throughput / floor,
         plot_prep_ms,
         plot_prep_fits_frame: plot_prep_ms <= FRAME_BUDGET_MS,
+        live,
     };
     let stdout = io::stdout();
     let mut out = stdout.lock();
@@ -162,6 +187,37 @@ fn write_text(out: &mut dyn Write, r: &BenchOutput) -> io::Result<()> {
         },
         FRAME_BUDGET_MS
     )?;
+    if !r.live.is_empty() {
+        writeln!(
+            out,
+            "Live path: raw f32 from a generator process → acquisition thread → averager \
+             ({} thread{})",
+            r.threads,
+            if r.threads == 1 { "" } else { "s" }
+        )?;
+    }
+    for run in &r.live {
+        match run.paced_rate_hz {
+            None => writeln!(
+                out,
+                "  {:<4} as fast as it goes   {:.1} MS/s over {:.1} s  → headroom {:.1}×",
+                run.transport,
+                run.samples_per_s / 1e6,
+                run.elapsed_s,
+                run.samples_per_s / r.rate_hz
+            )?,
+            Some(rate) => writeln!(
+                out,
+                "  {:<4} paced at {} MS/s     {} samples lost at the source ({} ms FIFO), {} dropped blocks, {:.1} MS/s averaged",
+                run.transport,
+                trimmed(rate / 1e6),
+                run.samples_lost_at_source,
+                trimmed(FIFO_SECONDS * 1e3),
+                run.dropped_blocks,
+                run.samples_per_s / 1e6
+            )?,
+        }
+    }
     Ok(())
 }
 

@@ -9,6 +9,7 @@
 mod analyze;
 pub mod args;
 mod bench;
+mod bench_live;
 pub mod config;
 mod monitor;
 mod output;

@@ -12,7 +12,7 @@ use crate::acquire::{
     self, AcqEvent, AcqOptions, AcquireError, Acquisition, ReaderStats, SourceConfig, SourceSpec,
     WavReader,
 };
-use crate::dsp::{Spectrum, Welch};
+use crate::dsp::{Averaging, MEDIAN_MEMORY_LIMIT_BYTES, Spectrum, Welch};
 
 use super::InputError;
 use super::args::{SourceArgs, WelchArgs};
@@ -68,13 +68,19 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
     let mut averager = Welch::new(welch_config.clone())?.with_threads(threads);
     let progress = Progress::new(record_samples);
     let description = reader.describe();
-    let options = headless_options(welch_config.segment, welch_config.hop(), threads);
-    let acquisition = Acquisition::spawn(reader, options, None)?;
-    let stats = feed(&acquisition, &mut averager, &progress)
-        .with_context(|| format!("while reading {}", source_label(&source_config.spec)))?;
-    drop(acquisition);
+    let stats = stream_into(reader, &mut averager, &progress, None)
+        .with_context(|| format!("while reading {}", source_label(&source_config.spec)))?
+        .stats;
     progress.finish();
-    let warnings = reader_warnings(&stats, averager.skipped_segments());
+    let mut warnings = reader_warnings(&stats, averager.skipped_segments());
+    if averager.median_is_capped() {
+        warnings.push(format!(
+            "median of the last {} segments only (the stored periodograms reached {} MiB); \
+             give --averages to choose how many",
+            averager.median_rows_limit(),
+            MEDIAN_MEMORY_LIMIT_BYTES >> 20
+        ));
+    }
     let Some(spectrum) = averager.spectrum() else {
         if stats.samples < welch_config.segment as u64 {
             return Err(too_short(stats.samples, welch_config.segment).into());
@@ -101,6 +107,67 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
     })
 }
 
+/// What [`average_stream`] measured.
+#[derive(Debug)]
+pub(crate) struct Streamed {
+    /// Samples read from the source and pushed into the averager.
+    pub samples_averaged: u64,
+    /// Periodograms in the average.
+    pub segments: usize,
+    /// Blocks the acquisition thread dropped (0 on the headless path, which blocks instead).
+    pub dropped_blocks: u64,
+}
+
+/// Averages `reader` with `threads` worker threads through the same acquisition thread and
+/// averager as `spectrum`/`analyze`, until the stream ends or `stop_after` has passed
+/// (for `stillpoint bench`).
+///
+/// # Errors
+/// Invalid settings; the stream fails.
+pub(crate) fn average_stream(
+    reader: Box<dyn acquire::SampleReader>,
+    welch: &crate::dsp::WelchConfig,
+    threads: usize,
+    stop_after: Option<Duration>,
+) -> Result<Streamed> {
+    let mut averager = Welch::new(welch.clone())?.with_threads(threads);
+    let deadline = stop_after.map(|d| Instant::now() + d);
+    let fed = stream_into(reader, &mut averager, &Progress::hidden(), deadline)?;
+    Ok(Streamed {
+        samples_averaged: fed.pushed,
+        segments: averager.segments(),
+        dropped_blocks: fed.dropped_blocks,
+    })
+}
+
+/// What [`feed`] saw.
+struct Fed {
+    /// The reader's last counters.
+    stats: ReaderStats,
+    /// Blocks the acquisition thread dropped.
+    dropped_blocks: u64,
+    /// Samples read from the source (pushed, or cut off by `--averages`).
+    pushed: u64,
+}
+
+/// Runs the acquisition thread on `reader` and feeds `averager` until the stream ends, the
+/// average is complete or `deadline` passes; every segment is averaged on return. Returns
+/// what [`feed`] saw.
+fn stream_into(
+    reader: Box<dyn acquire::SampleReader>,
+    averager: &mut Welch,
+    progress: &Progress,
+    deadline: Option<Instant>,
+) -> Result<Fed> {
+    let config = averager.config();
+    let options = headless_options(config.segment, config.hop(), averager.threads());
+    let acquisition = Acquisition::spawn(reader, options, None)?;
+    let fed = feed(&acquisition, averager, progress, deadline);
+    drop(acquisition);
+    averager.flush();
+    fed
+}
+
 /// Acquisition settings of the headless commands: block on a full channel (no sample is
 /// lost), no pacing, and blocks long enough that each push completes 2 × `threads`
 /// segments (so the averager transforms them in parallel), with a few blocks in flight.
@@ -119,9 +186,20 @@ fn feed(
     acquisition: &Acquisition,
     averager: &mut Welch,
     progress: &Progress,
-) -> Result<ReaderStats> {
+    deadline: Option<Instant>,
+) -> Result<Fed> {
     let limit = averager.config().max_averages;
+    // Median, exponential and max-hold with --averages K: exactly the first K segment
+    // positions (a linear average stops by itself after K accepted segments).
+    let cap_total = match (limit, averager.config().averaging) {
+        (Some(k), averaging) if !matches!(averaging, Averaging::Linear) => {
+            let c = averager.config();
+            Some(((k.max(1) - 1) * c.hop() + c.segment) as u64)
+        }
+        _ => None,
+    };
     let mut stats = ReaderStats::default();
+    let mut dropped_blocks = 0_u64;
     let mut read_total: u64 = 0;
     loop {
         let Ok(event) = acquisition.events().recv() else {
@@ -129,19 +207,38 @@ fn feed(
         };
         match event {
             AcqEvent::Block(block) => {
-                averager.push(&block);
+                let take = cap_total.map_or(block.len(), |c| {
+                    usize::try_from(c.saturating_sub(read_total))
+                        .unwrap_or(usize::MAX)
+                        .min(block.len())
+                });
+                averager.push(block.get(..take).unwrap_or(&block));
                 read_total += block.len() as u64;
                 progress.set(read_total);
-                if averager.is_complete() || limit.is_some_and(|k| averager.segments() >= k) {
+                if averager.is_complete()
+                    || cap_total.is_some_and(|c| read_total >= c)
+                    || deadline.is_some_and(|d| Instant::now() >= d)
+                {
                     // Enough: the counters cover what was read so far.
                     stats.samples = stats.samples.max(read_total);
-                    return Ok(stats);
+                    return Ok(Fed {
+                        stats,
+                        dropped_blocks,
+                        pushed: read_total,
+                    });
                 }
             }
-            AcqEvent::Status(status) => stats = status.reader,
+            AcqEvent::Status(status) => {
+                stats = status.reader;
+                dropped_blocks = status.dropped_blocks;
+            }
             AcqEvent::Stopped(None) => {
                 stats.samples = stats.samples.max(read_total);
-                return Ok(stats);
+                return Ok(Fed {
+                    stats,
+                    dropped_blocks,
+                    pushed: read_total,
+                });
             }
             AcqEvent::Stopped(Some(error)) => return Err(error.into()),
         }
@@ -266,6 +363,15 @@ impl Progress {
             started: Instant::now(),
             visible: std::cell::Cell::new(false),
             allowed: std::io::stderr().is_terminal(),
+        }
+    }
+
+    /// A bar that never shows.
+    pub fn hidden() -> Self {
+        let progress = Self::new(None);
+        Self {
+            allowed: false,
+            ..progress
         }
     }
 

@@ -22,5 +22,5 @@ pub mod welch;
 pub mod window;
 
 pub use error::{DspError, Result};
-pub use welch::{Averaging, Detrend, Spectrum, Welch, WelchConfig};
+pub use welch::{Averaging, Detrend, MEDIAN_MEMORY_LIMIT_BYTES, Spectrum, Welch, WelchConfig};
 pub use window::{WindowConstants, WindowKind};

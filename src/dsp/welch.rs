@@ -9,17 +9,23 @@
 //! sample index, like `scipy.signal.detrend`) is removed *before* windowing, the segment is
 //! multiplied by the periodic window `w_j` and transformed with a real FFT (f64, `realfft`, one
 //! plan and all buffers made in [`Welch::new`]; nothing is allocated per segment except the
-//! stored periodograms of a median average, which grow without bound unless `max_averages`
-//! is set):
+//! stored periodograms of a median average):
 //! `Y_k = Σ_j w_j (x_j − trend_j) e^{−2πi jk/N}`, k = 0 … ⌊N/2⌋. A segment holding any NaN or
 //! ±Inf sample is skipped and counted ([`Welch::skipped_segments`]).
 //!
 //! **Averaging** ([`Averaging`]) combines the powers `|Y_k|²` in f64 — never amplitudes or dB.
 //!
-//! **Threads.** [`Welch::set_threads`] lets long pushes transform batches of segments on
-//! scoped worker threads (spawned per batch of ≥ 2 segments per thread, ~1 ms of work or more
-//! each); the periodograms are added in segment order on the caller's thread, so the result
-//! is bit-identical for any thread count and any block sizes.
+//! **Threads.** [`Welch::set_threads`] starts persistent worker threads: each group of G
+//! consecutive segment positions (G ≈ 2¹⁹/N, 1 … 64, fixed by N alone) is copied to a worker,
+//! and the results are added in stream order on the caller's thread. A linear average sums
+//! each group's periodograms first (from zero, in order) and then adds the group sums in
+//! order — on one thread too — so the result is bit-identical for any thread count and any
+//! block sizes. With workers, [`Welch::push`] returns before its segments are averaged;
+//! [`Welch::flush`] waits for them.
+//!
+//! **Memory.** A median average keeps its periodograms: the last `max_averages` of them, or,
+//! with no limit, as many as fit in [`MEDIAN_MEMORY_LIMIT_BYTES`] (then it becomes the median
+//! of the most recent ones and [`Welch::median_is_capped`] says so). Nothing else grows.
 //!
 //! **Limits.** A segment whose energy `Σ x²` is so large that its power could overflow f64
 //! (samples beyond ~1e140 V) is skipped and counted like a non-finite one, so the PSD is
@@ -34,10 +40,14 @@
 //! **Bins** run from DC to Nyquist in ascending frequency, `f_k = k f_s / N`, ⌊N/2⌋ + 1 of them.
 //! The [`Spectrum`] also carries `Δf = f_s/N`, `ENBW = f_s S₂/S₁²` and `K_eff`.
 
+mod pool;
+
 use std::sync::Arc;
 
 use realfft::num_complex::Complex;
 use realfft::{RealFftPlanner, RealToComplex};
+
+use pool::Pool;
 
 use super::window::{k_eff_from_rho2, overlap_correlations_squared, sums};
 use super::{DspError, Result, WindowKind};
@@ -281,7 +291,9 @@ impl Spectrum {
 pub struct Welch {
     config: WelchConfig,
     engine: Engine,
-    /// Samples from the start of the next segment on (always fewer than N).
+    /// Worker threads (none on one thread).
+    pool: Option<Pool>,
+    /// Samples from the start of the next segment not yet transformed on.
     pending: Vec<f64>,
 }
 
@@ -291,7 +303,7 @@ impl std::fmt::Debug for Welch {
             .field("config", &self.config)
             .field("segments", &self.engine.acc.segments)
             .field("skipped_segments", &self.engine.acc.skipped)
-            .field("threads", &self.engine.threads())
+            .field("threads", &self.threads())
             .field("pending_samples", &self.pending.len())
             .finish_non_exhaustive()
     }
@@ -367,18 +379,40 @@ impl Transformer {
     }
 }
 
+/// Bytes of stored periodograms a median average with no `max_averages` may hold before it
+/// becomes a median of the most recent rows only ([`Welch::median_is_capped`]).
+pub const MEDIAN_MEMORY_LIMIT_BYTES: usize = 256 << 20;
+
+/// Segments per group for a segment length N: about 2¹⁹ samples of FFT input (1 … 64).
+/// A linear average sums the periodograms of each group of consecutive segment positions
+/// first and adds the group sums in order, so the bits do not depend on which thread
+/// transformed a group.
+fn group_len(segment: usize) -> usize {
+    ((1usize << 19) / segment.max(1)).clamp(1, 64)
+}
+
 /// Combines periodograms according to the averaging mode.
 struct Accumulator {
     averaging: Averaging,
     max_averages: Option<usize>,
     /// ρ_l² for l = 1 … while segments overlap.
     rho2: Vec<f64>,
-    /// Linear: Σ|Y_k|²; exponential: running mean of |Y_k|²; max-hold: max |Y_k|².
+    /// Linear: Σ|Y_k|² over the completed groups; exponential: running mean of |Y_k|²;
+    /// max-hold: max |Y_k|².
     acc: Vec<f64>,
-    /// Median: stored |Y_k|² rows (bins each), a ring once `max_averages` rows exist.
+    /// Linear: Σ|Y_k|² of the group in progress (positions `0 .. group_pos`).
+    group: Vec<f64>,
+    /// Segment positions (accepted or skipped) per group, and the position in the current one.
+    group_len: usize,
+    group_pos: usize,
+    /// Median: stored |Y_k|² rows (bins each), a ring once `median_cap` rows exist.
     history: Vec<f64>,
     history_rows: usize,
     history_next: usize,
+    /// Median: most rows kept (`max_averages`, or what fits in the memory limit).
+    median_cap: usize,
+    /// Median: rows were overwritten although no `max_averages` was asked for.
+    median_capped: bool,
     /// Exponential: weights of the most recent segments (newest first) and Σ a_s a_t ρ².
     ema_recent: Vec<f64>,
     ema_variance: f64,
@@ -387,6 +421,30 @@ struct Accumulator {
 }
 
 impl Accumulator {
+    fn new(config: &WelchConfig, rho2: Vec<f64>) -> Self {
+        let bins = config.segment / 2 + 1;
+        let linear = matches!(config.averaging, Averaging::Linear);
+        let memory_rows = (MEDIAN_MEMORY_LIMIT_BYTES / (bins * 8).max(1)).max(1);
+        Self {
+            averaging: config.averaging,
+            max_averages: config.max_averages,
+            ema_recent: vec![0.0; rho2.len()],
+            rho2,
+            acc: vec![0.0; bins],
+            group: if linear { vec![0.0; bins] } else { Vec::new() },
+            group_len: group_len(config.segment),
+            group_pos: 0,
+            history: Vec::new(),
+            history_rows: 0,
+            history_next: 0,
+            median_cap: config.max_averages.unwrap_or(memory_rows).max(1),
+            median_capped: false,
+            ema_variance: 0.0,
+            segments: 0,
+            skipped: 0,
+        }
+    }
+
     fn bins(&self) -> usize {
         self.acc.len()
     }
@@ -406,21 +464,56 @@ impl Accumulator {
 
     fn restart(&mut self) {
         self.acc.iter_mut().for_each(|a| *a = 0.0);
+        self.group.iter_mut().for_each(|a| *a = 0.0);
+        self.group_pos = 0;
         self.history.clear();
         self.history_rows = 0;
         self.history_next = 0;
+        self.median_capped = false;
         self.ema_recent.iter_mut().for_each(|a| *a = 0.0);
         self.ema_variance = 0.0;
         self.segments = 0;
         self.skipped = 0;
     }
 
+    /// One segment position done: closes the group when it is full.
+    fn advance_position(&mut self) {
+        self.group_pos += 1;
+        if self.group_pos >= self.group_len {
+            self.group_pos = 0;
+            if matches!(self.averaging, Averaging::Linear) {
+                for (a, g) in self.acc.iter_mut().zip(self.group.iter_mut()) {
+                    *a += *g;
+                    *g = 0.0;
+                }
+            }
+        }
+    }
+
+    /// A segment that was not accepted (NaN/Inf or too large).
+    fn skip(&mut self) {
+        self.skipped += 1;
+        self.advance_position();
+    }
+
+    /// Adds a whole group summed elsewhere (`sum` = Σ|Y_k|² of its accepted segments, in
+    /// position order, starting from zero): the same bits as adding its segments one by one.
+    /// Linear averaging at a group boundary only.
+    fn add_group(&mut self, sum: &[f64], accepted: usize, skipped: usize) {
+        debug_assert!(self.group_pos == 0 && matches!(self.averaging, Averaging::Linear));
+        for (a, s) in self.acc.iter_mut().zip(sum) {
+            *a += *s;
+        }
+        self.segments += accepted;
+        self.skipped += skipped;
+    }
+
     /// Adds one periodogram |Y_k|², k = 0 … ⌊N/2⌋.
     fn add(&mut self, powers: impl Iterator<Item = f64>) {
         match self.averaging {
             Averaging::Linear => {
-                for (a, p) in self.acc.iter_mut().zip(powers) {
-                    *a += p;
+                for (g, p) in self.group.iter_mut().zip(powers) {
+                    *g += p;
                 }
             }
             Averaging::Exponential {
@@ -457,17 +550,18 @@ impl Accumulator {
             }
             Averaging::Median => {
                 let bins = self.bins();
-                let row = match self.max_averages {
-                    Some(k) if self.history_rows >= k => {
-                        let r = self.history_next;
-                        self.history_next = (r + 1) % k.max(1);
-                        r
+                let cap = self.median_cap;
+                let row = if self.history_rows >= cap {
+                    let r = self.history_next;
+                    self.history_next = (r + 1) % cap;
+                    if self.max_averages.is_none() {
+                        self.median_capped = true;
                     }
-                    _ => {
-                        self.history.resize((self.history_rows + 1) * bins, 0.0);
-                        self.history_rows += 1;
-                        self.history_rows - 1
-                    }
+                    r
+                } else {
+                    self.history.resize((self.history_rows + 1) * bins, 0.0);
+                    self.history_rows += 1;
+                    self.history_rows - 1
                 };
                 if let Some(dst) = self.history.get_mut(row * bins..(row + 1) * bins) {
                     for (d, p) in dst.iter_mut().zip(powers) {
@@ -477,6 +571,7 @@ impl Accumulator {
             }
         }
         self.segments += 1;
+        self.advance_position();
     }
 
     /// Number of periodograms the current estimate combines.
@@ -499,8 +594,8 @@ impl Accumulator {
         match self.averaging {
             Averaging::Linear => {
                 let k = self.segments.max(1) as f64;
-                for (o, a) in out.iter_mut().zip(&self.acc) {
-                    *o = a / k;
+                for ((o, a), g) in out.iter_mut().zip(&self.acc).zip(&self.group) {
+                    *o = (a + g) / k;
                 }
             }
             Averaging::Exponential { .. } | Averaging::MaxHold => {
@@ -522,20 +617,13 @@ impl Accumulator {
     }
 }
 
-/// The per-segment machinery: one transformer for the caller's thread, optional workers.
+/// The per-segment machinery of the caller's thread.
 struct Engine {
     n: usize,
     s1: f64,
     s2: f64,
     main: Transformer,
     acc: Accumulator,
-    /// Parallel mode: one transformer per worker thread, and the batch of periodograms they
-    /// fill (`rows_per_worker` rows each, `bins` values per row) before the caller's thread
-    /// adds them in segment order.
-    workers: Vec<Transformer>,
-    rows_per_worker: usize,
-    batch: Vec<f64>,
-    batch_ok: Vec<bool>,
 }
 
 impl Engine {
@@ -546,30 +634,12 @@ impl Engine {
         let rho2 = overlap_correlations_squared(&window, config.hop());
         let mut planner = RealFftPlanner::<f64>::new();
         let fft = planner.plan_fft_forward(n);
-        let bins = n / 2 + 1;
-        let ema_recent = vec![0.0; rho2.len()];
         Self {
             n,
             s1,
             s2,
             main: Transformer::new(config.detrend, window.into(), fft),
-            acc: Accumulator {
-                averaging: config.averaging,
-                max_averages: config.max_averages,
-                rho2,
-                acc: vec![0.0; bins],
-                history: Vec::new(),
-                history_rows: 0,
-                history_next: 0,
-                ema_recent,
-                ema_variance: 0.0,
-                segments: 0,
-                skipped: 0,
-            },
-            workers: Vec::new(),
-            rows_per_worker: 0,
-            batch: Vec::new(),
-            batch_ok: Vec::new(),
+            acc: Accumulator::new(config, rho2),
         }
     }
 
@@ -579,139 +649,8 @@ impl Engine {
             self.acc.add(self.main.powers());
             true
         } else {
-            self.acc.skipped += 1;
+            self.acc.skip();
             false
-        }
-    }
-
-    fn set_threads(&mut self, threads: usize) {
-        let threads = threads.clamp(1, 64);
-        if threads == 1 {
-            self.workers = Vec::new();
-            self.batch = Vec::new();
-            self.batch_ok = Vec::new();
-            self.rows_per_worker = 0;
-            return;
-        }
-        let bins = self.acc.bins();
-        // About 2^18 samples of FFT work per worker and batch (≥ 1 ms), 2 … 64 rows.
-        self.rows_per_worker = ((1usize << 18) / self.n.max(1)).clamp(2, 64);
-        self.workers = (0..threads).map(|_| self.main.fork()).collect();
-        self.batch = vec![0.0; threads * self.rows_per_worker * bins];
-        self.batch_ok = vec![false; threads * self.rows_per_worker];
-    }
-
-    fn threads(&self) -> usize {
-        self.workers.len().max(1)
-    }
-
-    /// Processes up to one batch of the whole segments that start at `0, hop, 2 hop, …` in
-    /// the stream `pending ++ block` on the worker threads, then adds them in order. Returns
-    /// (segments consumed, segments accepted); (0, 0) if parallel mode is off or there are
-    /// too few segments to be worth it.
-    fn process_batch(&mut self, pending: &[f64], block: &[f64], hop: usize) -> (usize, usize) {
-        let threads = self.workers.len();
-        let n = self.n;
-        let total = pending.len() + block.len();
-        if threads < 2 || total < n || hop == 0 {
-            return (0, 0);
-        }
-        let available = (total - n) / hop + 1;
-        let count = available
-            .min(threads * self.rows_per_worker)
-            .min(self.acc.room());
-        if count < 2 * threads {
-            return (0, 0);
-        }
-        let bins = self.acc.bins();
-        let per = count.div_ceil(threads);
-        let mut failed = Vec::new();
-        std::thread::scope(|scope| {
-            let chunks = self
-                .workers
-                .iter_mut()
-                .zip(self.batch.chunks_mut(per * bins))
-                .zip(self.batch_ok.chunks_mut(per))
-                .enumerate();
-            let mut own = None;
-            for (t, ((worker, rows), oks)) in chunks {
-                let first = t * per;
-                if first >= count {
-                    break;
-                }
-                let len = per.min(count - first);
-                if t == 0 {
-                    // The caller's thread does the first share itself (warm buffers, one
-                    // spawn fewer).
-                    own = Some((worker, rows, oks, first, len));
-                    continue;
-                }
-                let spawned = std::thread::Builder::new()
-                    .name(format!("welch-worker-{t}"))
-                    .spawn_scoped(scope, move || {
-                        run_chunk(worker, (pending, block), first, len, hop, rows, oks);
-                    });
-                if spawned.is_err() {
-                    failed.push((t, first, len));
-                }
-            }
-            if let Some((worker, rows, oks, first, len)) = own {
-                run_chunk(worker, (pending, block), first, len, hop, rows, oks);
-            }
-        });
-        // A worker that could not be started: do its share here.
-        for (t, first, len) in failed {
-            let rows = self.batch.chunks_mut(per * bins).nth(t);
-            let oks = self.batch_ok.chunks_mut(per).nth(t);
-            if let (Some(rows), Some(oks)) = (rows, oks) {
-                run_chunk(&mut self.main, (pending, block), first, len, hop, rows, oks);
-            }
-        }
-        let mut accepted = 0;
-        for (row, ok) in self.batch.chunks(bins).zip(&self.batch_ok).take(count) {
-            if *ok {
-                self.acc.add(row.iter().copied());
-                accepted += 1;
-            } else {
-                self.acc.skipped += 1;
-            }
-        }
-        (count, accepted)
-    }
-}
-
-/// Worker job: segments `first .. first + len` of the stream `pending ++ block` into
-/// `rows` / `oks`.
-fn run_chunk(
-    worker: &mut Transformer,
-    (pending, block): (&[f64], &[f64]),
-    first: usize,
-    len: usize,
-    hop: usize,
-    rows: &mut [f64],
-    oks: &mut [bool],
-) {
-    let n = worker.fft_in.len();
-    let bins = worker.fft_out.len();
-    for ((i, row), ok) in rows
-        .chunks_mut(bins)
-        .enumerate()
-        .zip(oks.iter_mut())
-        .take(len)
-    {
-        let start = (first + i) * hop;
-        let (head, tail) = if start < pending.len() {
-            let head = pending.get(start..).unwrap_or(&[]);
-            (head, block.get(..n - head.len()).unwrap_or(&[]))
-        } else {
-            let at = start - pending.len();
-            (block.get(at..at + n).unwrap_or(&[]), &[][..])
-        };
-        *ok = worker.transform(head, tail);
-        if *ok {
-            for (r, p) in row.iter_mut().zip(worker.powers()) {
-                *r = p;
-            }
         }
     }
 }
@@ -911,6 +850,7 @@ impl Welch {
         Ok(Self {
             config,
             engine,
+            pool: None,
             pending,
         })
     }
@@ -930,17 +870,31 @@ impl Welch {
         self.engine.acc.bins()
     }
 
-    /// Samples waiting for the next segment to fill (fewer than N).
+    /// Samples waiting for a segment to be transformed: fewer than N on one thread; with
+    /// worker threads up to one group of segments (see [`Welch::set_threads`]).
     pub fn pending_samples(&self) -> usize {
         self.pending.len()
     }
 
     /// Feeds samples (volts); completes and averages every segment they finish.
     /// Segments containing a non-finite sample are skipped and counted.
-    /// Returns the number of segments accepted by this call. Once a linear average is
-    /// complete ([`Welch::is_complete`]) further samples are ignored (and the partial segment
-    /// dropped) until [`Welch::restart`].
+    /// Returns the number of segments added to the estimate by this call. Once a linear
+    /// average is complete ([`Welch::is_complete`]) further samples are ignored (and the
+    /// partial segment dropped) until [`Welch::restart`].
+    ///
+    /// With worker threads ([`Welch::set_threads`]) the segments are transformed in the
+    /// background: the estimate then lags the pushed samples by up to a few groups of
+    /// segments until [`Welch::flush`].
     pub fn push(&mut self, samples: &[f64]) -> usize {
+        if self.pool.is_some() {
+            self.push_parallel(samples)
+        } else {
+            self.push_sequential(samples)
+        }
+    }
+
+    /// [`Welch::push`] on the caller's thread.
+    fn push_sequential(&mut self, samples: &[f64]) -> usize {
         let n = self.engine.n;
         let hop = self.config.hop();
         let mut accepted = 0;
@@ -951,19 +905,6 @@ impl Welch {
                 // first segment after a restart starts with fresh data.
                 self.pending.clear();
                 return accepted;
-            }
-            // Parallel mode: batches of segments of `pending ++ rest` go to the workers.
-            let (consumed, ok) = self.engine.process_batch(&self.pending, rest, hop);
-            if consumed > 0 {
-                accepted += ok;
-                let advance = consumed * hop;
-                if advance < self.pending.len() {
-                    self.pending.drain(..advance);
-                } else {
-                    rest = rest.get(advance - self.pending.len()..).unwrap_or(&[]);
-                    self.pending.clear();
-                }
-                continue;
             }
             if self.pending.is_empty() {
                 // Whole segments straight from the caller's block: no copy.
@@ -980,29 +921,133 @@ impl Welch {
                 self.pending.extend_from_slice(rest);
                 return accepted;
             }
-            let need = n - self.pending.len();
-            let Some(tail) = rest.get(..need) else {
-                self.pending.extend_from_slice(rest);
-                return accepted;
-            };
-            if self.engine.process(&self.pending, tail) {
-                accepted += 1;
-            }
-            if hop < self.pending.len() {
-                self.pending.drain(..hop);
-            } else {
-                rest = rest.get(hop - self.pending.len()..).unwrap_or(&[]);
-                self.pending.clear();
+            match self.step(&mut rest) {
+                Some(ok) => accepted += usize::from(ok),
+                None => return accepted,
             }
         }
     }
 
-    /// Uses `threads` worker threads (1 = none, the default; at most 64) for long blocks:
-    /// when one [`Welch::push`] completes at least 2 × `threads` segments, batches of them
-    /// are transformed in parallel and added in segment order on the caller's thread, so the
-    /// result is bit-identical to the single-threaded one. Worker buffers are allocated here.
+    /// Transforms the segment at the start of `pending ++ rest` on this thread and moves on
+    /// by one hop. `None` (with `rest` moved into `pending`) if fewer than N samples are there.
+    fn step(&mut self, rest: &mut &[f64]) -> Option<bool> {
+        let n = self.engine.n;
+        let have = self.pending.len().min(n);
+        let head = self.pending.get(..have).unwrap_or(&[]);
+        let Some(tail) = rest.get(..n - have) else {
+            self.pending.extend_from_slice(rest);
+            *rest = &[];
+            return None;
+        };
+        let ok = self.engine.process(head, tail);
+        self.advance(rest, self.config.hop());
+        Some(ok)
+    }
+
+    /// Moves the start of `pending ++ rest` on by `by` samples.
+    fn advance(&mut self, rest: &mut &[f64], by: usize) {
+        if by < self.pending.len() {
+            self.pending.drain(..by);
+        } else {
+            *rest = rest.get(by - self.pending.len()..).unwrap_or(&[]);
+            self.pending.clear();
+        }
+    }
+
+    /// [`Welch::push`] with worker threads: whole groups go to the workers; a group already
+    /// begun on this thread (after [`Welch::flush`]) or the last segments before a linear
+    /// average's limit are done here, after the jobs in flight.
+    fn push_parallel(&mut self, samples: &[f64]) -> usize {
+        let hop = self.config.hop();
+        let mut added = 0;
+        let mut rest = samples;
+        loop {
+            let Some(pool) = self.pool.as_mut() else {
+                return added + self.push_sequential(rest);
+            };
+            added += pool.collect(&mut self.engine.acc);
+            if !pool.is_alive() {
+                self.pool = None;
+                continue;
+            }
+            if self.engine.acc.is_complete() {
+                self.pending.clear();
+                return added;
+            }
+            let group = pool.group();
+            let acc = &self.engine.acc;
+            let room = acc.room().saturating_sub(pool.positions_in_flight());
+            if acc.group_pos != 0 || room < group {
+                added += pool.drain(&mut self.engine.acc);
+                if self.engine.acc.is_complete() {
+                    continue;
+                }
+                match self.step(&mut rest) {
+                    Some(ok) => added += usize::from(ok),
+                    None => return added,
+                }
+                continue;
+            }
+            let span = pool.span();
+            if self.pending.len() + rest.len() < span {
+                self.pending.extend_from_slice(rest);
+                return added;
+            }
+            let have = self.pending.len().min(span);
+            let head = self.pending.get(..have).unwrap_or(&[]);
+            let tail = rest.get(..span - have).unwrap_or(&[]);
+            added += pool.dispatch(head, tail, &mut self.engine.acc, &mut self.engine.main);
+            self.advance(&mut rest, group * hop);
+        }
+    }
+
+    /// Waits for the worker threads and transforms every complete segment still waiting, so
+    /// that the estimate covers all samples pushed so far (nothing to do on one thread).
+    /// Returns the number of segments this added.
+    pub fn flush(&mut self) -> usize {
+        let mut added = 0;
+        if let Some(pool) = self.pool.as_mut() {
+            added += pool.drain(&mut self.engine.acc);
+            if !pool.is_alive() {
+                self.pool = None;
+            }
+        }
+        let mut rest: &[f64] = &[];
+        while self.pending.len() >= self.engine.n {
+            if self.engine.acc.is_complete() {
+                self.pending.clear();
+                break;
+            }
+            match self.step(&mut rest) {
+                Some(ok) => added += usize::from(ok),
+                None => break,
+            }
+        }
+        added
+    }
+
+    /// Uses `threads` worker threads (1 = none, the default; at most 64). Groups of
+    /// consecutive segments (about 2¹⁹ samples of FFT input each) are copied to persistent
+    /// workers and their periodograms added in stream order on the caller's thread, so the
+    /// result is bit-identical to the single-threaded one for any thread count and block
+    /// sizes. [`Welch::push`] then returns before its segments are averaged; call
+    /// [`Welch::flush`] before reading a final estimate. Falls back to one thread if no
+    /// worker can be started.
     pub fn set_threads(&mut self, threads: usize) {
-        self.engine.set_threads(threads);
+        self.flush();
+        self.pool = None;
+        let threads = threads.clamp(1, 64);
+        if threads < 2 {
+            return;
+        }
+        let summed = matches!(self.config.averaging, Averaging::Linear);
+        self.pool = Pool::start(
+            &self.engine.main,
+            threads,
+            self.config.hop(),
+            self.engine.acc.group_len,
+            summed,
+        );
     }
 
     /// Builder form of [`Welch::set_threads`].
@@ -1012,17 +1057,21 @@ impl Welch {
         self
     }
 
-    /// Worker threads used for long blocks (1 = single-threaded).
+    /// Worker threads used (1 = the caller's thread only).
     pub fn threads(&self) -> usize {
-        self.engine.threads()
+        self.pool.as_ref().map_or(1, Pool::threads)
     }
 
-    /// Drops the samples waiting for the next segment: the next push starts a new segment.
+    /// Drops the samples of the segment in progress: the next push starts a new segment.
+    /// Complete segments still waiting for the worker threads are averaged first.
     pub fn discard_pending(&mut self) {
+        if self.pending.len() >= self.engine.n {
+            self.flush();
+        }
         self.pending.clear();
     }
 
-    /// Segments accepted since the last restart.
+    /// Segments in the estimate since the last restart.
     pub fn segments(&self) -> usize {
         self.engine.acc.segments
     }
@@ -1036,6 +1085,18 @@ impl Welch {
     /// True when a linear average has reached `max_averages` and ignores further data.
     pub fn is_complete(&self) -> bool {
         self.engine.acc.is_complete()
+    }
+
+    /// True when a median average with no `max_averages` reached the memory limit
+    /// ([`MEDIAN_MEMORY_LIMIT_BYTES`] of stored periodograms) and became the median of the
+    /// most recent [`Welch::median_rows_limit`] segments.
+    pub fn median_is_capped(&self) -> bool {
+        self.engine.acc.median_capped
+    }
+
+    /// Most periodograms a median average keeps.
+    pub fn median_rows_limit(&self) -> usize {
+        self.engine.acc.median_cap
     }
 
     /// The current estimate, or `None` before the first segment.
@@ -1097,8 +1158,15 @@ impl Welch {
         true
     }
 
-    /// Forgets all averaged data (keeps the settings and the sample buffer position).
+    /// Forgets all averaged data (keeps the settings and the sample buffer position);
+    /// segments still with the worker threads are thrown away.
     pub fn restart(&mut self) {
+        if let Some(pool) = self.pool.as_mut() {
+            pool.discard();
+            if !pool.is_alive() {
+                self.pool = None;
+            }
+        }
         self.engine.acc.restart();
     }
 }
@@ -1246,5 +1314,36 @@ mod tests {
         assert_eq!(median(&mut v), 2.5);
         let mut v = [5.0, 1.0, 3.0];
         assert_eq!(median(&mut v), 3.0);
+    }
+
+    #[test]
+    fn median_without_limit_keeps_the_most_recent_rows_once_capped() {
+        // The memory cap (MEDIAN_MEMORY_LIMIT_BYTES) is far too large to reach in a unit
+        // test; shrink it to 3 rows: the estimate must then be exactly the median of the
+        // last 3 segments, as with --averages 3, and say that it was capped.
+        let mut c = WelchConfig::new(1.0, 16);
+        c.averaging = Averaging::Median;
+        let x = noise(16 * 8, 5);
+        let mut capped = Welch::new(c.clone()).unwrap();
+        assert_eq!(
+            capped.median_rows_limit(),
+            MEDIAN_MEMORY_LIMIT_BYTES / (9 * 8)
+        );
+        capped.engine.acc.median_cap = 3;
+        capped.push(&x);
+        assert!(capped.median_is_capped());
+        c.max_averages = Some(3);
+        let mut limited = Welch::new(c).unwrap();
+        limited.push(&x);
+        assert!(!limited.median_is_capped());
+        assert_eq!(capped.segments(), 15);
+        let (a, b) = (capped.spectrum().unwrap(), limited.spectrum().unwrap());
+        assert_eq!(a.psd_v2_per_hz, b.psd_v2_per_hz);
+        // …which differs from the median of all 15 segments.
+        let mut c = WelchConfig::new(1.0, 16);
+        c.averaging = Averaging::Median;
+        let mut all = Welch::new(c).unwrap();
+        all.push(&x);
+        assert_ne!(all.spectrum().unwrap().psd_v2_per_hz, a.psd_v2_per_hz);
     }
 }

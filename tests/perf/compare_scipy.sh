@@ -35,17 +35,28 @@ for i in $(seq "$RUNS"); do
     echo "run $i: stillpoint ${ours_t[-1]} s ${ours_m[-1]} KiB; scipy ${theirs_t[-1]} s ${theirs_m[-1]} KiB"
 done
 
+# The FFT-only floor on the same segments: realfft alone, one thread (`stillpoint bench`,
+# median of its runs), as the time the record's segments need at that rate.
+floor=$("$BIN" bench --segment "$SEGMENT" --overlap 0.5 --rate 1e6 --live none --json \
+    | python3 -c 'import json,sys; print(json.load(sys.stdin)["fft_floor_samples_per_s"])')
+
 ot=$($TOOL median "${ours_t[@]}"); om=$($TOOL median "${ours_m[@]}")
 st=$($TOOL median "${theirs_t[@]}"); sm=$($TOOL median "${theirs_m[@]}")
 $TOOL compare "$WORK/ours.csv" "$WORK/scipy.csv" 1e-9
-python3 - "$ot" "$om" "$st" "$sm" "$SAMPLES" "$SEGMENT" "$RUNS" <<'PY'
+python3 - "$ot" "$om" "$st" "$sm" "$SAMPLES" "$SEGMENT" "$RUNS" "$floor" <<'PY'
 import sys
 ot, om, st, sm = (float(v) for v in sys.argv[1:5])
 n, seg, runs = sys.argv[5:8]
+floor = float(sys.argv[8])
+hop = int(seg) // 2
+segments = (int(n) - int(seg)) // hop + 1
+floor_s = segments * hop / floor
 print(f"\n{n} samples, segment {seg}, Hann, 50 %: medians of {runs} runs (whole process)")
 print(f"| program | wall time (s) | peak RSS (MiB) |")
 print(f"|---|---|---|")
 print(f"| stillpoint spectrum | {ot:.2f} | {om/1024:.0f} |")
 print(f"| scipy wavfile.read + signal.welch | {st:.2f} | {sm/1024:.0f} |")
-print(f"\nstillpoint is {st/ot:.1f}x faster and uses {sm/om:.1f}x less memory")
+print(f"| FFT-only floor ({segments} real FFTs of {seg}, 1 thread) | {floor_s:.2f} | |")
+print(f"\nstillpoint is {st/ot:.1f}x faster and uses {sm/om:.1f}x less memory;")
+print(f"whole process at {ot/floor_s:.2f}x the FFT-only floor")
 PY
