@@ -73,6 +73,8 @@ struct Pipeline {
     status: Option<AcqStatus>,
     stopped: Option<Option<String>>,
     statuses: usize,
+    /// Gap notices received (each discards the segment in progress).
+    gaps: u64,
 }
 
 impl Pipeline {
@@ -86,6 +88,7 @@ impl Pipeline {
             status: None,
             stopped: None,
             statuses: 0,
+            gaps: 0,
         }
     }
 
@@ -103,6 +106,11 @@ impl Pipeline {
                 Ok(AcqEvent::Block(b)) => {
                     self.received += b.len() as u64;
                     self.welch.push(&b);
+                }
+                Ok(AcqEvent::Gap { .. }) => {
+                    // As the engine does: no segment spans the gap.
+                    self.gaps += 1;
+                    self.welch.discard_pending();
                 }
                 Ok(AcqEvent::Status(s)) => {
                     self.statuses += 1;
@@ -182,8 +190,16 @@ fn tcp_peer_disconnects_and_reconnects_while_the_average_runs() {
     );
     assert_eq!(p.reconnects(), 2);
     assert_eq!(p.status.as_ref().unwrap().reader.partial_frame_bytes, 3);
-    // The averager took the stream as one (the reader joins the connections).
-    assert_eq!(p.welch.segments(), Pipeline::expected_segments(total));
+    // Each reconnection is announced as a gap before the new connection's first block, so
+    // the averager starts a fresh segment there: segments are those of each connection.
+    assert_eq!(p.gaps, 2);
+    assert_eq!(
+        p.welch.segments(),
+        parts
+            .iter()
+            .map(|part| Pipeline::expected_segments(part.len() as u64))
+            .sum::<usize>()
+    );
     assert!(
         p.welch
             .spectrum()
@@ -248,6 +264,8 @@ fn engine_status_shows_tcp_reconnects() {
     assert!(status.ended.is_none() && !status.failed, "{status:?}");
     assert!(status.averages > 0);
     assert_eq!(status.dropped_blocks, 0);
+    // The reconnection is a gap: the engine started a new segment there and says so.
+    assert_eq!(status.gaps, 1, "{status:?}");
 }
 
 /// A status change that arrives after the last completed segment — here the reconnect of a
@@ -350,7 +368,15 @@ fn followed_file_truncated_then_rotated_keeps_the_pipeline_running() {
     );
     assert_eq!(p.reconnects(), 2);
     assert!(p.stopped.is_none());
-    assert_eq!(p.welch.segments(), Pipeline::expected_segments(52_000));
+    // Both reopenings are gaps: no segment spans a seam between files.
+    assert_eq!(p.gaps, 2);
+    assert_eq!(
+        p.welch.segments(),
+        [30_000, 10_000, 12_000]
+            .map(Pipeline::expected_segments)
+            .iter()
+            .sum::<usize>()
+    );
     let p = p.shutdown();
     assert_eq!(p.stopped, Some(None));
     // The last status before Stopped has the final counters.

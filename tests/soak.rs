@@ -360,6 +360,8 @@ fn drop_and_count_run(
                 welch.push(&b);
                 per_block();
             }
+            // As the engine does: no segment spans dropped samples.
+            Ok(AcqEvent::Gap { .. }) => welch.discard_pending(),
             Ok(AcqEvent::Status(s)) => status = Some(s),
             Ok(AcqEvent::Stopped(e)) => panic!("demo stopped: {e:?}"),
             Err(e) => panic!("no event for 20 s: {e}"),
@@ -375,6 +377,7 @@ fn drop_and_drain(acq: Acquisition, received: &mut u64, status: &mut Option<AcqS
     loop {
         match acq.events().recv_timeout(Duration::from_secs(20)) {
             Ok(AcqEvent::Block(b)) => *received += b.len() as u64,
+            Ok(AcqEvent::Gap { .. }) => {}
             Ok(AcqEvent::Status(s)) => *status = Some(s),
             Ok(AcqEvent::Stopped(None)) => break,
             Ok(AcqEvent::Stopped(Some(e))) => panic!("stopped with {e}"),
@@ -458,6 +461,7 @@ fn lossless_run(stream_s: f64) -> (Vec<(f64, f64)>, f64, f64) {
                     in_reading = 0;
                 }
             }
+            Ok(AcqEvent::Gap { samples }) => panic!("a gap of {samples} samples, lossless"),
             Ok(AcqEvent::Status(s)) => assert_eq!(s.dropped_blocks, 0),
             Ok(AcqEvent::Stopped(e)) => panic!("demo stopped: {e:?}"),
             Err(e) => panic!("no event for 20 s: {e}"),

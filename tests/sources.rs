@@ -919,6 +919,7 @@ fn drain(acq: &Acquisition) -> (Vec<f64>, Option<AcqStatus>, Option<AcquireError
     loop {
         match acq.events().recv_timeout(Duration::from_secs(10)).unwrap() {
             AcqEvent::Block(b) => samples.extend(b),
+            AcqEvent::Gap { samples } => panic!("a gap of {samples} samples in block mode"),
             AcqEvent::Status(s) => status = Some(s),
             AcqEvent::Stopped(e) => return (samples, status, e),
         }

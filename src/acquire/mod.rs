@@ -370,6 +370,14 @@ pub(crate) fn format_rate(rate_hz: f64) -> String {
 pub enum AcqEvent {
     /// A block of samples in volts, in stream order.
     Block(Vec<f64>),
+    /// Samples are missing between the previous block and the next one: blocks dropped
+    /// because the consumer was slow (`samples` of them), or a reconnection / reopened file
+    /// (the count is then unknown and not included). Sent before the next block, so a
+    /// consumer can start a new segment instead of averaging one across the gap.
+    Gap {
+        /// Samples known to be missing (dropped blocks); 0 if only a reconnection.
+        samples: u64,
+    },
     /// Periodic status: counters and rates.
     Status(AcqStatus),
     /// The stream ended: `None` when it ended normally, `Some(error)` otherwise.

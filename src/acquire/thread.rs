@@ -156,6 +156,8 @@ impl Acquisition {
             pacer: Pacer::new(),
             options,
             last_status: Instant::now(),
+            gap: None,
+            reconnects: 0,
         };
         let handle = thread::Builder::new()
             .name("stillpoint-acquire".into())
@@ -278,6 +280,11 @@ struct Worker {
     speed: Option<f64>,
     pacer: Pacer,
     last_status: Instant,
+    /// A gap not yet announced to the consumer: samples dropped since the last delivered
+    /// block (plus nothing for a reconnection of the reader).
+    gap: Option<u64>,
+    /// The reader's reconnection counter when last looked at.
+    reconnects: u64,
 }
 
 impl Worker {
@@ -368,11 +375,64 @@ impl Worker {
     fn count_dropped(&mut self, samples: usize) {
         self.status.dropped_blocks += 1;
         self.status.dropped_samples += samples as u64;
+        self.gap = Some(self.gap.unwrap_or(0) + samples as u64);
+    }
+
+    /// Notes a gap if the reader reconnected or reopened its file since the last look.
+    fn check_reconnects(&mut self) {
+        let reconnects = self.reader.stats().reconnects;
+        if reconnects != self.reconnects {
+            self.reconnects = reconnects;
+            self.gap = Some(self.gap.unwrap_or(0));
+        }
+    }
+
+    /// Announces a pending gap before the next block: `Continue` once it is sent (or there is
+    /// none), `Stop` on shutdown; with the drop policy a full channel returns `Continue`
+    /// with the gap still pending (the caller then drops the block too).
+    fn announce_gap(&mut self) -> Flow {
+        let Some(samples) = self.gap else {
+            return Flow::Continue;
+        };
+        let sent = match self.options.backpressure {
+            Backpressure::DropAndCount => match self.events.try_send(AcqEvent::Gap { samples }) {
+                Ok(()) => true,
+                Err(TrySendError::Full(_)) => false,
+                Err(TrySendError::Disconnected(_)) => return Flow::Stop,
+            },
+            Backpressure::Block => {
+                let mut event = AcqEvent::Gap { samples };
+                loop {
+                    match self.events.send_timeout(event, READ_SLICE) {
+                        Ok(()) => break true,
+                        Err(SendTimeoutError::Timeout(back)) => {
+                            event = back;
+                            if self.commands(None) == Flow::Stop {
+                                return Flow::Stop;
+                            }
+                        }
+                        Err(SendTimeoutError::Disconnected(_)) => return Flow::Stop,
+                    }
+                }
+            }
+        };
+        if sent {
+            self.gap = None;
+        }
+        Flow::Continue
     }
 
     /// Hands one block to the consumer according to the back-pressure policy.
     fn deliver(&mut self, block: Vec<f64>) -> Flow {
         let samples = block.len();
+        if self.announce_gap() == Flow::Stop {
+            return Flow::Stop;
+        }
+        if self.gap.is_some() {
+            // No room even for the gap notice: this block is dropped as well.
+            self.count_dropped(samples);
+            return Flow::Continue;
+        }
         match self.options.backpressure {
             Backpressure::DropAndCount => match self.events.try_send(AcqEvent::Block(block)) {
                 Ok(()) => self.wake(),
@@ -458,6 +518,7 @@ impl Worker {
                 Some(n) => n.min(want),
             };
             self.pacer.consumed(n);
+            self.check_reconnects();
             if self.paused {
                 // A live source keeps being drained while paused; what it delivers is dropped.
                 self.count_dropped(n);
@@ -529,7 +590,7 @@ mod tests {
         loop {
             match acq.events().recv().unwrap() {
                 AcqEvent::Block(b) => total += b.len(),
-                AcqEvent::Status(_) => {}
+                AcqEvent::Status(_) | AcqEvent::Gap { .. } => {}
                 AcqEvent::Stopped(e) => {
                     assert!(e.is_none());
                     break;
@@ -554,5 +615,66 @@ mod tests {
             ..AcqOptions::headless()
         };
         assert!(Acquisition::spawn(Box::new(reader), options, None).is_err());
+    }
+
+    #[test]
+    fn dropped_blocks_are_announced_as_gaps_before_the_next_block() {
+        // A fast counter (sample k has the value k) into a one-event channel drained
+        // slowly: blocks are dropped. Every block must continue the previous one exactly,
+        // unless gap notices came between them, whose sizes then add up to the jump; they add
+        // up to the dropped samples.
+        let total = 400_000;
+        let reader = Counter {
+            next: 0,
+            len: total,
+            fail: false,
+            rate_hz: 1.0,
+        };
+        let options = AcqOptions {
+            backpressure: Backpressure::DropAndCount,
+            channel_capacity: 1,
+            block_samples: 1000,
+            speed: None,
+            status_interval: Duration::from_millis(5),
+        };
+        let acq = Acquisition::spawn(Box::new(reader), options, None).unwrap();
+        let (mut next, mut pending_gap, mut gaps, mut gap_samples) = (0_u64, None, 0, 0);
+        let (mut received, mut last_status) = (0_u64, None);
+        loop {
+            match acq.events().recv().unwrap() {
+                AcqEvent::Block(b) => {
+                    let first = b[0] as u64;
+                    match pending_gap.take() {
+                        Some(samples) => assert_eq!(first, next + samples),
+                        None => assert_eq!(first, next, "a jump without a gap notice"),
+                    }
+                    next = first + b.len() as u64;
+                    received += b.len() as u64;
+                    thread::sleep(Duration::from_micros(50));
+                }
+                AcqEvent::Gap { samples } => {
+                    // Two in a row when the block after a notice found no room either.
+                    pending_gap = Some(pending_gap.unwrap_or(0) + samples);
+                    gaps += 1;
+                    gap_samples += samples;
+                }
+                AcqEvent::Status(s) => last_status = Some(s),
+                AcqEvent::Stopped(e) => {
+                    assert!(e.is_none());
+                    break;
+                }
+            }
+        }
+        let status = last_status.unwrap();
+        assert!(status.dropped_blocks > 0, "nothing was dropped: {status:?}");
+        assert!(gaps > 0);
+        // Samples dropped after the last delivered block have no block to precede: only
+        // those already announced (`trailing`) are in the gap notices.
+        let trailing = pending_gap.unwrap_or(0);
+        assert_eq!(
+            gap_samples,
+            status.dropped_samples - (total - next - trailing)
+        );
+        assert_eq!(received + status.dropped_samples, total);
     }
 }

@@ -228,6 +228,10 @@ fn feed(
                     });
                 }
             }
+            AcqEvent::Gap { .. } => {
+                // A followed file was reopened: no segment spans the seam.
+                averager.discard_pending();
+            }
             AcqEvent::Status(status) => {
                 stats = status.reader;
                 dropped_blocks = status.dropped_blocks;

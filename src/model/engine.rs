@@ -110,6 +110,9 @@ pub struct EngineStatus {
     pub dropped_blocks: u64,
     /// Samples in those blocks.
     pub dropped_samples: u64,
+    /// Gaps in the stream (dropped blocks, reconnections, reopened files) at which the
+    /// segment in progress was discarded so that no segment spans missing samples.
+    pub gaps: u64,
     /// Frames dropped because the window fell behind.
     pub dropped_frames: u64,
     /// Segments skipped because they held NaN/Inf.
@@ -487,6 +490,16 @@ impl Worker {
                 {
                     self.last_segment_arrival = Some(Instant::now());
                 }
+            }
+            AcqEvent::Gap { .. } => {
+                // Samples are missing: the next segment starts after the gap instead of
+                // spanning it (a segment across a gap has a phase jump). The dropped blocks
+                // themselves are counted in the status.
+                if let Some(w) = self.welch.as_mut() {
+                    w.discard_pending();
+                }
+                self.status.gaps += 1;
+                self.dirty = true;
             }
             AcqEvent::Status(s) => {
                 let warnings = reader_warnings(&s);

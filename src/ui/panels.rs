@@ -857,6 +857,17 @@ pub fn status_line(ui: &mut Ui, live: &LiveState, source: &SourceConfig, paused:
             ))
             .color(if dropped { theme::WARN } else { theme::INK }),
         );
+        if s.gaps > 0 {
+            sep(ui);
+            ui.label(
+                RichText::new(format!(
+                    "{} gap{} in the stream (no segment spans one)",
+                    s.gaps,
+                    if s.gaps == 1 { "" } else { "s" }
+                ))
+                .color(theme::WARN),
+            );
+        }
         if s.skipped_segments > 0 {
             sep(ui);
             ui.label(
