@@ -734,6 +734,7 @@ fn trend_point(r: &Report, time_s: f64) -> TrendPoint {
         linewidth_hz: finite(r.mode.linewidth_hz),
         occupancy: finite(r.quantum.occupancy),
         m_per_v: finite(r.calibration.m_per_v),
+        m_per_v_uncertainty: finite(r.calibration.m_per_v_uncertainty),
         effective_temperature_k: finite(r.quantum.effective_temperature_k),
     }
 }

@@ -98,6 +98,25 @@ impl Waterfall {
     }
 }
 
+/// How much the calibration moved over the session ([`TrendBuffer::calibration_drift`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CalibrationDrift {
+    /// (newest / oldest − 1) × 100.
+    pub percent: f64,
+    /// Its 1σ, percent; `None` if a reading had no uncertainty.
+    pub sigma_percent: Option<f64>,
+    /// Seconds between the first and the last calibrated point.
+    pub span_s: f64,
+}
+
+impl CalibrationDrift {
+    /// More than 3σ away from no drift.
+    pub fn is_significant(&self) -> bool {
+        self.sigma_percent
+            .is_some_and(|s| self.percent.abs() > 3.0 * s)
+    }
+}
+
 /// One trend sample (any value may be missing when the fit or an input was missing).
 #[derive(Debug, Clone, Copy, Default, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct TrendPoint {
@@ -111,6 +130,9 @@ pub struct TrendPoint {
     pub occupancy: Option<f64>,
     /// Calibration, metres per volt.
     pub m_per_v: Option<f64>,
+    /// Its statistical 1σ (m/V), as the report gives it.
+    #[serde(default)]
+    pub m_per_v_uncertainty: Option<f64>,
     /// Mode temperature T_eff.
     pub effective_temperature_k: Option<f64>,
 }
@@ -173,6 +195,48 @@ impl TrendBuffer {
         self.offered = 0;
     }
 
+    /// Drift of the calibration over the session: the median reading of the newest tenth of
+    /// the points against that of the oldest tenth (robust to single bad fits), with 1σ from
+    /// the two readings' reported uncertainties. `None` with fewer than 20 calibrated points.
+    pub fn calibration_drift(&self) -> Option<CalibrationDrift> {
+        let calibrated: Vec<&TrendPoint> = self
+            .points
+            .iter()
+            .filter(|p| p.m_per_v.is_some_and(|c| c.is_finite() && c > 0.0))
+            .collect();
+        if calibrated.len() < 20 {
+            return None;
+        }
+        let tenth = calibrated.len() / 10;
+        let median_point = |part: &[&TrendPoint]| -> Option<TrendPoint> {
+            let mut part = part.to_vec();
+            part.sort_by(|a, b| {
+                a.m_per_v
+                    .unwrap_or(0.0)
+                    .total_cmp(&b.m_per_v.unwrap_or(0.0))
+            });
+            part.get(part.len() / 2).map(|p| **p)
+        };
+        let first = median_point(calibrated.get(..tenth)?)?;
+        let last = median_point(calibrated.get(calibrated.len() - tenth..)?)?;
+        let (c0, c1) = (first.m_per_v?, last.m_per_v?);
+        let ratio = c1 / c0;
+        // σ of a ratio of two independent readings (first-order propagation; common
+        // practice). Readings of a cumulative average share data, so this is an upper bound.
+        let sigma_percent = match (first.m_per_v_uncertainty, last.m_per_v_uncertainty) {
+            (Some(s0), Some(s1)) if s0.is_finite() && s1.is_finite() => {
+                Some(100.0 * ratio * ((s0 / c0).powi(2) + (s1 / c1).powi(2)).sqrt())
+            }
+            _ => None,
+        };
+        let span_s = calibrated.last()?.time_s - calibrated.first()?.time_s;
+        Some(CalibrationDrift {
+            percent: 100.0 * (ratio - 1.0),
+            sigma_percent,
+            span_s,
+        })
+    }
+
     /// `[time_s, value]` series of one quantity, skipping missing and non-finite values.
     pub fn series(&self, pick: impl Fn(&TrendPoint) -> Option<f64>) -> Vec<[f64; 2]> {
         self.points
@@ -211,6 +275,44 @@ mod tests {
         assert_ne!(w.epoch(), e);
         let (lo, hi) = w.value_range().unwrap();
         assert!(lo <= hi);
+    }
+
+    #[test]
+    fn calibration_drift_compares_the_newest_tenth_with_the_oldest() {
+        // 40 points: the oldest four read 1.00 (±1 %) but one bad fit, the newest four 1.05
+        // (±1 %). Drift = 5 %; σ = 1.05 × √(0.01² + (0.0105/1.05)²) × 100 = 1.485 %
+        // (first-order error propagation of a ratio; common practice).
+        let mut t = TrendBuffer::new(100);
+        assert_eq!(t.calibration_drift(), None);
+        for i in 0..40 {
+            let c = match i {
+                1 => 7.0,
+                0..4 => 1.0,
+                36.. => 1.05,
+                _ => 1.02,
+            };
+            t.push(TrendPoint {
+                time_s: i as f64,
+                m_per_v: Some(c),
+                m_per_v_uncertainty: Some(0.01 * c),
+                ..TrendPoint::default()
+            });
+        }
+        let d = t.calibration_drift().unwrap();
+        assert!((d.percent - 5.0).abs() < 1e-9, "{d:?}");
+        let sigma = 105.0 * (2.0f64 * 1e-4).sqrt();
+        assert!((d.sigma_percent.unwrap() - sigma).abs() < 1e-9, "{d:?}");
+        assert_eq!(d.span_s, 39.0);
+        assert!(d.is_significant());
+        // The same drift with ±3 % readings is within 3σ: not significant.
+        let mut noisy = TrendBuffer::new(100);
+        for p in t.points() {
+            noisy.push(TrendPoint {
+                m_per_v_uncertainty: p.m_per_v.map(|c| 0.03 * c),
+                ..*p
+            });
+        }
+        assert!(!noisy.calibration_drift().unwrap().is_significant());
     }
 
     #[test]

@@ -15,7 +15,7 @@ pub mod state;
 
 pub use decimate::{bench_plot_prep, decimate_minmax, log_columns_max};
 pub use engine::{Engine, EngineCommand, EngineConfig, EngineNotice, EngineStatus, Frame, Waker};
-pub use history::{TrendBuffer, TrendPoint, Waterfall, WaterfallRow};
+pub use history::{CalibrationDrift, TrendBuffer, TrendPoint, Waterfall, WaterfallRow};
 pub use snapshots::LoadedSnapshot;
 pub use state::{
     AppState, AveragingChoice, CalibrationInputs, CalibrationMethod, Overlays, WelchSettings,

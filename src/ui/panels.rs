@@ -629,33 +629,29 @@ pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
     } else {
         ui.label(RichText::new("uncalibrated: volts only").color(theme::PENCIL));
     }
-    // Drift of the tone-derived calibration over the session: median of the newest tenth of
-    // the trend points against the median of the oldest tenth (robust to single bad fits).
-    let cal = live.trends.series(|p| p.m_per_v);
-    if cal.len() >= 20 {
-        let tenth = cal.len() / 10;
-        let median = |pts: &[[f64; 2]]| {
-            let mut v: Vec<f64> = pts.iter().map(|p| p[1]).collect();
-            v.sort_by(f64::total_cmp);
-            v.get(v.len() / 2).copied()
-        };
-        if let (Some(first), Some(last)) =
-            (median(&cal[..tenth]), median(&cal[cal.len() - tenth..]))
-            && first > 0.0
-        {
-            let drift = 100.0 * (last / first - 1.0);
-            let span_s = cal.last().map_or(0.0, |p| p[0]) - cal.first().map_or(0.0, |p| p[0]);
-            ui.label(
-                RichText::new(format!(
-                    "calibration drift: {drift:+.2} % over {span_s:.0} s"
-                ))
-                .color(if drift.abs() > 5.0 {
-                    theme::WARN
+    // Drift of the calibration over the session (model::TrendBuffer::calibration_drift);
+    // highlighted when it is beyond 3σ of the readings' own uncertainty.
+    if let Some(d) = live.trends.calibration_drift() {
+        let sigma = d
+            .sigma_percent
+            .map_or(String::new(), |s| format!(" ± {s:.2}"));
+        ui.label(
+            RichText::new(format!(
+                "calibration drift: {:+.2}{sigma} % over {:.0} s{}",
+                d.percent,
+                d.span_s,
+                if d.is_significant() {
+                    " (beyond 3σ)"
                 } else {
-                    theme::PENCIL
-                }),
-            );
-        }
+                    ""
+                }
+            ))
+            .color(if d.is_significant() {
+                theme::WARN
+            } else {
+                theme::PENCIL
+            }),
+        );
     }
     if crate::model::state::unit_is_displacement(state.unit) && c.m_per_v.is_none() {
         ui.label(
