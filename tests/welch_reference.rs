@@ -473,3 +473,50 @@ fn parallel_mode_is_bit_identical() {
         }
     }
 }
+
+/// Any sequence of pushes (random lengths), flushes, discarded partial segments and restarts
+/// gives bit-identical estimates on 1 and on 3 threads, in every averaging mode: the worker
+/// pool may only change when segments are averaged, never which or how.
+#[test]
+fn worker_pool_matches_one_thread_under_any_sequence_of_operations() {
+    let mut rng = Rng(41);
+    let x = rng.noise(200_000, 1.0);
+    for (averaging, max_averages) in all_modes() {
+        for seed in 0..4 {
+            let mut ops = Rng(100 + seed);
+            let mut c = WelchConfig::new(1.0, 64);
+            c.averaging = averaging;
+            c.max_averages = max_averages;
+            let mut one = Welch::new(c.clone()).unwrap();
+            let mut pool = Welch::new(c).unwrap().with_threads(3);
+            let mut at = 0;
+            while at < x.len() {
+                let r = ops.uniform();
+                if r < 0.05 {
+                    one.restart();
+                    pool.restart();
+                } else if r < 0.1 {
+                    one.discard_pending();
+                    pool.discard_pending();
+                } else {
+                    let len = ((ops.uniform() * 9000.0) as usize).min(x.len() - at);
+                    one.push(&x[at..at + len]);
+                    pool.push(&x[at..at + len]);
+                    at += len;
+                }
+                if ops.uniform() < 0.2 {
+                    pool.flush();
+                    assert_eq!(
+                        pool.spectrum(),
+                        one.spectrum(),
+                        "{averaging:?} {max_averages:?} seed {seed} at {at}"
+                    );
+                    assert_eq!(pool.segments(), one.segments());
+                    assert_eq!(pool.skipped_segments(), one.skipped_segments());
+                }
+            }
+            pool.flush();
+            assert_eq!(pool.spectrum(), one.spectrum(), "{averaging:?} end");
+        }
+    }
+}

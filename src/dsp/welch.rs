@@ -1167,6 +1167,14 @@ impl Welch {
                 self.pool = None;
             }
         }
+        // Complete segments still waiting here (worker threads only) would already have been
+        // averaged, and so forgotten, on one thread: skip them, keep the partial one.
+        let (n, hop) = (self.engine.n, self.config.hop());
+        if self.pending.len() >= n {
+            let complete = (self.pending.len() - n) / hop + 1;
+            let skip = (complete * hop).min(self.pending.len());
+            self.pending.drain(..skip);
+        }
         self.engine.acc.restart();
     }
 }
