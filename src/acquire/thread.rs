@@ -543,6 +543,8 @@ mod tests {
         len: u64,
         fail: bool,
         rate_hz: f64,
+        /// Sleep per read (a source that takes its time).
+        delay: Duration,
     }
 
     impl SampleReader for Counter {
@@ -550,6 +552,7 @@ mod tests {
             self.rate_hz
         }
         fn read_block(&mut self, out: &mut [f64]) -> Result<usize> {
+            thread::sleep(self.delay);
             let n = out.len().min((self.len - self.next) as usize);
             if n == 0 && self.fail {
                 return Err(AcquireError::Wav("broken on purpose".into()));
@@ -579,6 +582,7 @@ mod tests {
             len: 2000,
             fail: false,
             rate_hz: 10_000.0,
+            delay: Duration::ZERO,
         };
         let options = AcqOptions {
             speed: Some(2.0),
@@ -609,6 +613,7 @@ mod tests {
             len: 1,
             fail: false,
             rate_hz: 1.0,
+            delay: Duration::ZERO,
         };
         let options = AcqOptions {
             speed: Some(0.0),
@@ -619,16 +624,18 @@ mod tests {
 
     #[test]
     fn dropped_blocks_are_announced_as_gaps_before_the_next_block() {
-        // A fast counter (sample k has the value k) into a one-event channel drained
-        // slowly: blocks are dropped. Every block must continue the previous one exactly,
-        // unless gap notices came between them, whose sizes then add up to the jump; they add
-        // up to the dropped samples.
-        let total = 400_000;
+        // A counter (sample k has the value k; 1000-sample blocks every ≥ 50 µs, ≥ 0.1 s in
+        // all) into a one-event channel whose consumer stalls for 20 ms after its tenth
+        // block: blocks are dropped mid-stream, then delivered again. Every block must
+        // continue the previous one exactly, unless gap notices came between them, whose sizes
+        // then add up to the jump; they add up to the dropped samples.
+        let total = 2_000_000;
         let reader = Counter {
             next: 0,
             len: total,
             fail: false,
             rate_hz: 1.0,
+            delay: Duration::from_micros(50),
         };
         let options = AcqOptions {
             backpressure: Backpressure::DropAndCount,
@@ -639,7 +646,7 @@ mod tests {
         };
         let acq = Acquisition::spawn(Box::new(reader), options, None).unwrap();
         let (mut next, mut pending_gap, mut gaps, mut gap_samples) = (0_u64, None, 0, 0);
-        let (mut received, mut last_status) = (0_u64, None);
+        let (mut received, mut last_status, mut blocks) = (0_u64, None, 0);
         loop {
             match acq.events().recv().unwrap() {
                 AcqEvent::Block(b) => {
@@ -650,7 +657,10 @@ mod tests {
                     }
                     next = first + b.len() as u64;
                     received += b.len() as u64;
-                    thread::sleep(Duration::from_micros(50));
+                    blocks += 1;
+                    if blocks == 10 {
+                        thread::sleep(Duration::from_millis(20));
+                    }
                 }
                 AcqEvent::Gap { samples } => {
                     // Two in a row when the block after a notice found no room either.
