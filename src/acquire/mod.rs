@@ -36,6 +36,7 @@
 //! for event in acq.events() {
 //!     match event {
 //!         AcqEvent::Block(volts) => { /* feed the Welch averager */ let _ = volts; }
+//!         AcqEvent::Gap { .. } => { /* samples missing: start a new segment */ }
 //!         AcqEvent::Status(status) => eprintln!("{} samples", status.reader.samples),
 //!         AcqEvent::Stopped(None) => break,
 //!         AcqEvent::Stopped(Some(error)) => return Err(error.into()),
