@@ -35,6 +35,10 @@ pub struct AnalysisOptions {
     pub mode_band_hz: Option<(f64, f64)>,
     /// `--mass`: effective mass (kg).
     pub mass_kg: Option<f64>,
+    /// `--mass-uncertainty`: 1σ of the effective mass (kg); `None`: taken as exact.
+    pub mass_uncertainty_kg: Option<f64>,
+    /// `--bath-temperature-uncertainty`: 1σ of the bath temperature (K); `None`: exact.
+    pub bath_temperature_uncertainty_k: Option<f64>,
     /// `--carrier`: heterodyne intermediate frequency (Hz).
     pub carrier_hz: Option<f64>,
     /// `--lo-side`: true if the local oscillator is above the laser.
@@ -347,9 +351,19 @@ pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report,
         match (&mode_fit, options.mass_kg) {
             (Some(m), Some(mass)) if cal.is_none() => {
                 cal = Some(
-                    calibration::equipartition(m.area, m.frequency_hz.value, mass, t)
-                        .map_err(input)?,
+                    calibration::equipartition(
+                        m.area,
+                        m.frequency_hz.value,
+                        Estimate::new(mass, options.mass_uncertainty_kg.unwrap_or(0.0)),
+                        Estimate::new(t, options.bath_temperature_uncertainty_k.unwrap_or(0.0)),
+                    )
+                    .map_err(input)?,
                 );
+                if options.mass_uncertainty_kg.is_none()
+                    || options.bath_temperature_uncertainty_k.is_none()
+                {
+                    notes.push("calibration: the m/V uncertainty leaves out the error of the effective mass and/or of the bath temperature (give --mass-uncertainty and --bath-temperature-uncertainty to include them)".into());
+                }
                 notes.push("calibration: equipartition assumes the mode is thermalised to the bath (no optical or feedback heating/cooling), a linear flat transduction across the peak and an isolated peak; the occupancy then equals the bath occupancy by construction".into());
             }
             (None, _) if cal.is_none() => {
@@ -481,6 +495,21 @@ fn validate(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<(), Analys
     }
     positive("--mass (kg)", options.mass_kg)?;
     positive("--bath-temperature (K)", options.bath_temperature_k)?;
+    for (name, v) in [
+        ("--mass-uncertainty (kg)", options.mass_uncertainty_kg),
+        (
+            "--bath-temperature-uncertainty (K)",
+            options.bath_temperature_uncertainty_k,
+        ),
+    ] {
+        if let Some(x) = v
+            && !(x.is_finite() && x >= 0.0)
+        {
+            return Err(AnalysisError::Input(format!(
+                "{name} must be a finite number ≥ 0, got {x}"
+            )));
+        }
+    }
     positive("--m-per-v", options.m_per_v)?;
     positive("--tone-rms-m", options.tone_rms_m)?;
     positive("--pm-depth (rad)", options.pm_depth_rad)?;
@@ -672,7 +701,21 @@ fn fill_quantum(
     } else {
         times(m.area, c2)
     };
-    let n = occupancy::occupancy_from_variance(var, osc.x_zpf_m());
+    let mut n = occupancy::occupancy_from_variance(var, osc.x_zpf_m());
+    if c.method == CalibrationMethod::Equipartition {
+        // n̄ = n̄_BE(T) by construction: its error is the bath temperature's.
+        if let (Some(t), Some(sigma_t)) = (
+            options.bath_temperature_k,
+            options.bath_temperature_uncertainty_k,
+        ) {
+            let extra = occupancy::bose_einstein_dn_dt(f_m, t) * sigma_t;
+            n = Estimate::new(n.value, n.sigma.hypot(extra));
+        }
+    } else if let Some(sigma_m) = options.mass_uncertainty_kg {
+        // n̄ + ½ = ⟨x²⟩/(2 x_zpf²) ∝ m at a fixed calibrated ⟨x²⟩.
+        let extra = (n.value + 0.5) * sigma_m / mass;
+        n = Estimate::new(n.value, n.sigma.hypot(extra));
+    }
     report.quantum.occupancy = Some(n.value);
     report.quantum.occupancy_uncertainty = Some(n.sigma);
     match occupancy::effective_temperature(f_m, n) {

@@ -1392,3 +1392,127 @@ fn clipping_is_reported_once() {
         "{err}"
     );
 }
+
+/// `--mass-uncertainty` and `--bath-temperature-uncertainty` enter the reported 1σ by
+/// first-order propagation (common practice): with equipartition, (σ_c/c)² gains
+/// ¼(σ_m/m)² + ¼(x/sinh x · σ_T/T)² (x/sinh x = 1 to 1e-10 at 86 kHz and 295 K) and σ_n̄²
+/// gains (dn̄/dT · σ_T)² (= (n̄ σ_T/T)² classically); with a tone, m/V is unchanged and
+/// σ_n̄² gains ((n̄ + ½) σ_m/m)². Values stay; only the uncertainties grow.
+#[test]
+fn mass_and_temperature_uncertainties_propagate() {
+    let dir = tempfile::tempdir().unwrap();
+    let wav = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-streams/thermal.wav");
+    let analyze = |name: &str, extra: &[&str]| -> (serde_json::Value, String) {
+        let out = dir.path().join(format!("{name}.json"));
+        let mut args = vec![
+            "analyze",
+            s(&wav),
+            "--segment",
+            "16384",
+            "--mode-band",
+            "85000:87200",
+            "--mass",
+            "2e-12",
+            "-o",
+            s(&out),
+        ];
+        args.extend_from_slice(extra);
+        let output = run(&args);
+        assert_success(&output, name);
+        (
+            read_json(&out),
+            String::from_utf8_lossy(&output.stderr).into_owned(),
+        )
+    };
+    let num = |v: &serde_json::Value, key: &str| -> f64 {
+        let (section, field) = key.split_once('.').unwrap();
+        v[section][field]
+            .as_f64()
+            .unwrap_or_else(|| panic!("{key}: {v}"))
+    };
+    let (a, a_err) = analyze("equipartition", &["--bath-temperature", "295"]);
+    let (b, b_err) = analyze(
+        "equipartition-sigma",
+        &[
+            "--bath-temperature",
+            "295",
+            "--mass-uncertainty",
+            "2e-13",
+            "--bath-temperature-uncertainty",
+            "2.95",
+        ],
+    );
+    assert!(a_err.contains("leaves out the error"), "{a_err}");
+    assert!(!b_err.contains("leaves out the error"), "{b_err}");
+    let c = num(&a, "calibration.m_per_v");
+    assert_eq!(num(&b, "calibration.m_per_v"), c);
+    let rel = |v: &serde_json::Value| num(v, "calibration.m_per_v_uncertainty") / c;
+    let gained = rel(&b).powi(2) - rel(&a).powi(2);
+    let expected = 0.25 * (0.1f64.powi(2) + 0.01f64.powi(2));
+    assert!(
+        (gained / expected - 1.0).abs() < 1e-6,
+        "{gained} vs {expected}"
+    );
+    let n = num(&a, "quantum.occupancy");
+    assert_eq!(num(&b, "quantum.occupancy"), n);
+    let gained = num(&b, "quantum.occupancy_uncertainty").powi(2)
+        - num(&a, "quantum.occupancy_uncertainty").powi(2);
+    let expected = (n * 0.01).powi(2);
+    assert!(
+        (gained / expected - 1.0).abs() < 1e-4,
+        "{gained} vs {expected}"
+    );
+
+    let tone = ["--tone-freq", "89000", "--tone-rms-m", "2e-12"];
+    let (t, _) = analyze("tone", &tone);
+    let (u, _) = analyze(
+        "tone-sigma",
+        &[&tone[..], &["--mass-uncertainty", "2e-13"]].concat(),
+    );
+    assert_eq!(
+        num(&t, "calibration.m_per_v_uncertainty"),
+        num(&u, "calibration.m_per_v_uncertainty")
+    );
+    let n = num(&t, "quantum.occupancy");
+    let gained = num(&u, "quantum.occupancy_uncertainty").powi(2)
+        - num(&t, "quantum.occupancy_uncertainty").powi(2);
+    let expected = ((n + 0.5) * 0.1).powi(2);
+    assert!(
+        (gained / expected - 1.0).abs() < 1e-6,
+        "{gained} vs {expected}"
+    );
+
+    // Bad values are usage errors.
+    let bad_out = dir.path().join("bad.json");
+    for bad in [
+        &["--bath-temperature", "295", "--mass-uncertainty", "-1"][..],
+        &[
+            "--bath-temperature",
+            "295",
+            "--bath-temperature-uncertainty",
+            "nan",
+        ][..],
+        &[
+            "--tone-freq",
+            "89000",
+            "--tone-rms-m",
+            "2e-12",
+            "--bath-temperature-uncertainty",
+            "1",
+        ][..],
+    ] {
+        let mut args = vec![
+            "analyze",
+            s(&wav),
+            "--mode-band",
+            "85000:87200",
+            "--mass",
+            "2e-12",
+        ];
+        args.extend_from_slice(bad);
+        args.extend(["-o", s(&bad_out)]);
+        let output = run(&args);
+        assert_eq!(output.status.code(), Some(2), "{bad:?}");
+        assert!(!bad_out.exists());
+    }
+}

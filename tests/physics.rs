@@ -10,7 +10,7 @@ use std::f64::consts::PI;
 use stillpoint::dsp::{Averaging, Detrend, Spectrum, WindowKind};
 use stillpoint::physics::constants::{BOLTZMANN_J_PER_K, HBAR_J_S};
 use stillpoint::physics::oscillator::{self, Oscillator};
-use stillpoint::physics::{Estimate, fit, occupancy, quantum, window_stats};
+use stillpoint::physics::{Estimate, calibration, fit, occupancy, quantum, window_stats};
 
 fn checks() -> serde_json::Value {
     let path = concat!(
@@ -298,6 +298,79 @@ fn t5_area_of_the_oscillator_form() {
         quantum::classical_thermal_psd_at(&o, 4.0, f),
         1e-10,
         "Hz form = FDT form",
+    );
+}
+
+/// The equipartition error budget: d ln⟨x²⟩/d ln T = x/sinh x and dn̄/dT against central
+/// differences in numpy (tests/reference/physics_checks.py), from the classical limit to deep
+/// in the ground state; and σ_c/c = ½ √((σ_A/A)² + (σ_m/m)² + (x/sinh x · σ_T/T)²)
+/// (first-order propagation of c² = x_zpf²(2n̄+1)/A with x_zpf² ∝ 1/m; common practice).
+#[test]
+fn equipartition_error_budget() {
+    let c = checks();
+    for row in c["temperature_sensitivity"].as_array().unwrap() {
+        let f = row["frequency_hz"].as_f64().unwrap();
+        let t = row["temperature_k"].as_f64().unwrap();
+        close(
+            occupancy::variance_temperature_sensitivity(f, t),
+            row["dlnvar_dlnT"].as_f64().unwrap(),
+            1e-6,
+            "d ln var / d ln T",
+        );
+        close(
+            occupancy::bose_einstein_dn_dt(f, t),
+            row["dn_dT"].as_f64().unwrap(),
+            1e-6,
+            "dn/dT",
+        );
+    }
+    // Classical regime (sensitivity 1): 2 % area, 10 % mass, 1 % temperature.
+    let area = Estimate::new(4.0e-6, 0.02 * 4.0e-6);
+    let exact = calibration::equipartition(
+        area,
+        86.1e3,
+        Estimate::new(2e-12, 0.0),
+        Estimate::new(295.0, 0.0),
+    )
+    .unwrap();
+    let full = calibration::equipartition(
+        area,
+        86.1e3,
+        Estimate::new(2e-12, 0.2e-12),
+        Estimate::new(295.0, 2.95),
+    )
+    .unwrap();
+    assert_eq!(full.m_per_v.value, exact.m_per_v.value);
+    close(
+        exact.m_per_v.sigma / exact.m_per_v.value,
+        0.01,
+        1e-9,
+        "area only",
+    );
+    close(
+        full.m_per_v.sigma / full.m_per_v.value,
+        0.5 * (0.02f64.powi(2) + 0.1f64.powi(2) + 0.01f64.powi(2)).sqrt(),
+        1e-6,
+        "area, mass and temperature",
+    );
+    // Deep in the ground state (5 GHz at 20 mK) the bath temperature hardly matters.
+    let cold = calibration::equipartition(
+        Estimate::new(1e-6, 0.0),
+        5e9,
+        Estimate::new(1e-15, 0.0),
+        Estimate::new(0.02, 0.01),
+    )
+    .unwrap();
+    assert!(cold.m_per_v.sigma / cold.m_per_v.value < 1e-4);
+    // Nonsense uncertainties are refused.
+    assert!(
+        calibration::equipartition(
+            area,
+            86.1e3,
+            Estimate::new(2e-12, -1.0),
+            Estimate::new(295.0, 0.0)
+        )
+        .is_err()
     );
 }
 

@@ -324,8 +324,10 @@ pub const ANALYSIS_IDS: &[&str] = &[
     "pm_depth",
     "freq_pull",
     "bath_temperature",
+    "bath_temperature_uncertainty",
     "mode_band",
     "mass",
+    "mass_uncertainty",
     "carrier",
     "lo_side",
     "sloped_background",
@@ -375,6 +377,18 @@ pub struct CalibrationArgs {
     /// Effective mass of the mode in kg (1 pg = 1e-15 kg, 1 fg = 1e-18 kg).
     #[arg(long, value_name = "KG", value_parser = parse_positive)]
     pub mass: Option<f64>,
+
+    /// 1σ uncertainty of the effective mass in kg: included in the m/V uncertainty of an
+    /// equipartition calibration and in the occupancy uncertainty otherwise (default: the
+    /// mass is taken as exact).
+    #[arg(long, value_name = "KG", value_parser = parse_non_negative, requires = "mass")]
+    pub mass_uncertainty: Option<f64>,
+
+    /// 1σ uncertainty of the bath temperature in kelvin: included in the m/V and occupancy
+    /// uncertainties of an equipartition calibration (default: taken as exact).
+    #[arg(long, value_name = "K", value_parser = parse_non_negative,
+          requires = "bath_temperature")]
+    pub bath_temperature_uncertainty: Option<f64>,
 
     /// Fit a linear slope of the background under the mode (default: flat background).
     #[arg(long)]
@@ -622,6 +636,16 @@ fn parse_positive(text: &str) -> Result<f64, String> {
         Ok(value)
     } else {
         Err(format!("must be greater than 0, got {text}"))
+    }
+}
+
+/// A finite number ≥ 0.
+fn parse_non_negative(text: &str) -> Result<f64, String> {
+    let value = parse_number(text)?;
+    if value >= 0.0 {
+        Ok(value)
+    } else {
+        Err(format!("must be 0 or more, got {text}"))
     }
 }
 

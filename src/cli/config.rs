@@ -220,6 +220,8 @@ pub fn analysis_options(
         bath_temperature_k: calibration.bath_temperature,
         mode_band_hz: calibration.mode_band,
         mass_kg: calibration.mass,
+        mass_uncertainty_kg: calibration.mass_uncertainty,
+        bath_temperature_uncertainty_k: calibration.bath_temperature_uncertainty,
         carrier_hz: heterodyne.carrier,
         lo_above: heterodyne.lo_side.map(|side| side == LoSideArg::Above),
         peak_threshold_db,

@@ -272,6 +272,10 @@ pub struct CalibrationInputs {
     pub bath_temperature_k: f64,
     /// Effective mass, kg (`None`: quantum references off).
     pub mass_kg: Option<f64>,
+    /// 1σ of the effective mass, kg (`None`: taken as exact).
+    pub mass_uncertainty_kg: Option<f64>,
+    /// 1σ of the bath temperature, K (`None`: taken as exact).
+    pub bath_temperature_uncertainty_k: Option<f64>,
     /// Mode fit band, Hz (`None`: picked automatically around the strongest line).
     pub mode_band_hz: Option<(f64, f64)>,
     /// Let the band follow the fitted mode as it drifts.
@@ -295,6 +299,8 @@ impl Default for CalibrationInputs {
             freq_pull_hz_per_m: 1e18,
             bath_temperature_k: 4.0,
             mass_kg: None,
+            mass_uncertainty_kg: None,
+            bath_temperature_uncertainty_k: None,
             mode_band_hz: None,
             follow_mode: true,
             carrier_hz: None,
@@ -331,6 +337,8 @@ impl CalibrationInputs {
             }
         }
         c.mass_kg = options.mass_kg;
+        c.mass_uncertainty_kg = options.mass_uncertainty_kg;
+        c.bath_temperature_uncertainty_k = options.bath_temperature_uncertainty_k;
         c.mode_band_hz = options.mode_band_hz;
         c.carrier_hz = options.carrier_hz;
         c.lo_above = options.lo_above.unwrap_or(true);
@@ -342,6 +350,7 @@ impl CalibrationInputs {
     pub fn to_options(&self) -> AnalysisOptions {
         let mut o = AnalysisOptions {
             mass_kg: self.mass_kg,
+            mass_uncertainty_kg: self.mass_kg.and(self.mass_uncertainty_kg),
             mode_band_hz: self.mode_band_hz,
             carrier_hz: self.carrier_hz,
             lo_above: self.carrier_hz.map(|_| self.lo_above),
@@ -362,6 +371,7 @@ impl CalibrationInputs {
             }
             CalibrationMethod::Equipartition => {
                 o.bath_temperature_k = Some(self.bath_temperature_k);
+                o.bath_temperature_uncertainty_k = self.bath_temperature_uncertainty_k;
             }
         }
         o
@@ -494,6 +504,7 @@ mod tests {
             pm_depth_rad: Some(1e-3),
             freq_pull_hz_per_m: Some(1e18),
             mass_kg: Some(1e-13),
+            mass_uncertainty_kg: Some(1e-14),
             mode_band_hz: Some((0.9e6, 1.1e6)),
             ..AnalysisOptions::default()
         };
@@ -503,6 +514,7 @@ mod tests {
         assert_eq!(back.tone_frequency_hz, o.tone_frequency_hz);
         assert_eq!(back.pm_depth_rad, o.pm_depth_rad);
         assert_eq!(back.mass_kg, o.mass_kg);
+        assert_eq!(back.mass_uncertainty_kg, o.mass_uncertainty_kg);
         assert_eq!(back.mode_band_hz, o.mode_band_hz);
         assert_eq!(back.m_per_v, None);
         assert_eq!(back.bath_temperature_k, None);

@@ -10,7 +10,7 @@
 use std::collections::VecDeque;
 use std::f64::consts::PI;
 
-use super::occupancy::{bose_einstein, quantum_variance_m2};
+use super::occupancy::{bose_einstein, quantum_variance_m2, variance_temperature_sensitivity};
 use super::oscillator::x_zpf_m;
 use super::{Estimate, PhysicsError, Result, require_positive, window_stats};
 use crate::dsp::Spectrum;
@@ -256,25 +256,42 @@ pub fn from_tone(reading: &ToneReading, tone_rms_m: f64) -> Result<Calibration> 
 }
 
 /// Thermal equipartition (METHODS.md §5a): c² = x_zpf²(2n̄_BE+1)/A_V (= k_BT/(mΩ²A_V) in the
-/// classical limit), (σ_c²/c²)² = (σ_A/A)² (T and m taken as exact).
+/// classical limit). 1σ by first-order propagation (x_zpf² ∝ 1/m; d ln(2n̄+1)/d ln T =
+/// x/sinh x, x = ħΩ/k_BT):
+/// σ_c/c = ½ √((σ_A/A)² + (σ_m/m)² + (x/sinh x · σ_T/T)²). Give σ = 0 for a mass or a
+/// temperature taken as exact.
 ///
 /// # Errors
-/// [`PhysicsError::Input`] for non-positive area, frequency, mass or temperature.
+/// [`PhysicsError::Input`] for non-positive area, frequency, mass or temperature, or a
+/// negative or non-finite uncertainty.
 pub fn equipartition(
     mode_area_v2: Estimate,
     mode_frequency_hz: f64,
-    mass_kg: f64,
-    bath_temperature_k: f64,
+    mass_kg: Estimate,
+    bath_temperature_k: Estimate,
 ) -> Result<Calibration> {
     let a = require_positive("mode area (V²)", mode_area_v2.value)?;
     let f = require_positive("mode frequency (Hz)", mode_frequency_hz)?;
-    let m = require_positive("--mass", mass_kg)?;
-    let t = require_positive("--bath-temperature", bath_temperature_k)?;
+    let m = require_positive("--mass", mass_kg.value)?;
+    let t = require_positive("--bath-temperature", bath_temperature_k.value)?;
+    for (name, sigma) in [
+        ("--mass-uncertainty", mass_kg.sigma),
+        ("--bath-temperature-uncertainty", bath_temperature_k.sigma),
+    ] {
+        if !(sigma.is_finite() && sigma >= 0.0) {
+            return Err(PhysicsError::Input(format!(
+                "{name} must be a finite number ≥ 0, got {sigma}"
+            )));
+        }
+    }
     let var = quantum_variance_m2(x_zpf_m(m, f), f, t);
     let c = (var / a).sqrt();
+    let rel_t = variance_temperature_sensitivity(f, t) * bath_temperature_k.sigma / t;
+    let rel =
+        ((mode_area_v2.sigma / a).powi(2) + (mass_kg.sigma / m).powi(2) + rel_t.powi(2)).sqrt();
     Ok(Calibration {
         method: CalibrationMethod::Equipartition,
-        m_per_v: Estimate::new(c, 0.5 * c * mode_area_v2.sigma / a),
+        m_per_v: Estimate::new(c, 0.5 * c * rel),
         tone: None,
     })
 }

@@ -55,6 +55,36 @@ pub fn quantum_variance_m2(x_zpf_m: f64, frequency_hz: f64, temperature_k: f64) 
     x_zpf_m * x_zpf_m * (2.0 * bose_einstein(frequency_hz, temperature_k) + 1.0)
 }
 
+/// d n̄_BE/dT (1/K) = (x/T) eˣ/(eˣ − 1)², x = ħΩ/k_BT; 0 at T = 0. Propagates a bath-temperature
+/// error into the occupancy that equipartition assigns.
+pub fn bose_einstein_dn_dt(frequency_hz: f64, temperature_k: f64) -> f64 {
+    if temperature_k <= 0.0 {
+        return 0.0;
+    }
+    let x = quantum_temperature_k(frequency_hz) / temperature_k;
+    let em1 = x.exp_m1();
+    if !em1.is_finite() {
+        return 0.0;
+    }
+    // eˣ/(eˣ − 1)² = 1/(em1 (1 − e^{−x})), stable for small and large x.
+    (x / temperature_k) / (em1 * (-(-x).exp_m1()))
+}
+
+/// d ln⟨x²⟩ / d ln T of the symmetrised thermal variance x_zpf² coth(x/2) at fixed x_zpf:
+/// x/sinh x (→ 1 in the classical limit, → 0 deep in the ground state). A relative
+/// bath-temperature error σ_T/T becomes (x/sinh x)·σ_T/T in ⟨x²⟩.
+pub fn variance_temperature_sensitivity(frequency_hz: f64, temperature_k: f64) -> f64 {
+    if temperature_k <= 0.0 {
+        return 0.0;
+    }
+    let x = quantum_temperature_k(frequency_hz) / temperature_k;
+    if x < 1e-8 {
+        return 1.0;
+    }
+    let s = x / x.sinh();
+    if s.is_finite() { s } else { 0.0 }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -38,7 +38,9 @@ pub struct PanelState {
     pm_depth: String,
     pull: String,
     bath_t: String,
+    bath_t_sigma: String,
     mass: String,
+    mass_sigma: String,
     band_lo: String,
     band_hi: String,
     follow_mode: bool,
@@ -71,6 +73,22 @@ fn parse_pos(text: &str, name: &str) -> Result<f64, String> {
         Ok(v)
     } else {
         Err(format!("{name} must be a positive number, got {v}"))
+    }
+}
+
+/// Empty: `None` (taken as exact); else a finite number ≥ 0.
+fn parse_opt_non_negative(text: &str, name: &str) -> Result<Option<f64>, String> {
+    if text.trim().is_empty() {
+        return Ok(None);
+    }
+    let v: f64 = text
+        .trim()
+        .parse()
+        .map_err(|_| format!("{name}: '{}' is not a number", text.trim()))?;
+    if v.is_finite() && v >= 0.0 {
+        Ok(Some(v))
+    } else {
+        Err(format!("{name} must be 0 or a positive number, got {v}"))
     }
 }
 
@@ -110,7 +128,9 @@ impl PanelState {
             pm_depth: String::new(),
             pull: String::new(),
             bath_t: String::new(),
+            bath_t_sigma: String::new(),
             mass: String::new(),
+            mass_sigma: String::new(),
             band_lo: String::new(),
             band_hi: String::new(),
             follow_mode: true,
@@ -138,7 +158,9 @@ impl PanelState {
         self.pm_depth = num_text(c.pm_depth_rad);
         self.pull = num_text(c.freq_pull_hz_per_m);
         self.bath_t = num_text(c.bath_temperature_k);
+        self.bath_t_sigma = opt_text(c.bath_temperature_uncertainty_k);
         self.mass = opt_text(c.mass_kg);
+        self.mass_sigma = opt_text(c.mass_uncertainty_kg);
         self.band_lo = opt_text(c.mode_band_hz.map(|b| b.0));
         self.band_hi = opt_text(c.mode_band_hz.map(|b| b.1));
         self.follow_mode = c.follow_mode;
@@ -212,7 +234,10 @@ impl PanelState {
             }
         }
         c.bath_temperature_k = parse_pos(&self.bath_t, "bath temperature")?;
+        c.bath_temperature_uncertainty_k =
+            parse_opt_non_negative(&self.bath_t_sigma, "bath temperature 1σ")?;
         c.mass_kg = parse_opt_pos(&self.mass, "effective mass")?;
+        c.mass_uncertainty_kg = parse_opt_non_negative(&self.mass_sigma, "effective mass 1σ")?;
         let lo = parse_opt_pos(&self.band_lo, "band low edge")?;
         let hi = parse_opt_pos(&self.band_hi, "band high edge")?;
         c.mode_band_hz = match (lo, hi) {
@@ -522,7 +547,11 @@ impl PanelState {
                 CalibrationMethod::Equipartition => {}
             }
             row(ui, "bath T (K)", &mut self.bath_t);
+            if self.method == CalibrationMethod::Equipartition {
+                row(ui, "bath T 1σ (K)", &mut self.bath_t_sigma);
+            }
             row(ui, "effective mass (kg)", &mut self.mass);
+            row(ui, "mass 1σ (kg)", &mut self.mass_sigma);
             row(ui, "band low (Hz)", &mut self.band_lo);
             row(ui, "band high (Hz)", &mut self.band_hi);
             row(ui, "carrier (Hz)", &mut self.carrier);

@@ -43,6 +43,8 @@ pub const NAMES: &[&str] = &[
     "--bath-temperature",
     "--mode-band",
     "--mass",
+    "--mass-uncertainty",
+    "--bath-temperature-uncertainty",
     "--sloped-background",
     "--carrier",
     "--lo-side",

@@ -163,5 +163,23 @@ from scipy import special
 out["log_chi2_mean_db"] = [{"nu": nu, "db": float(10 / np.log(10) * (special.digamma(nu / 2) - np.log(nu / 2)))}
                            for nu in (2, 20, 200)]
 
+# --- Equipartition error budget: sensitivity of coth(x/2) and of n_BE to T, by central
+# differences in numpy (not the closed forms the Rust code uses) ---------------------------
+def ln_sym_var(f, T):
+    return np.log(1.0 / np.tanh(hbar * 2 * np.pi * f / (2 * kB * T)))
+
+
+def n_be(f, T):
+    return 1.0 / np.expm1(hbar * 2 * np.pi * f / (kB * T))
+
+
+sens = []
+for f, T in [(86.1e3, 295.0), (1.0e6, 4.0), (3.7e9, 0.5), (5.0e9, 0.05), (5.0e9, 0.02)]:
+    h = 1e-5
+    dlnv = (ln_sym_var(f, T * (1 + h)) - ln_sym_var(f, T * (1 - h))) / (np.log1p(h) - np.log1p(-h))
+    dn = (n_be(f, T * (1 + h)) - n_be(f, T * (1 - h))) / (2 * h * T)
+    sens.append({"frequency_hz": f, "temperature_k": T, "dlnvar_dlnT": float(dlnv), "dn_dT": float(dn)})
+out["temperature_sensitivity"] = sens
+
 json.dump(out, sys.stdout, indent=1, default=float)
 print()
