@@ -1064,6 +1064,7 @@ fn bench_reports_throughput_headroom_and_floor() {
     // generator writes exactly rate × seconds samples unless its FIFO overflows, so every
     // sample is either averaged or counted as lost; 100 kS/s is far below what even a debug
     // build sustains, so none is lost.
+    assert_eq!(v["live_errors"], serde_json::json!([]), "{v}");
     let live = v["live"].as_array().expect("bench JSON lacks live[]");
     let transports: Vec<&str> = live
         .iter()
