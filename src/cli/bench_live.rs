@@ -257,7 +257,15 @@ fn start_link(transport: LiveTransport, rate: Option<f64>, seconds: f64) -> Resu
             )));
             config.sample_format = Some(SampleFormat::F32);
             config.rate_hz = Some(nominal_rate);
-            acquire::open(&config)?
+            match acquire::open(&config) {
+                Ok(reader) => reader,
+                Err(e) => {
+                    // Do not leave the generator waiting for a connection.
+                    let _ = child.kill();
+                    let _ = child.wait();
+                    return Err(e.into());
+                }
+            }
         }
     };
     Ok(Link { child, reader })
