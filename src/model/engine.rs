@@ -293,6 +293,8 @@ struct Worker {
     report: Option<Arc<Report>>,
     analysis_error: Option<String>,
     segments_at_analysis: usize,
+    /// Blocks were thrown away while frozen: the next segment starts after them.
+    skipped_while_paused: bool,
     dirty: bool,
     last_publish: Instant,
     last_history: Option<Instant>,
@@ -328,6 +330,7 @@ impl Worker {
             report: None,
             analysis_error: None,
             segments_at_analysis: 0,
+            skipped_while_paused: false,
             dirty: false,
             last_publish: Instant::now(),
             last_history: None,
@@ -483,7 +486,14 @@ impl Worker {
             AcqEvent::Block(block) => {
                 self.status.samples += block.len() as u64;
                 if self.status.paused {
+                    self.skipped_while_paused = true;
                     return;
+                }
+                if std::mem::take(&mut self.skipped_while_paused)
+                    && let Some(w) = self.welch.as_mut()
+                {
+                    // The frozen blocks are missing: no segment spans them.
+                    w.discard_pending();
                 }
                 if let Some(w) = self.welch.as_mut()
                     && w.push(&block) > 0
