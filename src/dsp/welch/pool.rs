@@ -147,7 +147,16 @@ impl Pool {
                 .name(format!("welch-worker-{t}"))
                 .spawn(move || {
                     while let Ok(mut job) = job_rx.recv() {
-                        run_job(&mut worker, &mut job, shape);
+                        // A panic must not lose the job (the caller would wait for it
+                        // forever): its segments then count as skipped.
+                        let ran = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+                            run_job(&mut worker, &mut job, shape);
+                        }));
+                        if ran.is_err() {
+                            job.accepted = 0;
+                            job.rows.clear();
+                            job.rows.resize(shape.rows_len(), 0.0);
+                        }
                         if result_tx.send(job).is_err() {
                             break;
                         }
