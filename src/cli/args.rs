@@ -97,7 +97,12 @@ pub enum Command {
                       the given segment, window and overlap, compares it with the requested \
                       sample rate (headroom = throughput / rate; it keeps up when headroom > \
                       1), and with the FFT-only floor (the same FFTs with no windowing, \
-                      detrending or averaging). Figures are medians of several runs.",
+                      detrending or averaging). Figures are medians of several runs. Then \
+                      (--live, default both) it streams raw f32 samples from a generator \
+                      process through a pipe and over loopback TCP into the same path \
+                      `spectrum` uses: once as fast as it goes, once paced at --rate like a \
+                      digitiser with a 50 ms FIFO, counting samples lost at the source and \
+                      blocks dropped.",
         after_long_help = EXAMPLES
     )]
     Bench(BenchArgs),
