@@ -448,14 +448,22 @@ fn parse_csv(bytes: &[u8]) -> Result<SpectrumTable> {
     Ok(table)
 }
 
+/// At most `max_chars` characters of `s` for an error message, on one line: control
+/// characters (a line break inside a quoted value) are shown escaped (`\n`).
 fn truncate(s: &str, max_chars: usize) -> String {
-    if s.chars().count() <= max_chars {
-        s.to_string()
-    } else {
-        let mut t: String = s.chars().take(max_chars).collect();
-        t.push('…');
-        t
+    let mut t = String::new();
+    for (i, c) in s.chars().enumerate() {
+        if i == max_chars {
+            t.push('…');
+            break;
+        }
+        if c.is_control() {
+            t.extend(c.escape_default());
+        } else {
+            t.push(c);
+        }
     }
+    t
 }
 
 fn check_spectrum(s: &Spectrum) -> Result<()> {
@@ -632,7 +640,9 @@ pub fn parse_meta(bytes: &[u8], path: &Path) -> Result<SnapshotMeta> {
         path: path.to_path_buf(),
         message,
     };
-    let meta: SnapshotMeta = serde_json::from_slice(bytes).map_err(|e| err(e.to_string()))?;
+    // serde quotes offending values, which may hold line breaks: keep the message one line.
+    let meta: SnapshotMeta =
+        serde_json::from_slice(bytes).map_err(|e| err(truncate(&e.to_string(), 300)))?;
     if meta.format != FORMAT_NAME {
         return Err(err(format!(
             "format is '{}', expected '{FORMAT_NAME}'",

@@ -488,3 +488,68 @@ proptest! {
         let _ = read_spectrum_csv(bytes.as_slice());
     }
 }
+
+/// Seeds of the `snapshot_load` fuzz target (`tests/fuzz/seeds/snapshot_load/`): real saved
+/// snapshots as `JSON \0 CSV`, the split the target makes. They must stay loadable as the
+/// format evolves, or the fuzzer starts from nothing again.
+fn snapshot_seeds(dir: &Path) -> Vec<(String, Vec<u8>)> {
+    let mut seeds = Vec::new();
+    for (name, bins, calibrated) in [("plain", 5, false), ("calibrated", 9, true)] {
+        let path = dir.join(name);
+        save(&path, &spectrum(bins, 3), &info(calibrated), true).unwrap();
+        let (json, csv) = snapshot_paths(&path);
+        let mut bytes = std::fs::read(json).unwrap();
+        bytes.push(0);
+        bytes.extend(std::fs::read(csv).unwrap());
+        seeds.push((format!("{name}.seed"), bytes));
+    }
+    seeds
+}
+
+fn seed_dir() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fuzz/seeds/snapshot_load")
+}
+
+#[test]
+fn fuzz_seeds_are_loadable_snapshots() {
+    let mut found = 0;
+    for entry in std::fs::read_dir(seed_dir()).unwrap() {
+        let bytes = std::fs::read(entry.unwrap().path()).unwrap();
+        let split = bytes.iter().position(|b| *b == 0).unwrap();
+        let s = snapshot::from_bytes(&bytes[..split], &bytes[split + 1..]).unwrap();
+        assert_eq!(s.spectrum.len(), s.meta.bins);
+        found += 1;
+    }
+    assert_eq!(found, 2);
+}
+
+/// Rewrites the fuzz seeds: `cargo test --test snapshot -- --ignored regenerate_fuzz_seeds`.
+#[test]
+#[ignore = "rewrites tests/fuzz/seeds/snapshot_load"]
+fn regenerate_fuzz_seeds() {
+    let tmp = tempfile::tempdir().unwrap();
+    std::fs::create_dir_all(seed_dir()).unwrap();
+    for (name, bytes) in snapshot_seeds(tmp.path()) {
+        std::fs::write(seed_dir().join(name), bytes).unwrap();
+    }
+}
+
+/// Regression (found by the seeded `snapshot_load` fuzz target): a value with an escaped line
+/// break where serde expects a name (`"detrend": "mea\n…"`) made serde's message, which quotes
+/// the value, two lines long. Every loader error is one line.
+#[test]
+fn a_line_break_inside_a_bad_value_stays_out_of_the_message() {
+    let tmp = tempfile::tempdir().unwrap();
+    let (_, seed) = snapshot_seeds(tmp.path()).remove(0);
+    let split = seed.iter().position(|b| *b == 0).unwrap();
+    let json = String::from_utf8(seed[..split].to_vec()).unwrap();
+    assert!(json.contains("\"detrend\": \"mean\""));
+    let bad = json.replace(
+        "\"detrend\": \"mean\"",
+        "\"detrend\": \"mea one\\nline two\"",
+    );
+    let err = snapshot::from_bytes(bad.as_bytes(), &seed[split + 1..]).unwrap_err();
+    let text = err.to_string();
+    assert!(!text.contains('\n'), "{text:?}");
+    assert!(text.contains("mea one\\nline two"), "{text:?}");
+}
