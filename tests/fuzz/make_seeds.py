@@ -87,7 +87,12 @@ def main():
     write("chunks.wav", riff([fmt, extra, odd, data_chunk(payload), listc]))
     # A recorder that died: data size "unknown" (0xFFFFFFFF), and one cut short.
     write("unknown_size.wav", riff([fmt, data_chunk(payload, 0xFFFFFFFF)], 0xFFFFFFFF))
+    # Header sizes disagree (damaged: refused), and a recorder that died mid-file (the RIFF
+    # size agrees with the declared data size, the bytes stop early: read with a warning).
     write("truncated.wav", riff([fmt, data_chunk(payload, 4 * len(payload))]))
+    cut = fmt + b"data" + struct.pack("<I", 4 * len(payload)) + payload
+    write("cut_short.wav", b"RIFF" + struct.pack("<I", 4 + len(fmt) + 8 + 4 * len(payload))
+          + b"WAVE" + cut)
     # RF64 with a ds64 chunk giving the real sizes (64-bit) and 0xFFFFFFFF in the 32-bit ones.
     data = data_chunk(payload, 0xFFFFFFFF)
     ds64_body = struct.pack("<QQQI", 4 + 36 + 8 + 24 + len(data), len(payload), len(payload) // 2, 0)
