@@ -1517,3 +1517,46 @@ fn mass_and_temperature_uncertainties_propagate() {
         assert!(!bad_out.exists());
     }
 }
+
+/// A stream that ends before `--averages K` is reached still gives its spectrum, with one
+/// warning that says how many of the K averages it holds (stdin closed early).
+#[test]
+fn a_source_that_ends_before_k_averages_says_so() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("short.csv");
+    // 10 240 f32 samples: 9 segments of 2048 at 50 % overlap.
+    let bytes: Vec<u8> = noise_f32(10_240, 0.5, 3)
+        .iter()
+        .flat_map(|v| v.to_le_bytes())
+        .collect();
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_stillpoint"))
+        .args([
+            "spectrum",
+            "-",
+            "--sample-format",
+            "f32",
+            "--rate",
+            "1e4",
+            "--segment",
+            "2048",
+            "--averages",
+            "100",
+            "-o",
+            s(&out),
+        ])
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    child.stdin.take().unwrap().write_all(&bytes).unwrap();
+    let output = child.wait_with_output().unwrap();
+    assert_success(&output, "short stdin");
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert!(
+        stderr.contains("the source ended after 10240 samples: 9 of the 100 averages asked for"),
+        "{stderr}"
+    );
+    assert_eq!(stderr.lines().count(), 1, "{stderr}");
+    assert_eq!(read_csv(&out).rows.len(), 1025);
+}

@@ -68,11 +68,21 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
     let mut averager = Welch::new(welch_config.clone())?.with_threads(threads);
     let progress = Progress::new(record_samples);
     let description = reader.describe();
-    let stats = stream_into(reader, &mut averager, &progress, None)
-        .with_context(|| format!("while reading {}", source_label(&source_config.spec)))?
-        .stats;
+    let fed = stream_into(reader, &mut averager, &progress, None)
+        .with_context(|| format!("while reading {}", source_label(&source_config.spec)))?;
+    let stats = fed.stats;
     progress.finish();
     let mut warnings = reader_warnings(&stats, averager.skipped_segments());
+    if let Some(k) = welch_config.max_averages
+        && fed.ended
+        && averager.segments() < k
+    {
+        warnings.push(format!(
+            "the source ended after {} samples: {} of the {k} averages asked for",
+            stats.samples,
+            averager.segments()
+        ));
+    }
     if averager.median_is_capped() {
         warnings.push(format!(
             "median of the last {} segments only (the stored periodograms reached {} MiB); \
@@ -148,6 +158,8 @@ struct Fed {
     dropped_blocks: u64,
     /// Samples read from the source (pushed, or cut off by `--averages`).
     pushed: u64,
+    /// The source ended by itself (not cut off by the average being complete or a deadline).
+    ended: bool,
 }
 
 /// Runs the acquisition thread on `reader` and feeds `averager` until the stream ends, the
@@ -227,6 +239,7 @@ fn feed(
                         stats,
                         dropped_blocks,
                         pushed: read_total,
+                        ended: false,
                     });
                 }
             }
@@ -244,6 +257,7 @@ fn feed(
                     stats,
                     dropped_blocks,
                     pushed: read_total,
+                    ended: true,
                 });
             }
             AcqEvent::Stopped(Some(error)) => return Err(error.into()),
