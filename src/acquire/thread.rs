@@ -114,6 +114,7 @@ fn check_speed(speed: f64) -> Result<()> {
 pub struct Acquisition {
     events: Receiver<AcqEvent>,
     commands: Sender<AcqCommand>,
+    recycle: Sender<Vec<f64>>,
     stop: Arc<AtomicBool>,
     done: Receiver<()>,
     handle: Option<JoinHandle<()>>,
@@ -135,6 +136,7 @@ impl Acquisition {
         options.validate()?;
         let (event_tx, events) = bounded(options.channel_capacity);
         let (commands, command_rx) = bounded(64);
+        let (recycle, recycled) = bounded(options.channel_capacity + 2);
         let (done_tx, done) = bounded::<()>(1);
         let stop = Arc::new(AtomicBool::new(false));
         let sample_rate_hz = reader.sample_rate_hz();
@@ -158,6 +160,7 @@ impl Acquisition {
             last_status: Instant::now(),
             gap: None,
             reconnects: 0,
+            recycled,
         };
         let handle = thread::Builder::new()
             .name("stillpoint-acquire".into())
@@ -169,6 +172,7 @@ impl Acquisition {
         Ok(Self {
             events,
             commands,
+            recycle,
             stop,
             done,
             handle: Some(handle),
@@ -190,6 +194,12 @@ impl Acquisition {
             self.stop.store(true, Ordering::SeqCst);
         }
         self.commands.try_send(command).is_ok()
+    }
+
+    /// Hands a block back once it has been used, so the thread reads the next one into it
+    /// instead of allocating and copying (optional; a full return queue drops it).
+    pub fn recycle(&self, block: Vec<f64>) {
+        let _ = self.recycle.try_send(block);
     }
 
     /// Sample rate of the stream being read.
@@ -285,6 +295,8 @@ struct Worker {
     gap: Option<u64>,
     /// The reader's reconnection counter when last looked at.
     reconnects: u64,
+    /// Blocks the consumer handed back ([`Acquisition::recycle`]).
+    recycled: Receiver<Vec<f64>>,
 }
 
 impl Worker {
@@ -483,7 +495,10 @@ impl Worker {
     /// The main loop; `Ok(())` when the stream ended or shutdown was asked for.
     fn pump(&mut self) -> Result<()> {
         let max = self.options.block_samples;
-        let mut buf = vec![0.0_f64; max];
+        // The block being filled: a recycled one when the consumer hands them back (no
+        // allocation, no copy), else a new one. Its length only grows, so a recycled block
+        // of full length is reused without writing it first.
+        let mut buf: Vec<f64> = Vec::new();
         loop {
             if self.commands(None) == Flow::Stop {
                 return Ok(());
@@ -509,6 +524,14 @@ impl Worker {
                 }
                 _ => max,
             };
+            if buf.capacity() == 0
+                && let Ok(block) = self.recycled.try_recv()
+            {
+                buf = block;
+            }
+            if buf.len() < want {
+                buf.resize(want, 0.0);
+            }
             let Some(dest) = buf.get_mut(..want) else {
                 return Ok(());
             };
@@ -524,7 +547,8 @@ impl Worker {
                 self.count_dropped(n);
                 continue;
             }
-            let block = buf.get(..n).map(<[f64]>::to_vec).unwrap_or_default();
+            let mut block = std::mem::take(&mut buf);
+            block.truncate(n);
             if self.deliver(block) == Flow::Stop {
                 return Ok(());
             }
@@ -686,5 +710,48 @@ mod tests {
             status.dropped_samples - (total - next - trailing)
         );
         assert_eq!(received + status.dropped_samples, total);
+    }
+
+    #[test]
+    fn recycled_blocks_are_read_into_again() {
+        // A buffer handed back must be the one the thread reads into next: hand back an empty
+        // buffer of a capacity the thread never allocates (12 345; blocks are 1000) and look
+        // for it among the following blocks. The samples must still be every count in order.
+        let reader = Counter {
+            next: 0,
+            len: 200_000,
+            fail: false,
+            rate_hz: 1.0,
+            delay: Duration::from_micros(20),
+        };
+        let options = AcqOptions {
+            channel_capacity: 2,
+            block_samples: 1000,
+            ..AcqOptions::headless()
+        };
+        let acq = Acquisition::spawn(Box::new(reader), options, None).unwrap();
+        let (mut next, mut handed_back, mut reused) = (0.0, false, false);
+        loop {
+            match acq.events().recv().unwrap() {
+                AcqEvent::Block(b) => {
+                    for v in &b {
+                        assert_eq!(*v, next);
+                        next += 1.0;
+                    }
+                    reused |= b.capacity() == 12_345;
+                    if !handed_back {
+                        acq.recycle(Vec::with_capacity(12_345));
+                        handed_back = true;
+                    }
+                }
+                AcqEvent::Stopped(e) => {
+                    assert!(e.is_none());
+                    break;
+                }
+                AcqEvent::Status(_) | AcqEvent::Gap { .. } => {}
+            }
+        }
+        assert_eq!(next, 200_000.0);
+        assert!(reused, "the recycled buffer never came back");
     }
 }

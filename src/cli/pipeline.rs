@@ -228,6 +228,7 @@ fn feed(
                 });
                 averager.push(block.get(..take).unwrap_or(&block));
                 read_total += block.len() as u64;
+                acquisition.recycle(block);
                 progress.set(read_total);
                 if averager.is_complete()
                     || cap_total.is_some_and(|c| read_total >= c)

@@ -500,6 +500,9 @@ impl Worker {
                 {
                     self.last_segment_arrival = Some(Instant::now());
                 }
+                if let Some(s) = &self.source {
+                    s.acquisition.recycle(block);
+                }
             }
             AcqEvent::Gap { .. } => {
                 // Samples are missing: the next segment starts after the gap instead of
