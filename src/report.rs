@@ -178,6 +178,14 @@ pub struct QuantumReport {
     pub bath_occupancy: Option<f64>,
     /// Classical thermal peak 4k_BTQ/(mΩ_m³) at the bath temperature, m²/Hz.
     pub thermal_peak_psd_at_bath_m2_per_hz: Option<f64>,
+    /// The effective mass used (`--mass`), kg.
+    pub mass_kg: Option<f64>,
+    /// Its 1σ as given (`--mass-uncertainty`); null: taken as exact.
+    pub mass_kg_uncertainty: Option<f64>,
+    /// The bath temperature used (`--bath-temperature`), K.
+    pub bath_temperature_k: Option<f64>,
+    /// Its 1σ as given (`--bath-temperature-uncertainty`); null: taken as exact.
+    pub bath_temperature_k_uncertainty: Option<f64>,
 }
 
 /// One fitted motional sideband.
@@ -661,6 +669,13 @@ fn fill_quantum(
     options: &AnalysisOptions,
 ) {
     let heterodyne = options.carrier_hz.is_some();
+    // The inputs, so that a saved report says what its quantum numbers assumed.
+    report.quantum.mass_kg = options.mass_kg;
+    report.quantum.mass_kg_uncertainty = options.mass_kg.and(options.mass_uncertainty_kg);
+    report.quantum.bath_temperature_k = options.bath_temperature_k;
+    report.quantum.bath_temperature_k_uncertainty = options
+        .bath_temperature_k
+        .and(options.bath_temperature_uncertainty_k);
     let Some(mass) = options.mass_kg else {
         report
             .notes

@@ -1445,6 +1445,12 @@ fn mass_and_temperature_uncertainties_propagate() {
     );
     assert!(a_err.contains("leaves out the error"), "{a_err}");
     assert!(!b_err.contains("leaves out the error"), "{b_err}");
+    // The report says what it assumed.
+    assert_eq!(num(&b, "quantum.mass_kg"), 2e-12);
+    assert_eq!(num(&b, "quantum.mass_kg_uncertainty"), 2e-13);
+    assert_eq!(num(&b, "quantum.bath_temperature_k"), 295.0);
+    assert_eq!(num(&b, "quantum.bath_temperature_k_uncertainty"), 2.95);
+    assert!(a["quantum"]["mass_kg_uncertainty"].is_null());
     let c = num(&a, "calibration.m_per_v");
     assert_eq!(num(&b, "calibration.m_per_v"), c);
     let rel = |v: &serde_json::Value| num(v, "calibration.m_per_v_uncertainty") / c;
