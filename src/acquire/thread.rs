@@ -136,7 +136,9 @@ impl Acquisition {
         options.validate()?;
         let (event_tx, events) = bounded(options.channel_capacity);
         let (commands, command_rx) = bounded(64);
-        let (recycle, recycled) = bounded(options.channel_capacity + 2);
+        // Two spare blocks are enough for the thread to always find one; more would only
+        // hold memory (at segment 2²⁰ a headless block is 6 MiB).
+        let (recycle, recycled) = bounded(2);
         let (done_tx, done) = bounded::<()>(1);
         let stop = Arc::new(AtomicBool::new(false));
         let sample_rate_hz = reader.sample_rate_hz();
