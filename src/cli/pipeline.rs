@@ -186,12 +186,14 @@ fn stream_into(
 /// lost), no pacing, a few blocks in flight. The averager's workers take groups of segments
 /// across block boundaries, so a block need only be long enough to keep the channel traffic
 /// small: a quarter of what 2 × `threads` segments span (measured on 2²⁵ samples, segment
-/// 65536: the same time as whole spans, 28 instead of 34 MiB peak RSS).
+/// 65536: the same time as whole spans, 28 instead of 34 MiB peak RSS). Eight blocks in the
+/// channel rather than four let the reader run ahead while the workers are busy: 0.12–0.13 s
+/// instead of 0.14–0.16 s (medians of 7, three rounds), for 3 MiB more.
 fn headless_options(segment: usize, hop: usize, threads: usize) -> AcqOptions {
     let wanted = segment.saturating_add(hop.saturating_mul(2 * threads)) / 4;
     AcqOptions {
         block_samples: wanted.clamp(MIN_BLOCK_SAMPLES, MAX_BLOCK_SAMPLES),
-        channel_capacity: 4,
+        channel_capacity: 8,
         ..AcqOptions::headless()
     }
 }
