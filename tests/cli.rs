@@ -1563,6 +1563,11 @@ fn a_source_that_ends_before_k_averages_says_so() {
         stderr.contains("the source ended after 10240 samples: 9 of the 100 averages asked for"),
         "{stderr}"
     );
-    assert_eq!(stderr.lines().count(), 1, "{stderr}");
+    // …and a status line that the live stream closed.
+    assert!(
+        stderr.contains("stillpoint: note: stdin closed after 10240 samples (1.024 s at 10000 Hz)"),
+        "{stderr}"
+    );
+    assert_eq!(stderr.lines().count(), 2, "{stderr}");
     assert_eq!(read_csv(&out).rows.len(), 1025);
 }

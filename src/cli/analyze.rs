@@ -33,6 +33,9 @@ pub fn run(args: &AnalyzeArgs) -> Result<ExitCode> {
             report.warnings.insert(0, warning.clone());
         }
     }
+    for (i, text) in run.notes.iter().enumerate() {
+        report.notes.insert(i, text.clone());
+    }
     let json = serde_json::to_string_pretty(&report).context("cannot encode the report")?;
     output::write_atomically(&args.output, |out| {
         out.write_all(json.as_bytes())?;

@@ -34,6 +34,8 @@ pub struct SpectrumRun {
     pub warnings: Vec<String>,
     /// Human description of the source.
     pub description: String,
+    /// Status lines that are not problems (a live stream that closed).
+    pub notes: Vec<String>,
 }
 
 /// Reads the source described by `source` and `welch` to the end (or to `--averages`
@@ -75,6 +77,16 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
     let stats = fed.stats;
     progress.finish();
     let mut warnings = reader_warnings(&stats, averager.skipped_segments());
+    let mut notes = Vec::new();
+    if fed.ended && source_config.spec.is_live() {
+        notes.push(format!(
+            "{} closed after {} samples ({} s at {} Hz)",
+            source_label(&source_config.spec),
+            stats.samples,
+            format_seconds(stats.samples as f64 / sample_rate_hz),
+            sample_rate_hz
+        ));
+    }
     if let Some(k) = welch_config.max_averages
         && fed.ended
         && averager.segments() < k
@@ -116,6 +128,7 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
         spectrum,
         warnings,
         description,
+        notes,
     })
 }
 
@@ -268,6 +281,16 @@ fn feed(
             AcqEvent::Stopped(Some(error)) => return Err(error.into()),
         }
     }
+}
+
+/// Seconds for a message: 4 decimals below 10 s, 1 above, trailing zeros dropped.
+fn format_seconds(seconds: f64) -> String {
+    let text = if seconds < 10.0 {
+        format!("{seconds:.4}")
+    } else {
+        format!("{seconds:.1}")
+    };
+    text.trim_end_matches('0').trim_end_matches('.').to_string()
 }
 
 /// "record has L samples, shorter than one segment of N".

@@ -10,7 +10,7 @@ use crate::snapshot;
 
 use super::args::{HeterodyneArgs, SpectrumArgs};
 use super::config::{self, CalibrationKind};
-use super::{InputError, output, pipeline, warn};
+use super::{InputError, note, output, pipeline, warn};
 
 /// Runs `stillpoint spectrum`.
 ///
@@ -23,6 +23,9 @@ pub fn run(args: &SpectrumArgs) -> Result<ExitCode> {
     let run = pipeline::compute_spectrum(&args.source, &args.welch)?;
     for warning in &run.warnings {
         warn(warning);
+    }
+    for text in &run.notes {
+        note(text);
     }
     let m_per_v = calibrate(&run.spectrum, kind, &options)?;
     if let Some(c2) = m_per_v.map(|c| c * c)
