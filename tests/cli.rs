@@ -1531,12 +1531,8 @@ fn a_source_that_ends_before_k_averages_says_so() {
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("short.csv");
     // 10 240 f32 samples: 9 segments of 2048 at 50 % overlap.
-    let bytes: Vec<u8> = noise_f32(10_240, 0.5, 3)
-        .iter()
-        .flat_map(|v| v.to_le_bytes())
-        .collect();
-    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_stillpoint"))
-        .args([
+    let output = run_with_stdin(
+        &[
             "spectrum",
             "-",
             "--sample-format",
@@ -1549,16 +1545,11 @@ fn a_source_that_ends_before_k_averages_says_so() {
             "100",
             "-o",
             s(&out),
-        ])
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .unwrap();
-    child.stdin.take().unwrap().write_all(&bytes).unwrap();
-    let output = child.wait_with_output().unwrap();
+        ],
+        &f32_le_bytes(&noise_f32(10_240, 0.5, 3)),
+    );
+    let stderr = stderr(&output);
     assert_success(&output, "short stdin");
-    let stderr = String::from_utf8_lossy(&output.stderr);
     assert!(
         stderr.contains("the source ended after 10240 samples: 9 of the 100 averages asked for"),
         "{stderr}"

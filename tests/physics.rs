@@ -12,6 +12,20 @@ use stillpoint::physics::constants::{BOLTZMANN_J_PER_K, HBAR_J_S};
 use stillpoint::physics::oscillator::{self, Oscillator};
 use stillpoint::physics::{Estimate, calibration, fit, occupancy, quantum, window_stats};
 
+/// Rows of a reference table that has `frequency_hz` and `temperature_k`: (f, T, row).
+fn f_t_rows(c: &serde_json::Value, key: &str) -> Vec<(f64, f64, serde_json::Value)> {
+    c[key]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|row| {
+            let f = row["frequency_hz"].as_f64().unwrap();
+            let t = row["temperature_k"].as_f64().unwrap();
+            (f, t, row.clone())
+        })
+        .collect()
+}
+
 fn checks() -> serde_json::Value {
     let path = concat!(
         env!("CARGO_MANIFEST_DIR"),
@@ -307,10 +321,7 @@ fn t5_area_of_the_oscillator_form() {
 /// (first-order propagation of c² = x_zpf²(2n̄+1)/A with x_zpf² ∝ 1/m; common practice).
 #[test]
 fn equipartition_error_budget() {
-    let c = checks();
-    for row in c["temperature_sensitivity"].as_array().unwrap() {
-        let f = row["frequency_hz"].as_f64().unwrap();
-        let t = row["temperature_k"].as_f64().unwrap();
+    for (f, t, row) in f_t_rows(&checks(), "temperature_sensitivity") {
         close(
             occupancy::variance_temperature_sensitivity(f, t),
             row["dlnvar_dlnT"].as_f64().unwrap(),
@@ -377,10 +388,7 @@ fn equipartition_error_budget() {
 /// Bose–Einstein values and the exact inversion T_eff = ħΩ/(k_B ln(1+1/n̄)).
 #[test]
 fn bose_einstein_round_trip() {
-    let c = checks();
-    for row in c["bose_einstein"].as_array().unwrap() {
-        let f = row["frequency_hz"].as_f64().unwrap();
-        let t = row["temperature_k"].as_f64().unwrap();
+    for (f, t, row) in f_t_rows(&checks(), "bose_einstein") {
         let n = occupancy::bose_einstein(f, t);
         close(n, row["occupancy"].as_f64().unwrap(), 1e-9, "BE");
         close(

@@ -634,56 +634,49 @@ fn parse_number(text: &str) -> Result<f64, String> {
     }
 }
 
-/// A finite number > 0.
-fn parse_positive(text: &str) -> Result<f64, String> {
+/// A finite number that `accept` takes; else the error `RULE, got TEXT`.
+fn parse_where(text: &str, accept: impl Fn(f64) -> bool, rule: &str) -> Result<f64, String> {
     let value = parse_number(text)?;
-    if value > 0.0 {
+    if accept(value) {
         Ok(value)
     } else {
-        Err(format!("must be greater than 0, got {text}"))
+        Err(format!("{rule}, got {text}"))
     }
+}
+
+/// A finite number > 0.
+fn parse_positive(text: &str) -> Result<f64, String> {
+    parse_where(text, |v| v > 0.0, "must be greater than 0")
 }
 
 /// A finite number ≥ 0.
 fn parse_non_negative(text: &str) -> Result<f64, String> {
-    let value = parse_number(text)?;
-    if value >= 0.0 {
-        Ok(value)
-    } else {
-        Err(format!("must be 0 or more, got {text}"))
-    }
+    parse_where(text, |v| v >= 0.0, "must be 0 or more")
 }
 
 /// A finite number ≥ 1.
 fn parse_at_least_one(text: &str) -> Result<f64, String> {
-    let value = parse_number(text)?;
-    if value >= 1.0 {
-        Ok(value)
-    } else {
-        Err(format!("must be at least 1, got {text}"))
-    }
+    parse_where(text, |v| v >= 1.0, "must be at least 1")
 }
 
 /// A finite number ≠ 0 (volts per unit may be negative: an inverting amplifier).
 fn parse_nonzero_finite(text: &str) -> Result<f64, String> {
-    let value = parse_number(text)?;
-    if value != 0.0 {
-        Ok(value)
-    } else {
-        Err("must not be 0".to_string())
-    }
+    parse_number(text).and_then(|v| {
+        if v != 0.0 {
+            Ok(v)
+        } else {
+            Err("must not be 0".to_string())
+        }
+    })
 }
 
 /// An overlap fraction 0 ≤ F < 1.
 fn parse_overlap(text: &str) -> Result<f64, String> {
-    let value = parse_number(text)?;
-    if (0.0..1.0).contains(&value) {
-        Ok(value)
-    } else {
-        Err(format!(
-            "overlap is a fraction with 0 <= F < 1 (0.5 = 50 %), got {text}"
-        ))
-    }
+    parse_where(
+        text,
+        |v| (0.0..1.0).contains(&v),
+        "overlap is a fraction with 0 <= F < 1 (0.5 = 50 %)",
+    )
 }
 
 /// Two positive frequencies `A:B` in Hz.
