@@ -541,8 +541,21 @@ fn validate(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<(), Analys
         && !(f.is_finite() && f > 0.0 && f <= nyquist)
     {
         return Err(AnalysisError::Input(format!(
-            "--tone-freq {f} Hz lies outside the spectrum (0 to {nyquist} Hz)"
+            "--tone-freq {} Hz lies outside the spectrum (0 to {} Hz)",
+            crate::acquire::compact_number(f),
+            crate::acquire::compact_number(nyquist)
         )));
+    }
+    if let Some((red, blue)) = options.imbalance_tones_hz {
+        for f in [red, blue] {
+            if !(f.is_finite() && f > 0.0 && f <= nyquist) {
+                return Err(AnalysisError::Input(format!(
+                    "--imbalance-tones: {} Hz lies outside the spectrum (0 to {} Hz)",
+                    crate::acquire::compact_number(f),
+                    crate::acquire::compact_number(nyquist)
+                )));
+            }
+        }
     }
     if options.tone_frequency_hz.is_some()
         && options.tone_rms_m.is_none()
@@ -572,7 +585,9 @@ fn validate(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<(), Analys
         }
         if !(fc.is_finite() && fc > 0.0 && fc < nyquist) {
             return Err(AnalysisError::Input(format!(
-                "--carrier {fc} Hz lies outside the spectrum (0 to {nyquist} Hz)"
+                "--carrier {} Hz lies outside the spectrum (0 to {} Hz)",
+                crate::acquire::compact_number(fc),
+                crate::acquire::compact_number(nyquist)
             )));
         }
         if options.mode_band_hz.is_none() {

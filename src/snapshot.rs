@@ -697,7 +697,7 @@ fn temp_metadata_candidates(json_path: &Path) -> Vec<PathBuf> {
     else {
         return Vec::new();
     };
-    let prefix = format!(".{name}.");
+    let prefix = temp_prefix(&name);
     let Ok(dir) = fs::read_dir(parent_dir(json_path)) else {
         return Vec::new();
     };
@@ -1013,9 +1013,28 @@ fn parent_dir(path: &Path) -> PathBuf {
     }
 }
 
-/// A unique temporary name beside `target`: `.NAME.PID.COUNTER.NANOS.tmp`. Such files left
-/// in a folder are the remains of an interrupted save and may be deleted
-/// ([`remove_stale_temp_files`]).
+/// Longest target name (bytes) whose temporary name keeps the whole name; longer names are
+/// shortened and hashed so the temporary name stays within the usual 255-byte limit.
+const TEMP_NAME_KEEP: usize = 200;
+
+/// The start of every temporary name for a target called `name`: `.NAME.`, or for names
+/// longer than [`TEMP_NAME_KEEP`] bytes `.SHORTENED~HASH.` (the first 100 bytes of the
+/// name, then its FNV-1a hash), so `.PREFIX.PID.COUNTER.NANOS.tmp` fits in 255 bytes.
+fn temp_prefix(name: &str) -> String {
+    if name.len() <= TEMP_NAME_KEEP {
+        return format!(".{name}.");
+    }
+    let mut cut = 100;
+    while !name.is_char_boundary(cut) {
+        cut -= 1;
+    }
+    let head = name.get(..cut).unwrap_or("");
+    format!(".{head}~{:016x}.", fnv1a64(name.as_bytes()))
+}
+
+/// A unique temporary name beside `target`: `.NAME.PID.COUNTER.NANOS.tmp` (see
+/// [`temp_prefix`] for long names). Such files left in a folder are the remains of an
+/// interrupted save and may be deleted ([`remove_stale_temp_files`]).
 fn temp_path_for(target: &Path) -> PathBuf {
     let name = target
         .file_name()
@@ -1025,9 +1044,75 @@ fn temp_path_for(target: &Path) -> PathBuf {
         .map_or(0, |d| d.subsec_nanos());
     let count = TEMP_COUNTER.fetch_add(1, Ordering::Relaxed);
     parent_dir(target).join(format!(
-        ".{name}.{}.{count}.{nanos}.tmp",
+        "{}{}.{count}.{nanos}.tmp",
+        temp_prefix(&name),
         std::process::id()
     ))
+}
+
+/// Checks that the temporary file of a save of `target` can be created (the folder exists
+/// and is writable, the names fit the file system) by creating and removing one, and that
+/// `target`'s own name is acceptable to the file system.
+///
+/// # Errors
+/// What the file system said (permission denied, read-only, name too long, not a folder).
+pub fn check_can_write(target: &Path) -> io::Result<()> {
+    match fs::symlink_metadata(target) {
+        Ok(_) => {}
+        Err(e) if e.kind() == io::ErrorKind::NotFound => {}
+        Err(e) => return Err(e),
+    }
+    let temp = temp_path_for(target);
+    File::create_new(&temp)?;
+    let _ = fs::remove_file(&temp);
+    Ok(())
+}
+
+/// A temporary file of an earlier save of some target (see [`stale_temp_files`]).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct StaleTemp {
+    /// Its path.
+    pub path: PathBuf,
+    /// The process that wrote it (from its name), if readable.
+    pub pid: Option<u32>,
+    /// Its size in bytes.
+    pub bytes: u64,
+}
+
+/// Temporary files beside `target` left by saves of it (names `PREFIX.PID.….tmp`, see
+/// [`temp_path_for`]), with the process id each name carries. Whether that process still
+/// runs is for the caller to judge.
+///
+/// # Errors
+/// The folder cannot be read.
+pub fn stale_temp_files(target: &Path) -> io::Result<Vec<StaleTemp>> {
+    let Some(name) = target.file_name().map(|n| n.to_string_lossy().into_owned()) else {
+        return Ok(Vec::new());
+    };
+    let prefix = temp_prefix(&name);
+    let mut found = Vec::new();
+    for entry in fs::read_dir(parent_dir(target))? {
+        let entry = entry?;
+        let file_name = entry.file_name().to_string_lossy().into_owned();
+        let Some(rest) = file_name
+            .strip_prefix(&prefix)
+            .and_then(|r| r.strip_suffix(".tmp"))
+        else {
+            continue;
+        };
+        let meta = match entry.metadata() {
+            Ok(m) if m.is_file() => m,
+            _ => continue,
+        };
+        let pid = rest.split('.').next().and_then(|p| p.parse().ok());
+        found.push(StaleTemp {
+            path: entry.path(),
+            pid,
+            bytes: meta.len(),
+        });
+    }
+    found.sort_by(|a, b| a.path.cmp(&b.path));
+    Ok(found)
 }
 
 impl PendingFile {
@@ -1047,6 +1132,14 @@ impl PendingFile {
             target: target.to_path_buf(),
             committed: false,
         };
+        // Replacing a file keeps its permissions (a 0600 result stays private); set before
+        // any byte is written.
+        if let Ok(meta) = fs::metadata(target)
+            && meta.is_file()
+        {
+            file.set_permissions(meta.permissions())
+                .map_err(AtomicError::Io)?;
+        }
         let mut writer = BufWriter::new(file);
         write(&mut writer).map_err(AtomicError::Inner)?;
         writer.flush().map_err(AtomicError::Io)?;
@@ -1157,7 +1250,7 @@ pub fn remove_stale_temp_files(target: &Path) -> io::Result<usize> {
     let Some(name) = target.file_name().map(|n| n.to_string_lossy().into_owned()) else {
         return Ok(0);
     };
-    let prefix = format!(".{name}.");
+    let prefix = temp_prefix(&name);
     let mut removed = 0;
     for entry in fs::read_dir(parent_dir(target))? {
         let entry = entry?;

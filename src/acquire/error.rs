@@ -38,6 +38,15 @@ pub enum AcquireError {
         /// What the operating system said.
         source: io::Error,
     },
+    /// An open TCP connection failed before any sample arrived (reset by the peer, timed
+    /// out by keepalive).
+    #[error("the connection to tcp://{address} was lost before any sample arrived: {source}")]
+    Lost {
+        /// `HOST:PORT` as given.
+        address: String,
+        /// What the operating system said.
+        source: io::Error,
+    },
     /// The acquisition thread could not be started.
     #[error("cannot start the acquisition thread: {0}")]
     Thread(io::Error),

@@ -9,6 +9,11 @@
 //! every read) and is not behind what was read, reading stops there, so chunks a recorder
 //! appends after the data are not taken for samples. A replacement WAV must have the same
 //! encoding, channels and rate.
+//!
+//! A file truncated and rewritten past the read position within one poll keeps its inode
+//! and does not look shorter: the first [`HEAD_BYTES`] bytes of its data are therefore kept
+//! and compared at every poll at the end of the data; if they changed, the file was
+//! rewritten and is reopened like a truncated one.
 
 use std::fs::{self, File};
 use std::io::{self, Read, Seek, SeekFrom};
@@ -23,6 +28,10 @@ use super::{AcquireError, ReaderStats, Result, SampleReader};
 
 /// How often a followed file is polled for new bytes.
 pub const POLL_INTERVAL: Duration = Duration::from_millis(50);
+
+/// Bytes at the start of the data (after a WAV header) compared at every poll to notice a
+/// file rewritten in place.
+pub const HEAD_BYTES: usize = 64;
 
 /// How long opening a followed WAV waits for a header that is still being written.
 const HEADER_WAIT: Duration = Duration::from_secs(2);
@@ -57,6 +66,11 @@ struct FollowSource {
     /// WAV: end of the data once the recorder has written a real data size (then chunks
     /// appended after the data are not read as samples).
     data_end: Option<u64>,
+    /// The first bytes of the current file's data as read (up to [`HEAD_BYTES`]).
+    head: Vec<u8>,
+    /// The last read found no new bytes: before reading again, check that the file was not
+    /// truncated, rewritten or replaced meanwhile.
+    at_end: bool,
 }
 
 fn open_error(path: &Path, source: io::Error) -> AcquireError {
@@ -79,7 +93,44 @@ impl FollowSource {
             needs_header: wav,
             data_offset: 0,
             data_end: None,
+            head: Vec::new(),
+            at_end: false,
         })
+    }
+
+    /// Keeps the bytes just read at `start` if they belong to the first [`HEAD_BYTES`] of
+    /// the data.
+    fn remember_head(&mut self, start: u64, bytes: &[u8]) {
+        let offset = start.saturating_sub(self.data_offset);
+        if start < self.data_offset || offset != self.head.len() as u64 {
+            return;
+        }
+        let room = HEAD_BYTES - self.head.len().min(HEAD_BYTES);
+        self.head
+            .extend_from_slice(bytes.get(..room.min(bytes.len())).unwrap_or(&[]));
+    }
+
+    /// True if the first data bytes on disk differ from those read (the file was rewritten
+    /// in place). Restores the read position.
+    fn head_changed(&mut self) -> Result<bool> {
+        if self.head.is_empty() {
+            return Ok(false);
+        }
+        let mut now = vec![0_u8; self.head.len()];
+        self.file.seek(SeekFrom::Start(self.data_offset))?;
+        let got = self.file.read_exact(&mut now);
+        self.file.seek(SeekFrom::Start(self.pos))?;
+        Ok(got.is_err() || now != self.head)
+    }
+
+    /// Starts over at the beginning of the (same or new) current file.
+    fn restart_current(&mut self) -> Result<()> {
+        self.file.seek(SeekFrom::Start(0))?;
+        self.pos = 0;
+        self.data_offset = 0;
+        self.head.clear();
+        self.needs_header = self.wav.is_some();
+        Ok(())
     }
 
     /// Parses the WAV header of the current file if it is complete. `Ok(None)`: not yet.
@@ -105,17 +156,31 @@ impl FollowSource {
             return Ok(false);
         };
         if let Some(first) = self.wav {
-            let same = first.format == header.format
-                && first.channels == header.channels
-                && first.sample_rate_hz == header.sample_rate_hz;
-            if !same {
+            let mut differs = Vec::new();
+            if first.format != header.format || first.valid_bits != header.valid_bits {
+                differs.push(format!(
+                    "{} samples instead of {}",
+                    header.encoding_name(),
+                    first.encoding_name()
+                ));
+            }
+            if first.channels != header.channels {
+                differs.push(format!(
+                    "{} channels instead of {}",
+                    header.channels, first.channels
+                ));
+            }
+            if first.sample_rate_hz != header.sample_rate_hz {
+                differs.push(format!(
+                    "{} Hz instead of {} Hz",
+                    header.sample_rate_hz, first.sample_rate_hz
+                ));
+            }
+            if !differs.is_empty() {
                 return Err(AcquireError::Wav(format!(
-                    "the followed file {} was replaced by one with a different format ({} ch, {} Hz instead of {} ch, {} Hz)",
+                    "the followed file {} was replaced by one with a different format ({})",
                     self.path.display(),
-                    header.channels,
-                    header.sample_rate_hz,
-                    first.channels,
-                    first.sample_rate_hz
+                    differs.join(", ")
                 )));
             }
         }
@@ -149,10 +214,8 @@ impl FollowSource {
     /// Returns true if the stream restarted.
     fn check_replaced(&mut self) -> Result<bool> {
         let open_len = self.file.metadata()?.len();
-        if open_len < self.pos {
-            self.file.seek(SeekFrom::Start(0))?;
-            self.pos = 0;
-            self.needs_header = self.wav.is_some();
+        if open_len < self.pos || self.head_changed()? {
+            self.restart_current()?;
             return Ok(true);
         }
         let Ok(meta) = fs::metadata(&self.path) else {
@@ -165,8 +228,7 @@ impl FollowSource {
             };
             self.id = identity(&file.metadata()?);
             self.file = file;
-            self.pos = 0;
-            self.needs_header = self.wav.is_some();
+            self.restart_current()?;
             return Ok(true);
         }
         Ok(false)
@@ -197,6 +259,11 @@ impl ByteSource for FollowSource {
                 }
                 continue;
             }
+            // New bytes after a wait may belong to a rewritten or replaced file: look first.
+            if self.at_end && self.check_replaced()? {
+                self.at_end = false;
+                return Ok(Fill::Restarted);
+            }
             // A recorder may have finalised the header since the last look.
             self.refresh_data_end()?;
             let allowed = self
@@ -212,15 +279,22 @@ impl ByteSource for FollowSource {
             match read {
                 Ok(0) => {}
                 Ok(n) => {
+                    let start = self.pos;
+                    if let Some(bytes) = buf.get(..n) {
+                        self.remember_head(start, bytes);
+                    }
                     self.pos += n as u64;
+                    self.at_end = false;
                     return Ok(Fill::Bytes(n));
                 }
                 Err(e) if e.kind() == io::ErrorKind::Interrupted => continue,
                 Err(e) => return Err(e.into()),
             }
             if self.check_replaced()? {
+                self.at_end = false;
                 return Ok(Fill::Restarted);
             }
+            self.at_end = true;
             if !wait(deadline) {
                 return Ok(Fill::Idle);
             }

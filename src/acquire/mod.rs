@@ -246,6 +246,10 @@ pub struct ReaderStats {
     pub truncated: bool,
     /// Times a live source reconnected or a followed file was reopened.
     pub reconnects: u64,
+    /// A TCP source ended because the peer reset (or the network dropped) the connection
+    /// after samples had arrived; they were kept, like at a normal close.
+    #[serde(default)]
+    pub connection_reset: bool,
 }
 
 /// A pull reader of one channel's samples in volts.
@@ -331,13 +335,36 @@ pub fn open(config: &SourceConfig) -> Result<Box<dyn SampleReader>> {
     })
 }
 
-/// A rate option must be a positive finite number of hertz.
+/// Lowest sample rate accepted: below it the spectrum's 1/rate scaling leaves the range of
+/// f64 arithmetic for ordinary signals.
+pub const MIN_RATE_HZ: f64 = 1e-9;
+/// Highest sample rate accepted.
+pub const MAX_RATE_HZ: f64 = 1e15;
+
+/// A rate option must be a positive finite number of hertz in a range f64 arithmetic handles.
 fn check_rate(rate_hz: Option<f64>) -> Result<()> {
     match rate_hz {
         Some(r) if !(r.is_finite() && r > 0.0) => Err(AcquireError::Config(format!(
-            "--rate must be a positive number of samples per second, got {r}"
+            "--rate must be a positive number of samples per second, got {}",
+            compact_number(r)
+        ))),
+        Some(r) if !(MIN_RATE_HZ..=MAX_RATE_HZ).contains(&r) => Err(AcquireError::Config(format!(
+            "--rate {} Hz is outside the {MIN_RATE_HZ:e} to {MAX_RATE_HZ:e} Hz this program \
+                 handles (the spectrum scales with 1/rate)",
+            compact_number(r)
         ))),
         _ => Ok(()),
+    }
+}
+
+/// A number for a message: plain when moderate, `1.234568e300` style when very large or
+/// very small, so no message carries hundreds of digits.
+pub fn compact_number(value: f64) -> String {
+    let magnitude = value.abs();
+    if value == 0.0 || !value.is_finite() || (1e-4..1e9).contains(&magnitude) {
+        format!("{value}")
+    } else {
+        format!("{value:.6e}")
     }
 }
 
@@ -347,7 +374,8 @@ fn check_volts_per_unit(volts_per_unit: f64) -> Result<()> {
         Ok(())
     } else {
         Err(AcquireError::Config(format!(
-            "--volts-per-unit must be a finite, non-zero number, got {volts_per_unit}"
+            "--volts-per-unit must be a finite, non-zero number, got {}",
+            compact_number(volts_per_unit)
         )))
     }
 }

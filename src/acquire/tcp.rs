@@ -1,7 +1,11 @@
 //! Raw samples from a TCP server (`tcp://HOST:PORT`): the digitiser (or a relay) listens and
 //! we connect and read the byte stream; frames split across reads are joined.
 //!
-//! Without reconnection (headless use) a peer that closes the connection ends the stream.
+//! Without reconnection (headless use) a peer that closes the connection ends the stream;
+//! so does a reset (or a keepalive timeout) once bytes have arrived, counted in
+//! [`ReaderStats::connection_reset`](super::ReaderStats::connection_reset) so the caller can
+//! warn; before any byte it is an [`AcquireError::Lost`]. TCP keepalive is on (probes after
+//! [`KEEPALIVE_IDLE`] of silence), so a peer that vanished without closing is noticed.
 //! With reconnection (the window) a lost connection is retried with a growing back-off
 //! ([`FIRST_BACKOFF`] doubling to [`MAX_BACKOFF`]), each successful reconnection is counted
 //! in [`ReaderStats::reconnects`](super::ReaderStats::reconnects), and the partial frame held
@@ -9,6 +13,8 @@
 
 use std::io::{self, Read};
 use std::net::{SocketAddr, TcpStream, ToSocketAddrs};
+use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::thread;
 use std::time::{Duration, Instant};
 
@@ -24,6 +30,27 @@ const READ_SLICE: Duration = Duration::from_millis(50);
 pub const FIRST_BACKOFF: Duration = Duration::from_millis(100);
 /// Longest wait between reconnection attempts.
 pub const MAX_BACKOFF: Duration = Duration::from_secs(2);
+/// Silence after which TCP keepalive probes start (then every 5 s on Linux and macOS, as
+/// many probes as the system's default before the connection is declared dead).
+pub const KEEPALIVE_IDLE: Duration = Duration::from_secs(10);
+
+/// Turns TCP keepalive on (best effort: a platform that refuses it only loses the probes).
+fn set_keepalive(stream: &TcpStream) {
+    let keepalive = socket2::TcpKeepalive::new().with_time(KEEPALIVE_IDLE);
+    #[cfg(any(target_os = "linux", target_os = "macos"))]
+    let keepalive = keepalive.with_interval(Duration::from_secs(5));
+    let _ = socket2::SockRef::from(stream).set_tcp_keepalive(&keepalive);
+}
+
+/// True for read errors that mean the connection is gone (reset, aborted, keepalive timeout).
+/// On Unix a read timeout is `WouldBlock`, so `TimedOut` there is a keepalive failure.
+fn is_lost(kind: io::ErrorKind) -> bool {
+    use io::ErrorKind as K;
+    matches!(
+        kind,
+        K::ConnectionReset | K::ConnectionAborted | K::BrokenPipe | K::NotConnected
+    ) || (cfg!(unix) && kind == K::TimedOut)
+}
 
 fn connect(address: &str) -> Result<TcpStream> {
     let error = |source: io::Error| AcquireError::Connect {
@@ -41,6 +68,7 @@ fn connect(address: &str) -> Result<TcpStream> {
                 stream.set_read_timeout(Some(READ_SLICE)).map_err(error)?;
                 // Best effort: latency matters more than throughput for small blocks.
                 let _ = stream.set_nodelay(true);
+                set_keepalive(&stream);
                 return Ok(stream);
             }
             Err(e) => last = e,
@@ -55,6 +83,10 @@ struct TcpSource {
     reconnect: bool,
     backoff: Duration,
     next_attempt: Instant,
+    /// Bytes received over all connections.
+    received: u64,
+    /// Set when the stream ended by a reset after data (shared with the reader's stats).
+    reset: Arc<AtomicBool>,
 }
 
 impl TcpSource {
@@ -103,7 +135,20 @@ impl ByteSource for TcpSource {
                     }
                     self.lost();
                 }
-                Ok(n) => return Ok(Fill::Bytes(n)),
+                Ok(n) => {
+                    self.received += n as u64;
+                    return Ok(Fill::Bytes(n));
+                }
+                Err(e) if !self.reconnect && is_lost(e.kind()) => {
+                    if self.received == 0 {
+                        return Err(AcquireError::Lost {
+                            address: self.address.clone(),
+                            source: e,
+                        });
+                    }
+                    self.reset.store(true, Ordering::SeqCst);
+                    return Ok(Fill::End { truncated: false });
+                }
                 Err(e)
                     if matches!(
                         e.kind(),
@@ -117,10 +162,13 @@ impl ByteSource for TcpSource {
                 Err(e) if e.kind() == io::ErrorKind::Interrupted => {}
                 Err(e) => {
                     if !self.reconnect {
-                        return Err(AcquireError::Connect {
-                            address: self.address.clone(),
-                            source: e,
-                        });
+                        return Err(AcquireError::Io(io::Error::new(
+                            e.kind(),
+                            format!(
+                                "reading from tcp://{} after {} bytes failed: {e}",
+                                self.address, self.received
+                            ),
+                        )));
                     }
                     self.lost();
                 }
@@ -134,6 +182,7 @@ pub struct TcpReader {
     frames: FrameReader,
     format: RawFormat,
     description: String,
+    reset: Arc<AtomicBool>,
 }
 
 impl TcpReader {
@@ -147,18 +196,22 @@ impl TcpReader {
     pub fn connect(address: &str, format: RawFormat, reconnect: bool) -> Result<Self> {
         format.validate()?;
         let stream = connect(address)?;
+        let reset = Arc::new(AtomicBool::new(false));
         let source = TcpSource {
             address: address.to_string(),
             stream: Some(stream),
             reconnect,
             backoff: FIRST_BACKOFF,
             next_attempt: Instant::now(),
+            received: 0,
+            reset: Arc::clone(&reset),
         };
         let mode = if reconnect { ", reconnecting" } else { "" };
         Ok(Self {
             frames: FrameReader::new(Box::new(source), format.layout()),
             format,
             description: format!("tcp://{address}{mode}, raw {}", format.describe()),
+            reset,
         })
     }
 }
@@ -181,7 +234,10 @@ impl SampleReader for TcpReader {
     }
 
     fn stats(&self) -> ReaderStats {
-        self.frames.stats
+        ReaderStats {
+            connection_reset: self.reset.load(Ordering::SeqCst),
+            ..self.frames.stats
+        }
     }
 
     fn describe(&self) -> String {

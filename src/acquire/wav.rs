@@ -62,7 +62,7 @@ impl WavHeader {
     }
 
     /// "16-bit int", "64-bit float", "24-bit int in 32".
-    fn encoding_name(&self) -> String {
+    pub(crate) fn encoding_name(&self) -> String {
         let container_bits = self.format.bytes() * 8;
         match self.format {
             SampleFormat::F32 | SampleFormat::F64 => format!("{container_bits}-bit float"),
@@ -168,6 +168,9 @@ fn parse_fmt(fmt: &[u8]) -> std::result::Result<(SampleFormat, u16, u16, u32), H
         return Err(HeaderError::Bad(
             "the header says the sample rate is 0 Hz".into(),
         ));
+    }
+    if bits == 0 {
+        return Err(HeaderError::Bad("the header says 0 bits per sample".into()));
     }
     const PCM: u16 = 0x0001;
     const IEEE_FLOAT: u16 = 0x0003;

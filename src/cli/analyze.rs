@@ -25,7 +25,7 @@ pub fn run(args: &AnalyzeArgs) -> Result<ExitCode> {
     if let Some(path) = &args.reference {
         options.reference_peaks_hz.extend(reference_peaks(path)?);
     }
-    output::check_output_path(&args.output)?;
+    output::check_output_for(&args.output, &args.source.source)?;
     let run = pipeline::compute_spectrum(&args.source, &args.welch)?;
     let mut report = report::analyze(&run.spectrum, &options)?;
     for warning in run.warnings.iter().rev() {
@@ -58,9 +58,32 @@ pub fn run(args: &AnalyzeArgs) -> Result<ExitCode> {
     Ok(ExitCode::SUCCESS)
 }
 
+/// Largest reference report read (an analyze report is a few KiB; 64 MiB holds a
+/// million peaks).
+const REFERENCE_MAX_BYTES: u64 = 64 << 20;
+
+/// Reads at most `limit` bytes of `path` as text; a longer file is refused without reading
+/// it whole.
+fn read_bounded(path: &Path, limit: u64) -> Result<String> {
+    use std::io::Read;
+    let file = fs::File::open(path)?;
+    let mut text = String::new();
+    file.take(limit + 1).read_to_string(&mut text)?;
+    if text.len() as u64 > limit {
+        return Err(InputError(format!(
+            "the reference {} is larger than {} MiB; an analyze report is a few KiB (is it \
+             the right file?)",
+            path.display(),
+            limit >> 20
+        ))
+        .into());
+    }
+    Ok(text)
+}
+
 /// Peak frequencies of an earlier `analyze` report (`peaks[].frequency_hz`).
 fn reference_peaks(path: &Path) -> Result<Vec<f64>> {
-    let text = fs::read_to_string(path)
+    let text = read_bounded(path, REFERENCE_MAX_BYTES)
         .with_context(|| format!("cannot read the reference report {}", path.display()))?;
     let value: serde_json::Value = serde_json::from_str(&text)
         .map_err(|e| InputError(format!("the reference {} is not JSON: {e}", path.display())))?;

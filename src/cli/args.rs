@@ -273,6 +273,12 @@ pub struct SourceArgs {
     /// then need --averages to know when to stop.
     #[arg(long)]
     pub follow: bool,
+
+    /// Live sources (stdin, TCP, a pipe, --follow): give up after this many seconds without
+    /// a sample and write what was averaged so far (0: wait forever). A stall is reported on
+    /// stderr every 10 s before that.
+    #[arg(long, default_value_t = 60.0, value_name = "SECS", value_parser = parse_non_negative)]
+    pub stall_timeout: f64,
 }
 
 /// Welch averager options.

@@ -11,6 +11,7 @@ pub mod args;
 mod bench;
 mod bench_live;
 pub mod config;
+pub mod interrupt;
 mod monitor;
 mod output;
 mod pipeline;
@@ -125,6 +126,9 @@ fn is_broken_pipe(err: &anyhow::Error) -> bool {
 /// 2 for errors of the user's options or input, 1 for runtime failures.
 fn exit_status(err: &anyhow::Error) -> u8 {
     for cause in err.chain() {
+        if let Some(stop) = cause.downcast_ref::<interrupt::Interrupted>() {
+            return stop.status();
+        }
         if cause.is::<InputError>() || cause.is::<DspError>() || cause.is::<AnalysisError>() {
             return 2;
         }

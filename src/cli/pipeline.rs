@@ -10,13 +10,13 @@ use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 
 use crate::acquire::{
     self, AcqEvent, AcqOptions, AcquireError, Acquisition, ReaderStats, SourceConfig, SourceSpec,
-    WavReader,
+    WavReader, compact_number,
 };
 use crate::dsp::{Averaging, MEDIAN_MEMORY_LIMIT_BYTES, Spectrum, Welch};
 
-use super::InputError;
 use super::args::{SourceArgs, WelchArgs};
-use super::config;
+use super::interrupt::{self, Interrupted};
+use super::{InputError, config, note, warn};
 
 /// Fewest samples per block read from the source.
 const MIN_BLOCK_SAMPLES: usize = 1 << 16;
@@ -24,6 +24,13 @@ const MIN_BLOCK_SAMPLES: usize = 1 << 16;
 /// blocks only hold memory: at segment 2²⁰, blocks of 6 MiB raised the peak RSS from 135 to
 /// 154–163 MiB once the thread kept its blocks for reuse.
 const MAX_BLOCK_SAMPLES: usize = 1 << 18;
+/// How often the consumer looks at the stop flag and the stall clock while waiting.
+const POLL: Duration = Duration::from_millis(100);
+/// A stalled live source is reported this often (the first time after this long, or after
+/// half the stall timeout if that is shorter).
+const STALL_REPORT_EVERY: Duration = Duration::from_secs(10);
+/// Working memory above which a run is announced with its estimate (bytes).
+const MEMORY_WARN_BYTES: f64 = 2.0 * (1u64 << 30) as f64;
 
 /// A finished spectrum and what happened on the way.
 #[derive(Debug)]
@@ -41,9 +48,15 @@ pub struct SpectrumRun {
 /// Reads the source described by `source` and `welch` to the end (or to `--averages`
 /// segments) and returns the averaged spectrum.
 ///
+/// Live sources (stdin, TCP, a FIFO or other non-regular file, `--follow`) are watched: a
+/// stall is reported every 10 s, and after `--stall-timeout` seconds without a sample the
+/// run gives up and returns the average it has (with a warning). SIGINT/SIGTERM (see
+/// [`super::interrupt`]) do the same for a live source; for a recording they end the run
+/// with [`Interrupted`].
+///
 /// # Errors
 /// Bad source options, unreadable source, too little data for one segment, no usable
-/// segment, a non-finite spectrum.
+/// segment, a non-finite spectrum, an interruption before one segment was averaged.
 pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<SpectrumRun> {
     let source_config = config::source_config(source)?;
     if source_config.follow && welch.averages.is_none() {
@@ -53,6 +66,17 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
         )
         .into());
     }
+    let stream_path = is_stream_path(&source_config.spec);
+    if stream_path && source_config.spec.is_wav() && !source_config.follow {
+        return Err(InputError(format!(
+            "{} is a pipe, not a file: a WAV header needs a seekable file; save the WAV first \
+             or send raw samples (--sample-format, --rate)",
+            source_label(&source_config.spec)
+        ))
+        .into());
+    }
+    let live = source_config.spec.is_live() || source_config.follow || stream_path;
+    interrupt::install();
     let reader = acquire::open(&source_config).map_err(|e| match e {
         // These already name the path or address.
         AcquireError::Open { .. } | AcquireError::Connect { .. } => anyhow::Error::from(e),
@@ -60,7 +84,11 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
             .context(format!("cannot read {}", source_label(&source_config.spec))),
     })?;
     let sample_rate_hz = reader.sample_rate_hz();
-    let record_samples = known_length(&source_config);
+    let record_samples = if stream_path {
+        None
+    } else {
+        known_length(&source_config)
+    };
     let welch_config = config::welch_config(welch, sample_rate_hz, record_samples)?;
     if let Some(len) = record_samples
         && len < welch_config.segment as u64
@@ -69,30 +97,94 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
         return Err(too_short(len, welch_config.segment).into());
     }
     let threads = config::worker_threads();
+    check_memory(&welch_config, threads)?;
     let mut averager = Welch::new(welch_config.clone())?.with_threads(threads);
     let progress = Progress::new(record_samples);
     let description = reader.describe();
-    let fed = stream_into(reader, &mut averager, &progress, None)
-        .with_context(|| format!("while reading {}", source_label(&source_config.spec)))?;
+    let label = source_label(&source_config.spec);
+    let guard = Guard {
+        live,
+        label: label.clone(),
+        stall_timeout: (source.stall_timeout > 0.0)
+            .then(|| Duration::try_from_secs_f64(source.stall_timeout).ok())
+            .flatten(),
+        follow: source_config.follow,
+    };
+    let fed = stream_into(reader, &mut averager, &progress, None, &guard)
+        .with_context(|| format!("while reading {label}"))?;
     let stats = fed.stats;
     progress.finish();
     let mut warnings = reader_warnings(&stats, averager.skipped_segments());
     let mut notes = Vec::new();
-    if fed.ended && source_config.spec.is_live() {
-        notes.push(format!(
-            "{} closed after {} samples ({} s at {} Hz)",
-            source_label(&source_config.spec),
-            stats.samples,
-            format_seconds(stats.samples as f64 / sample_rate_hz),
-            sample_rate_hz
+    if stats.connection_reset {
+        warnings.push(format!(
+            "{label} reset the connection after {} samples; kept what had arrived",
+            stats.samples
         ));
     }
+    if fed.ended && live {
+        notes.push(format!(
+            "{label} closed after {} samples ({} s at {} Hz)",
+            stats.samples,
+            format_seconds(stats.samples as f64 / sample_rate_hz),
+            compact_number(sample_rate_hz)
+        ));
+    }
+    match fed.stop {
+        Some(Stop::Signal(signal)) if !live => {
+            return Err(Interrupted {
+                signal,
+                what: format!("while reading {label} ({} samples read)", stats.samples),
+            }
+            .into());
+        }
+        Some(Stop::Signal(signal)) => {
+            if averager.segments() == 0 {
+                return Err(Interrupted {
+                    signal,
+                    what: format!(
+                        "after {} samples of {label}, fewer than one segment of {}",
+                        stats.samples, welch_config.segment
+                    ),
+                }
+                .into());
+            }
+            notes.push(format!(
+                "stopped by {signal} after {} samples of {label}: writing the average of the \
+                 {} segment{} complete",
+                stats.samples,
+                averager.segments(),
+                plural(averager.segments())
+            ));
+        }
+        Some(Stop::Stalled(waited)) => {
+            let why = format!(
+                "no sample from {label} for {:.1} s (--stall-timeout): gave up after {} samples",
+                waited.as_secs_f64(),
+                stats.samples
+            );
+            if averager.segments() == 0 {
+                return Err(InputError(format!(
+                    "{why}, fewer than one segment of {}; nothing was written",
+                    welch_config.segment
+                ))
+                .into());
+            }
+            warnings.push(format!(
+                "{why}; writing the average of the {} segment{} complete",
+                averager.segments(),
+                plural(averager.segments())
+            ));
+        }
+        None => {}
+    }
     if let Some(k) = welch_config.max_averages
-        && fed.ended
+        && (fed.ended || fed.stop.is_some())
         && averager.segments() < k
     {
         warnings.push(format!(
-            "the source ended after {} samples: {} of the {k} averages asked for",
+            "the source {} after {} samples: {} of the {k} averages asked for",
+            if fed.ended { "ended" } else { "was stopped" },
             stats.samples,
             averager.segments()
         ));
@@ -109,9 +201,17 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
         if stats.samples < welch_config.segment as u64 {
             return Err(too_short(stats.samples, welch_config.segment).into());
         }
+        if stats.non_finite_samples == 0 {
+            return Err(InputError(format!(
+                "no usable segment: the periodograms of all {} segments overflowed (the \
+                 samples are finite but too large, beyond ~1e140 V; check --volts-per-unit)",
+                averager.skipped_segments()
+            ))
+            .into());
+        }
         return Err(InputError(format!(
-            "no usable segment: all {} segments held non-finite samples ({} NaN/Inf samples \
-             in the record)",
+            "no usable segment: all {} segments held non-finite samples or overflowed ({} \
+             NaN/Inf samples in the record)",
             averager.skipped_segments(),
             stats.non_finite_samples
         ))
@@ -119,8 +219,8 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
     };
     if let Some(k) = spectrum.psd_v2_per_hz.iter().position(|p| !p.is_finite()) {
         return Err(InputError(format!(
-            "the spectrum is not finite at {} Hz (overflow: check --volts-per-unit)",
-            spectrum.frequency_hz(k)
+            "the spectrum is not finite at {} Hz (overflow: check --volts-per-unit and --rate)",
+            compact_number(spectrum.frequency_hz(k))
         ))
         .into());
     }
@@ -130,6 +230,91 @@ pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<Spectr
         description,
         notes,
     })
+}
+
+/// "" for 1, "s" otherwise.
+fn plural(n: usize) -> &'static str {
+    if n == 1 { "" } else { "s" }
+}
+
+/// True for a path that names an existing non-regular, non-folder file: a FIFO (`mkfifo`,
+/// a shell's `<(…)`), a character device, a socket. Such inputs are read as streams.
+fn is_stream_path(spec: &SourceSpec) -> bool {
+    let SourceSpec::Path(path) = spec else {
+        return false;
+    };
+    std::fs::metadata(path).is_ok_and(|m| !m.is_file() && !m.is_dir())
+}
+
+/// Refuses settings whose working memory cannot be had, and announces large ones, before
+/// any sample is read: a median over `--averages K` keeps K periodograms (refused above the
+/// averager's own cap for medians), and the averager's buffers grow with the segment.
+fn check_memory(welch: &crate::dsp::WelchConfig, threads: usize) -> Result<()> {
+    let bins = (welch.segment / 2 + 1) as f64;
+    if matches!(welch.averaging, Averaging::Median)
+        && let Some(k) = welch.max_averages
+    {
+        let bytes = k as f64 * bins * 8.0;
+        if bytes > MEDIAN_MEMORY_LIMIT_BYTES as f64 {
+            let most = (MEDIAN_MEMORY_LIMIT_BYTES as f64 / (bins * 8.0))
+                .floor()
+                .max(1.0);
+            return Err(InputError(format!(
+                "a median of --averages {k} segments keeps {k} periodograms of {} bins: {}, \
+                 more than the {} MiB allowed; give --averages {most} or fewer at this \
+                 --segment, or --averaging mean",
+                bins,
+                super::output::format_bytes(bytes as u64),
+                MEDIAN_MEMORY_LIMIT_BYTES >> 20
+            ))
+            .into());
+        }
+    }
+    let need = estimated_memory_bytes(welch.segment, threads);
+    if let Some(total) = physical_memory_bytes()
+        && need > total as f64
+    {
+        return Err(InputError(format!(
+            "--segment {} needs about {} of working memory, more than this machine's {}; \
+             give a smaller --segment",
+            welch.segment,
+            super::output::format_bytes(need as u64),
+            super::output::format_bytes(total)
+        ))
+        .into());
+    }
+    if need > MEMORY_WARN_BYTES {
+        warn(&format!(
+            "--segment {} needs about {} of working memory",
+            welch.segment,
+            super::output::format_bytes(need as u64)
+        ));
+    }
+    Ok(())
+}
+
+/// Peak working memory of a headless run at `segment` with `threads` workers, in bytes: the
+/// blocks in flight, the pending samples and the workers' FFT buffers all scale with the
+/// segment. The factor was measured (peak RSS with `/usr/bin/time -v`, DEVELOPERS.md).
+pub(crate) fn estimated_memory_bytes(segment: usize, threads: usize) -> f64 {
+    let per_sample = MEMORY_BYTES_PER_SAMPLE_BASE + MEMORY_BYTES_PER_SAMPLE_THREAD * threads as f64;
+    segment as f64 * per_sample
+}
+
+// Measured (dev build, 2 workers, 2²⁴-sample f32 file): peak RSS 146 MiB at segment 2²⁰,
+// 468 MiB at 2²², 916 MiB at 2²³, i.e. ≈ 112 bytes per segment sample; 80 + 24 × threads
+// (128 at 2 workers) keeps the estimate on the safe side.
+/// Measured bytes of peak RSS per segment sample, fixed part (see [`estimated_memory_bytes`]).
+const MEMORY_BYTES_PER_SAMPLE_BASE: f64 = 80.0;
+/// Measured bytes of peak RSS per segment sample and worker thread.
+const MEMORY_BYTES_PER_SAMPLE_THREAD: f64 = 24.0;
+
+/// Physical memory of the machine (Linux `/proc/meminfo` MemTotal), if known.
+fn physical_memory_bytes() -> Option<u64> {
+    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
+    let line = text.lines().find(|l| l.starts_with("MemTotal:"))?;
+    let kib: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
+    kib.checked_mul(1024)
 }
 
 /// What [`average_stream`] measured.
@@ -157,12 +342,39 @@ pub(crate) fn average_stream(
 ) -> Result<Streamed> {
     let mut averager = Welch::new(welch.clone())?.with_threads(threads);
     let deadline = stop_after.map(|d| Instant::now() + d);
-    let fed = stream_into(reader, &mut averager, &Progress::hidden(), deadline)?;
+    let guard = Guard {
+        live: false,
+        label: String::new(),
+        stall_timeout: None,
+        follow: false,
+    };
+    let fed = stream_into(reader, &mut averager, &Progress::hidden(), deadline, &guard)?;
     Ok(Streamed {
         samples_averaged: fed.pushed,
         segments: averager.segments(),
         dropped_blocks: fed.dropped_blocks,
     })
+}
+
+/// How the consumer watches a live source.
+struct Guard {
+    /// The source delivers in real time (stall watch and stop on a signal apply).
+    live: bool,
+    /// The source as named in messages.
+    label: String,
+    /// Give up after this long without a sample (`None`: wait forever).
+    stall_timeout: Option<Duration>,
+    /// A followed file: every reopening is reported.
+    follow: bool,
+}
+
+/// Why a run stopped before its source ended or its average was complete.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Stop {
+    /// SIGINT or SIGTERM.
+    Signal(&'static str),
+    /// No sample for this long (`--stall-timeout`).
+    Stalled(Duration),
 }
 
 /// What [`feed`] saw.
@@ -175,21 +387,24 @@ struct Fed {
     pushed: u64,
     /// The source ended by itself (not cut off by the average being complete or a deadline).
     ended: bool,
+    /// The run was stopped (signal, stall).
+    stop: Option<Stop>,
 }
 
 /// Runs the acquisition thread on `reader` and feeds `averager` until the stream ends, the
-/// average is complete or `deadline` passes; every segment is averaged on return. Returns
-/// what [`feed`] saw.
+/// average is complete, `deadline` passes or `guard` stops it; every segment is averaged on
+/// return. Returns what [`feed`] saw.
 fn stream_into(
     reader: Box<dyn acquire::SampleReader>,
     averager: &mut Welch,
     progress: &Progress,
     deadline: Option<Instant>,
+    guard: &Guard,
 ) -> Result<Fed> {
     let config = averager.config();
     let options = headless_options(config.segment, config.hop(), averager.threads());
     let acquisition = Acquisition::spawn(reader, options, None)?;
-    let fed = feed(&acquisition, averager, progress, deadline);
+    let fed = feed(&acquisition, averager, progress, deadline, guard);
     drop(acquisition);
     averager.flush();
     fed
@@ -211,13 +426,15 @@ fn headless_options(segment: usize, hop: usize, threads: usize) -> AcqOptions {
     }
 }
 
-/// Feeds the acquisition's blocks into `averager` until the stream ends or enough segments
-/// are averaged; returns the reader's last counters.
+/// Feeds the acquisition's blocks into `averager` until the stream ends, enough segments
+/// are averaged, or (live sources) a signal or a stall stops it; returns the reader's last
+/// counters.
 fn feed(
     acquisition: &Acquisition,
     averager: &mut Welch,
     progress: &Progress,
     deadline: Option<Instant>,
+    guard: &Guard,
 ) -> Result<Fed> {
     let limit = averager.config().max_averages;
     // Median, exponential and max-hold with --averages K: exactly the first K segment
@@ -232,12 +449,80 @@ fn feed(
     let mut stats = ReaderStats::default();
     let mut dropped_blocks = 0_u64;
     let mut read_total: u64 = 0;
+    let mut reopenings = 0_u64;
+    let mut last_sample = Instant::now();
+    let first_report = guard.stall_timeout.map_or(STALL_REPORT_EVERY, |t| {
+        (t / 2).clamp(Duration::from_secs(1), STALL_REPORT_EVERY)
+    });
+    let mut next_report = first_report;
+    let stopped = |stats: &mut ReaderStats,
+                   read_total: u64,
+                   dropped_blocks: u64,
+                   stop: Option<Stop>|
+     -> Result<Fed> {
+        stats.samples = stats.samples.max(read_total);
+        Ok(Fed {
+            stats: *stats,
+            dropped_blocks,
+            pushed: read_total,
+            ended: false,
+            stop,
+        })
+    };
     loop {
-        let Ok(event) = acquisition.events().recv() else {
-            anyhow::bail!("the acquisition thread ended without saying why");
+        if interrupt::stop_requested() {
+            let signal = interrupt::stop_reason().unwrap_or("a signal");
+            return stopped(
+                &mut stats,
+                read_total,
+                dropped_blocks,
+                Some(Stop::Signal(signal)),
+            );
+        }
+        let event = match acquisition.events().recv_timeout(POLL) {
+            Ok(event) => event,
+            Err(crossbeam_channel::RecvTimeoutError::Timeout) => {
+                if guard.live {
+                    let quiet = last_sample.elapsed();
+                    if let Some(limit) = guard.stall_timeout
+                        && quiet >= limit
+                    {
+                        return stopped(
+                            &mut stats,
+                            read_total,
+                            dropped_blocks,
+                            Some(Stop::Stalled(quiet)),
+                        );
+                    }
+                    if quiet >= next_report {
+                        let until = guard.stall_timeout.map_or_else(
+                            || "waiting without limit (--stall-timeout 0)".to_string(),
+                            |t| {
+                                format!(
+                                    "giving up at {} s (--stall-timeout)",
+                                    format_seconds(t.as_secs_f64())
+                                )
+                            },
+                        );
+                        warn(&format!(
+                            "no sample from {} for {} s ({} samples so far); {until}",
+                            guard.label,
+                            quiet.as_secs(),
+                            stats.samples.max(read_total)
+                        ));
+                        next_report = quiet + STALL_REPORT_EVERY;
+                    }
+                }
+                continue;
+            }
+            Err(crossbeam_channel::RecvTimeoutError::Disconnected) => {
+                anyhow::bail!("the acquisition thread ended without saying why");
+            }
         };
         match event {
             AcqEvent::Block(block) => {
+                last_sample = Instant::now();
+                next_report = first_report;
                 let take = cap_total.map_or(block.len(), |c| {
                     usize::try_from(c.saturating_sub(read_total))
                         .unwrap_or(usize::MAX)
@@ -252,18 +537,21 @@ fn feed(
                     || deadline.is_some_and(|d| Instant::now() >= d)
                 {
                     // Enough: the counters cover what was read so far.
-                    stats.samples = stats.samples.max(read_total);
-                    return Ok(Fed {
-                        stats,
-                        dropped_blocks,
-                        pushed: read_total,
-                        ended: false,
-                    });
+                    return stopped(&mut stats, read_total, dropped_blocks, None);
                 }
             }
             AcqEvent::Gap { .. } => {
                 // A followed file was reopened: no segment spans the seam.
                 averager.discard_pending();
+                if guard.follow {
+                    reopenings += 1;
+                    note(&format!(
+                        "{} was truncated, rewritten or replaced: reopened it and reading from \
+                         its start (reopening {reopenings}, after {read_total} samples; no \
+                         segment spans the seam)",
+                        guard.label
+                    ));
+                }
             }
             AcqEvent::Status(status) => {
                 stats = status.reader;
@@ -276,6 +564,7 @@ fn feed(
                     dropped_blocks,
                     pushed: read_total,
                     ended: true,
+                    stop: None,
                 });
             }
             AcqEvent::Stopped(Some(error)) => return Err(error.into()),

@@ -19,7 +19,7 @@ use super::{InputError, note, output, pipeline, warn};
 pub fn run(args: &SpectrumArgs) -> Result<ExitCode> {
     let kind = config::calibration_kind(&args.calibration)?;
     let options = config::analysis_options(&args.calibration, &HeterodyneArgs::default(), None)?;
-    output::check_output_path(&args.output)?;
+    output::check_output_for(&args.output, &args.source.source)?;
     let run = pipeline::compute_spectrum(&args.source, &args.welch)?;
     for warning in &run.warnings {
         warn(warning);

@@ -31,6 +31,7 @@ pub const NAMES: &[&str] = &[
     "--channel",
     "--volts-per-unit",
     "--follow",
+    "--stall-timeout",
     "--detrend",
     "--averages",
     "--averaging",
