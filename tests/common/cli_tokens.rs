@@ -31,6 +31,7 @@ pub const NAMES: &[&str] = &[
     "--channel",
     "--volts-per-unit",
     "--follow",
+    "--dataset",
     "--detrend",
     "--averages",
     "--averaging",
@@ -57,6 +58,9 @@ pub const NAMES: &[&str] = &[
     "-o",
     "--output",
     "--peak-threshold",
+    "--figure",
+    "--figure-size",
+    "--figure-band",
     "--reference-peaks",
     "--reference",
     "-q",
@@ -79,7 +83,7 @@ pub const NAMES: &[&str] = &[
 
 /// Plausible and hostile values, every enumerated value (`--sample-format`, `--endian`,
 /// `--window`, `--detrend`, `--averaging`, `--lo-side`, `synth --format`, `bench --live`,
-/// `bench --emit`) and every synth scenario name among them.
+/// `bench --emit`, `analyze --figure-size`) and every synth scenario name among them.
 pub const VALUES: &[&str] = &[
     "0",
     "-1",
@@ -162,6 +166,13 @@ pub const VALUES: &[&str] = &[
     "=",
     "out.csv",
     "out.json",
+    "x.npy",
+    "x.h5",
+    "/raw/x",
+    "fig.svg",
+    "fig.png",
+    "column",
+    "slide",
 ];
 
 /// Token `i` of [`NAMES`] followed by [`VALUES`], `i` taken modulo their total length.
