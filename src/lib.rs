@@ -15,6 +15,7 @@
 pub mod acquire;
 pub mod cli;
 pub mod dsp;
+pub mod figure;
 pub mod model;
 pub mod physics;
 pub mod report;

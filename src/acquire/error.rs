@@ -16,6 +16,12 @@ pub enum AcquireError {
     /// The file is not a readable WAV (message says why).
     #[error("not a usable WAV file: {0}")]
     Wav(String),
+    /// The file is not a readable NumPy `.npy` array of a supported kind (message says why).
+    #[error("not a usable .npy file: {0}")]
+    Npy(String),
+    /// The HDF5 file or dataset cannot be read (message says why).
+    #[error("{0}")]
+    Hdf5(String),
     /// Options that do not fit the source.
     #[error("{0}")]
     Config(String),

@@ -7,6 +7,8 @@
 //! | source | reader | notes |
 //! |---|---|---|
 //! | `*.wav` | [`WavReader`] | PCM 16/24/32-bit int, 32/64-bit float, plain or EXTENSIBLE, RF64 |
+//! | `*.npy` | [`RawReader`] via [`npy`] | NumPy array: layout from its header; needs `rate_hz` |
+//! | `*.h5`, `*.hdf5` | [`RawReader`] via [`hdf5`] | the `dataset`; rate from `rate_hz` or an attribute |
 //! | other path | [`RawReader`] | needs `sample_format` and `rate_hz` |
 //! | path + `follow` | [`FollowReader`] | polls every 50 ms, reopens on truncation/rotation |
 //! | `-` | [`RawReader::stdin`] | live |
@@ -61,6 +63,8 @@ mod demo;
 mod error;
 mod follow;
 mod frames;
+pub mod hdf5;
+pub mod npy;
 mod raw;
 mod tcp;
 mod thread;
@@ -181,6 +185,32 @@ impl SourceSpec {
         }
     }
 
+    /// True for a path ending in `.npy` (any case): a NumPy array file.
+    pub fn is_npy(&self) -> bool {
+        self.has_extension(&["npy"])
+    }
+
+    /// True for a path ending in `.h5` or `.hdf5` (any case): an HDF5 file.
+    pub fn is_hdf5(&self) -> bool {
+        self.has_extension(&["h5", "hdf5"])
+    }
+
+    /// True for a file whose header states its sample layout (WAV, `.npy`, HDF5), so
+    /// `--sample-format` does not apply.
+    pub fn is_self_describing(&self) -> bool {
+        self.is_wav() || self.is_npy() || self.is_hdf5()
+    }
+
+    fn has_extension(&self, wanted: &[&str]) -> bool {
+        match self {
+            Self::Path(p) => p
+                .extension()
+                .and_then(|e| e.to_str())
+                .is_some_and(|e| wanted.iter().any(|w| e.eq_ignore_ascii_case(w))),
+            _ => false,
+        }
+    }
+
     /// True for sources whose samples arrive in real time (stdin, TCP, a followed file is
     /// decided by [`SourceConfig::follow`]).
     pub fn is_live(&self) -> bool {
@@ -212,6 +242,9 @@ pub struct SourceConfig {
     /// other sources.
     #[serde(default)]
     pub reconnect: bool,
+    /// HDF5 only: the dataset to read, `/GROUP/NAME` (`--dataset`).
+    #[serde(default)]
+    pub dataset: Option<String>,
 }
 
 impl SourceConfig {
@@ -227,6 +260,7 @@ impl SourceConfig {
             volts_per_unit: 1.0,
             follow: false,
             reconnect: false,
+            dataset: None,
         }
     }
 }
@@ -318,6 +352,18 @@ pub fn open(config: &SourceConfig) -> Result<Box<dyn SampleReader>> {
                 Box::new(WavReader::open(path, config.channel, vpu, config.rate_hz)?)
             }
         }
+        SourceSpec::Path(path) if config.spec.is_npy() || config.spec.is_hdf5() => {
+            if config.follow {
+                return Err(AcquireError::Config(
+                    "--follow applies to WAV and raw files, not to .npy or HDF5".into(),
+                ));
+            }
+            if config.spec.is_npy() {
+                Box::new(npy::open(config, path)?)
+            } else {
+                Box::new(hdf5::open(config, path)?)
+            }
+        }
         SourceSpec::Path(path) => {
             let format = RawFormat::from_config(config)?;
             if config.follow {
@@ -333,6 +379,21 @@ pub fn open(config: &SourceConfig) -> Result<Box<dyn SampleReader>> {
         }
         SourceSpec::Demo { scenario, seed } => Box::new(DemoReader::new(scenario, *seed, vpu)?),
     })
+}
+
+/// Samples per channel a `.npy` or HDF5 source holds according to its header (`None` for
+/// other sources or an unreadable file).
+pub fn lab_file_length(config: &SourceConfig, path: &std::path::Path) -> Option<u64> {
+    if config.spec.is_npy() {
+        npy::NpyHeader::read(path).ok().map(|h| h.samples)
+    } else if config.spec.is_hdf5() {
+        let dataset = config.dataset.as_deref()?;
+        hdf5::Hdf5Dataset::open(path, dataset)
+            .ok()
+            .map(|d| d.layout.samples)
+    } else {
+        None
+    }
 }
 
 /// Lowest sample rate accepted: below it the spectrum's 1/rate scaling leaves the range of

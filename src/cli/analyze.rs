@@ -9,9 +9,10 @@ use std::process::ExitCode;
 
 use anyhow::{Context, Result};
 
+use crate::figure;
 use crate::report::{self, Report};
 
-use super::args::AnalyzeArgs;
+use super::args::{AnalyzeArgs, FigureSizeArg};
 use super::{InputError, config, note, output, pipeline, warn};
 
 /// Runs `stillpoint analyze`.
@@ -26,6 +27,10 @@ pub fn run(args: &AnalyzeArgs) -> Result<ExitCode> {
         options.reference_peaks_hz.extend(reference_peaks(path)?);
     }
     output::check_output_for(&args.output, &args.source.source)?;
+    if let Some(path) = &args.figure {
+        figure::FigureFormat::from_path(path).map_err(|e| InputError(e.to_string()))?;
+        output::check_output_for(path, &args.source.source)?;
+    }
     let run = pipeline::compute_spectrum(&args.source, &args.welch)?;
     let mut report = report::analyze(&run.spectrum, &options)?;
     for warning in run.warnings.iter().rev() {
@@ -37,10 +42,18 @@ pub fn run(args: &AnalyzeArgs) -> Result<ExitCode> {
         report.notes.insert(i, text.clone());
     }
     let json = serde_json::to_string_pretty(&report).context("cannot encode the report")?;
+    // Render before writing anything, so a figure that cannot be made replaces no file.
+    let figure_bytes = match &args.figure {
+        Some(path) => Some((path, render_figure(path, &run.spectrum, &report, args)?)),
+        None => None,
+    };
     output::write_atomically(&args.output, |out| {
         out.write_all(json.as_bytes())?;
         out.write_all(b"\n")
     })?;
+    if let Some((path, bytes)) = figure_bytes {
+        output::write_atomically(path, |out| out.write_all(&bytes))?;
+    }
     for warning in &report.warnings {
         warn(warning);
     }
@@ -79,6 +92,27 @@ fn read_bounded(path: &Path, limit: u64) -> Result<String> {
         .into());
     }
     Ok(text)
+}
+
+/// The `--figure` bytes (SVG or PNG by extension).
+fn render_figure(
+    path: &Path,
+    spectrum: &crate::dsp::Spectrum,
+    report: &Report,
+    args: &AnalyzeArgs,
+) -> Result<Vec<u8>> {
+    let view = figure::FigureView {
+        x_range_hz: args.figure_band,
+        size: match args.figure_size {
+            FigureSizeArg::Column => figure::FigureSize::Column,
+            FigureSizeArg::Slide => figure::FigureSize::Slide,
+        },
+        ..figure::FigureView::default()
+    };
+    figure::render_for_path(path, spectrum, report, &view).map_err(|e| match e {
+        figure::FigureError::Render(_) => anyhow::Error::from(e),
+        other => InputError(other.to_string()).into(),
+    })
 }
 
 /// Peak frequencies of an earlier `analyze` report (`peaks[].frequency_hz`).

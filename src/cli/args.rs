@@ -238,8 +238,9 @@ pub enum WavFormatArg {
 #[derive(Debug, Clone, Args)]
 #[command(next_help_heading = "Source")]
 pub struct SourceArgs {
-    /// The samples: a path (.wav read as WAV, anything else as raw binary), `-` for raw
-    /// samples on stdin, or tcp://HOST:PORT for raw samples over TCP.
+    /// The samples: a path (.wav read as WAV, .npy as a NumPy array, .h5/.hdf5 as HDF5 with
+    /// --dataset, anything else as raw binary), `-` for raw samples on stdin, or
+    /// tcp://HOST:PORT for raw samples over TCP.
     #[arg(value_name = "SOURCE")]
     pub source: String,
 
@@ -279,6 +280,10 @@ pub struct SourceArgs {
     /// stderr every 10 s before that.
     #[arg(long, default_value_t = 60.0, value_name = "SECS", value_parser = parse_non_negative)]
     pub stall_timeout: f64,
+    /// HDF5 source: the dataset to read, /GROUP/NAME (1-D, or 2-D [samples, channels]).
+    /// The rate is --rate, else the dataset's sample_rate_hz, fs or rate attribute.
+    #[arg(long, value_name = "/PATH")]
+    pub dataset: Option<String>,
 }
 
 /// Welch averager options.
@@ -520,6 +525,34 @@ pub struct AnalyzeArgs {
     /// Output JSON file (`-` for stdout). Written atomically.
     #[arg(short, long, value_name = "OUT.json", help_heading = "Output")]
     pub output: PathBuf,
+    /// Also write a log-log figure of the calibrated spectrum with the fit, zero-point, SQL
+    /// and thermal curves and a caption box (f_m, γ, Q, n̄ ± σ), as SVG or PNG (by extension).
+    #[arg(long, value_name = "OUT.svg|OUT.png", help_heading = "Output")]
+    pub figure: Option<PathBuf>,
+    /// Size of --figure: one journal column (3.4 in, 7 pt text) or a 16:9 slide.
+    #[arg(
+        long,
+        value_enum,
+        default_value = "column",
+        value_name = "SIZE",
+        requires = "figure",
+        help_heading = "Output"
+    )]
+    pub figure_size: FigureSizeArg,
+    /// Frequency range of --figure in Hz, LO:HI (default: around the fitted mode, else the
+    /// whole span).
+    #[arg(long, value_name = "LO:HI", value_parser = parse_band, requires = "figure",
+          help_heading = "Output")]
+    pub figure_band: Option<(f64, f64)>,
+}
+
+/// Size of an `analyze --figure` (`--figure-size`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum FigureSizeArg {
+    /// 3.4 in × 2.6 in, 7 pt text (PNG 2040 × 1560 px)
+    Column,
+    /// 10 in × 5.625 in, 16 pt text (PNG 1920 × 1080 px)
+    Slide,
 }
 
 /// `stillpoint synth`.

@@ -34,7 +34,26 @@ pub fn source_config(args: &SourceArgs) -> Result<SourceConfig> {
             args.source
         )));
     }
-    let wav = spec.is_wav();
+    if spec.is_hdf5() {
+        if args.dataset.is_none() {
+            return Err(InputError(format!(
+                "`{}` is an HDF5 file: say which dataset with --dataset /PATH",
+                args.source
+            )));
+        }
+    } else if args.dataset.is_some() {
+        return Err(InputError(format!(
+            "--dataset applies to an HDF5 file (.h5, .hdf5), not to `{}`",
+            args.source
+        )));
+    }
+    if spec.is_npy() && args.rate.is_none() {
+        return Err(InputError(format!(
+            "`{}` is a NumPy array, which holds no sample rate: give --rate HZ",
+            args.source
+        )));
+    }
+    let wav = spec.is_self_describing();
     if !wav {
         let what = match &spec {
             SourceSpec::Stdin => "raw samples on stdin".to_string(),
@@ -72,6 +91,7 @@ pub fn source_config(args: &SourceArgs) -> Result<SourceConfig> {
     config.rate_hz = args.rate;
     config.volts_per_unit = args.volts_per_unit;
     config.follow = args.follow;
+    config.dataset.clone_from(&args.dataset);
     Ok(config)
 }
 

@@ -612,6 +612,9 @@ fn known_length(config: &SourceConfig) -> Option<u64> {
     if config.spec.is_wav() {
         return wav_length(path);
     }
+    if config.spec.is_npy() || config.spec.is_hdf5() {
+        return acquire::lab_file_length(config, path);
+    }
     let frame_bytes = config.sample_format?.bytes() as u64 * config.channels.max(1) as u64;
     let bytes = std::fs::metadata(path).ok()?.len();
     Some(bytes / frame_bytes)
@@ -634,7 +637,7 @@ fn reader_warnings(stats: &ReaderStats, skipped_segments: usize) -> Vec<String> 
     let mut warnings = Vec::new();
     if stats.truncated {
         warnings.push(format!(
-            "the WAV data ends before its header says (recording cut short?); analysed the {} \
+            "the data ends before the file's header says (recording cut short?); analysed the {} \
              samples present",
             stats.samples
         ));

@@ -8,6 +8,7 @@
 
 mod axes;
 mod cooldown;
+mod figure_export;
 mod files;
 mod panels;
 mod plot;
@@ -161,6 +162,8 @@ pub enum UiCommand {
         /// Replace an existing file (asked first).
         overwrite: bool,
     },
+    /// Write the publication figure of the current plot to the typed path (.svg/.png).
+    ExportFigure,
     /// Zoom the plot to a frequency span (Hz).
     ZoomTo(f64, f64),
     /// Zoom to the whole spectrum.
@@ -436,6 +439,7 @@ impl StillpointApp {
             }
             UiCommand::LoadSnapshot => self.load_snapshot(),
             UiCommand::ExportPng { overwrite } => self.export_png(ctx, overwrite),
+            UiCommand::ExportFigure => self.export_figure(),
             UiCommand::ZoomTo(lo, hi) => {
                 if lo > 0.0 && hi > lo {
                     self.plot.request_x = Some((lo.log10(), hi.log10()));

@@ -345,6 +345,13 @@ impl PanelState {
                     if ui.button("Export PNG").clicked() {
                         out.push(UiCommand::ExportPng { overwrite: false });
                     }
+                    if ui
+                        .button("Export figure")
+                        .on_hover_text("the plot in view as a publication figure (.svg or .png)")
+                        .clicked()
+                    {
+                        out.push(UiCommand::ExportFigure);
+                    }
                 });
             });
         out

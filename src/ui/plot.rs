@@ -35,6 +35,8 @@ pub struct PlotState {
     pub reset_view: bool,
     /// Re-fit the y range to the data in view on the next frame.
     pub reset_y: bool,
+    /// Frequency range in view on the last frame, Hz (for "Export figure").
+    pub view_hz: Option<(f64, f64)>,
     view_initialised: bool,
 }
 
@@ -244,6 +246,7 @@ impl PlotState {
             let bounds = pui.plot_bounds();
             let (x0, x1) = (bounds.min()[0], bounds.max()[0]);
             let view_hz = (10f64.powf(x0), 10f64.powf(x1));
+            self.view_hz = Some(view_hz);
             if reset_y && let Some((y0, y1)) = with_refs(y_range_in(freqs, logs, view_hz, (ya, yb)))
             {
                 let pad = if db { 3.0 } else { 0.3 };

@@ -32,6 +32,7 @@ pub const NAMES: &[&str] = &[
     "--volts-per-unit",
     "--follow",
     "--stall-timeout",
+    "--dataset",
     "--detrend",
     "--averages",
     "--averaging",
@@ -58,6 +59,9 @@ pub const NAMES: &[&str] = &[
     "-o",
     "--output",
     "--peak-threshold",
+    "--figure",
+    "--figure-size",
+    "--figure-band",
     "--reference-peaks",
     "--reference",
     "-q",
@@ -80,7 +84,7 @@ pub const NAMES: &[&str] = &[
 
 /// Plausible and hostile values, every enumerated value (`--sample-format`, `--endian`,
 /// `--window`, `--detrend`, `--averaging`, `--lo-side`, `synth --format`, `bench --live`,
-/// `bench --emit`) and every synth scenario name among them.
+/// `bench --emit`, `analyze --figure-size`) and every synth scenario name among them.
 pub const VALUES: &[&str] = &[
     "0",
     "-1",
@@ -163,6 +167,13 @@ pub const VALUES: &[&str] = &[
     "=",
     "out.csv",
     "out.json",
+    "x.npy",
+    "x.h5",
+    "/raw/x",
+    "fig.svg",
+    "fig.png",
+    "column",
+    "slide",
 ];
 
 /// Token `i` of [`NAMES`] followed by [`VALUES`], `i` taken modulo their total length.
