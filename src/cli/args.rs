@@ -273,6 +273,13 @@ pub struct SourceArgs {
     /// then need --averages to know when to stop.
     #[arg(long)]
     pub follow: bool,
+
+    /// A second channel J (0-based, called b) of the same interleaved source, read in the
+    /// same pass as --channel K (called a): `spectrum` adds channel b's PSD, the
+    /// cross-spectral density and the coherence; `analyze` fits the mode on Re P_ab
+    /// (spectrum and analyze only; mean averaging).
+    #[arg(long, value_name = "J")]
+    pub cross_channel: Option<u32>,
 }
 
 /// Welch averager options.

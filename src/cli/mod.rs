@@ -11,6 +11,7 @@ pub mod args;
 mod bench;
 mod bench_live;
 pub mod config;
+mod cross;
 mod monitor;
 mod output;
 mod pipeline;
