@@ -5,6 +5,8 @@
 //!
 //! A value that needs an input that was not given is `null`, and [`Report::notes`] says why.
 
+pub mod cross;
+
 use serde::{Deserialize, Serialize};
 
 use crate::dsp::Spectrum;
@@ -267,6 +269,9 @@ pub struct Report {
     pub notes: Vec<String>,
     /// Problems with the input (skipped segments, non-finite samples, truncation).
     pub warnings: Vec<String>,
+    /// Two detectors (`--cross-channel`): the cross-spectrum keys; absent otherwise.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub cross: Option<cross::CrossReport>,
 }
 
 /// Why an analysis could not run at all.
@@ -477,7 +482,7 @@ pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report,
     Ok(report)
 }
 
-fn input(e: PhysicsError) -> AnalysisError {
+pub(crate) fn input(e: PhysicsError) -> AnalysisError {
     AnalysisError::Input(e.to_string())
 }
 
@@ -490,7 +495,10 @@ fn positive(name: &str, v: Option<f64>) -> Result<(), AnalysisError> {
     }
 }
 
-fn validate(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<(), AnalysisError> {
+pub(crate) fn validate(
+    spectrum: &Spectrum,
+    options: &AnalysisOptions,
+) -> Result<(), AnalysisError> {
     let usable = spectrum.len() >= 2
         && spectrum.resolution_hz.is_finite()
         && spectrum.resolution_hz > 0.0
@@ -613,7 +621,7 @@ fn validate(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<(), Analys
 }
 
 /// The tone's equivalent rms displacement from `--tone-rms-m` or the PM options.
-fn tone_rms_m(options: &AnalysisOptions) -> Result<Option<f64>, AnalysisError> {
+pub(crate) fn tone_rms_m(options: &AnalysisOptions) -> Result<Option<f64>, AnalysisError> {
     if let Some(x) = options.tone_rms_m {
         return Ok(Some(x));
     }
@@ -634,7 +642,7 @@ fn times(x: Estimate, k: Estimate) -> Estimate {
     Estimate::new(v, if v == 0.0 { 0.0 } else { v.abs() * rel })
 }
 
-fn fill_mode(r: &mut ModeReport, m: &ModeFit, cal: Option<&Calibration>) {
+pub(crate) fn fill_mode(r: &mut ModeReport, m: &ModeFit, cal: Option<&Calibration>) {
     r.frequency_hz = Some(m.frequency_hz.value);
     r.frequency_hz_uncertainty = Some(m.frequency_hz.sigma);
     r.linewidth_hz = Some(m.linewidth_hz.value);
@@ -677,7 +685,7 @@ fn fill_mode(r: &mut ModeReport, m: &ModeFit, cal: Option<&Calibration>) {
     }
 }
 
-fn fill_quantum(
+pub(crate) fn fill_quantum(
     report: &mut Report,
     mode: Option<&ModeFit>,
     cal: Option<&Calibration>,
@@ -879,7 +887,7 @@ fn sidebands(
 }
 
 /// Replaces every non-finite number by null (with a note) so the JSON never holds NaN/Inf.
-fn sanitize(report: &mut Report) {
+pub(crate) fn sanitize(report: &mut Report) {
     let mut bad: Vec<&'static str> = Vec::new();
     fn fix(bad: &mut Vec<&'static str>, name: &'static str, v: &mut Option<f64>) {
         if v.is_some_and(|x| !x.is_finite()) {

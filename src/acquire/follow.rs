@@ -398,6 +398,16 @@ impl SampleReader for FollowReader {
         self.description.clone()
     }
 
+    fn channels_delivered(&self) -> usize {
+        self.frames.channels_delivered()
+    }
+
+    fn pair_with(&mut self, channel_b: usize) -> Result<()> {
+        self.frames.pair_with(channel_b)?;
+        self.description.push_str(&format!(" and {channel_b}"));
+        Ok(())
+    }
+
     fn is_live(&self) -> bool {
         true
     }

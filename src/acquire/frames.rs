@@ -79,6 +79,8 @@ pub(crate) struct FrameReader {
     ended: bool,
     /// Counters (public to the owning reader, which may set `truncated` up front).
     pub stats: ReaderStats,
+    /// A second channel delivered with the first ([`FrameReader::pair_with`]).
+    pair: Option<usize>,
 }
 
 impl FrameReader {
@@ -92,18 +94,49 @@ impl FrameReader {
             end: 0,
             ended: false,
             stats: ReaderStats::default(),
+            pair: None,
         }
     }
 
-    /// Reads up to `out.len()` samples. `Ok(Some(0))`: ended (or `out` empty);
+    /// Delivers `channel_b` together with the selected channel from now on: every block of
+    /// `2n` values then holds the `n` samples of the selected channel followed by the `n`
+    /// samples of `channel_b` of the same frames (one pass over the bytes; `stats.samples`
+    /// counts frames).
+    ///
+    /// # Errors
+    /// [`super::AcquireError::Config`] if `channel_b` is not a channel of the stream.
+    pub fn pair_with(&mut self, channel_b: usize) -> Result<()> {
+        if channel_b >= self.layout.channels {
+            return Err(super::AcquireError::Config(format!(
+                "--cross-channel {channel_b} is out of range: the stream has {} channel(s) (0 to {})",
+                self.layout.channels,
+                self.layout.channels.saturating_sub(1)
+            )));
+        }
+        self.pair = Some(channel_b);
+        Ok(())
+    }
+
+    /// Channels in each delivered block: 1, or 2 after [`FrameReader::pair_with`].
+    pub fn channels_delivered(&self) -> usize {
+        if self.pair.is_some() { 2 } else { 1 }
+    }
+
+    /// Reads up to `out.len()` samples (paired: up to `out.len() / 2` frames, see
+    /// [`FrameReader::pair_with`]; `out` must then hold at least 2). `Ok(Some(0))`: ended (or `out` empty);
     /// `Ok(None)`: nothing before `deadline`.
     pub fn read(&mut self, out: &mut [f64], deadline: Option<Instant>) -> Result<Option<usize>> {
-        if out.is_empty() || self.ended {
+        if out.is_empty() || self.ended || (self.pair.is_some() && out.len() < 2) {
             return Ok(Some(0));
         }
         let frame_bytes = self.layout.frame_bytes().max(1);
         loop {
             let whole = (self.end - self.start) / frame_bytes;
+            if let Some(channel_b) = self.pair
+                && whole > 0
+            {
+                return Ok(Some(self.decode_pair(out, whole, frame_bytes, channel_b)));
+            }
             if whole > 0 {
                 let frames = whole.min(out.len());
                 let bytes_end = self.start + frames * frame_bytes;
@@ -155,6 +188,37 @@ impl FrameReader {
                 }
             }
         }
+    }
+}
+
+impl FrameReader {
+    /// Paired delivery: decodes up to `out.len() / 2` of the `whole` buffered frames into
+    /// the two halves of `out[..2 frames]`; returns the values written (2 × frames).
+    fn decode_pair(
+        &mut self,
+        out: &mut [f64],
+        whole: usize,
+        frame_bytes: usize,
+        channel_b: usize,
+    ) -> usize {
+        let frames = whole.min(out.len() / 2).max(1);
+        let bytes_end = self.start + frames * frame_bytes;
+        let (Some(bytes), Some(dest)) = (
+            self.buf.get(self.start..bytes_end),
+            out.get_mut(..2 * frames),
+        ) else {
+            return 0;
+        };
+        let (dest_a, dest_b) = dest.split_at_mut(frames);
+        decode(&self.layout, bytes, dest_a, &mut self.stats);
+        let layout_b = Layout {
+            channel: channel_b,
+            ..self.layout
+        };
+        decode(&layout_b, bytes, dest_b, &mut self.stats);
+        self.start = bytes_end;
+        self.stats.samples += frames as u64;
+        2 * frames
     }
 }
 

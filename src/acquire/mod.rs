@@ -245,6 +245,10 @@ pub struct SourceConfig {
     /// HDF5 only: the dataset to read, `/GROUP/NAME` (`--dataset`).
     #[serde(default)]
     pub dataset: Option<String>,
+    /// A second channel (`--cross-channel J`, called b) delivered with `channel` (a) in the
+    /// same pass: blocks then hold both (see [`SampleReader::channels_delivered`]).
+    #[serde(default)]
+    pub cross_channel: Option<usize>,
 }
 
 impl SourceConfig {
@@ -261,6 +265,7 @@ impl SourceConfig {
             follow: false,
             reconnect: false,
             dataset: None,
+            cross_channel: None,
         }
     }
 }
@@ -323,6 +328,27 @@ pub trait SampleReader: Send {
     fn is_live(&self) -> bool {
         false
     }
+
+    /// Channels in each delivered block: 1, or 2 once [`SampleReader::pair_with`] succeeded.
+    /// A block of `2n` values then holds `n` samples of the selected channel (a) followed by
+    /// the `n` samples of the paired channel (b) taken at the same instants.
+    fn channels_delivered(&self) -> usize {
+        1
+    }
+
+    /// Also delivers `channel_b` of the same interleaved stream, read in the same pass (no
+    /// second pass over a file, no second socket); see [`SampleReader::channels_delivered`].
+    /// Readers of interleaved frames (WAV, raw file, stdin, TCP, followed file) support it.
+    ///
+    /// # Errors
+    /// [`AcquireError::Config`] for a channel out of range; [`AcquireError::Unsupported`]
+    /// for a source with a single channel by nature (the demo generator).
+    fn pair_with(&mut self, channel_b: usize) -> Result<()> {
+        let _ = channel_b;
+        Err(AcquireError::Unsupported(
+            "--cross-channel needs an interleaved source (WAV or raw)".into(),
+        ))
+    }
 }
 
 /// Opens a reader for `config`.
@@ -331,6 +357,15 @@ pub trait SampleReader: Send {
 /// Missing file, malformed header, inconsistent options (raw without `--rate`, channel out
 /// of range, …), connection refused.
 pub fn open(config: &SourceConfig) -> Result<Box<dyn SampleReader>> {
+    let mut reader = open_one(config)?;
+    if let Some(channel_b) = config.cross_channel {
+        reader.pair_with(channel_b)?;
+    }
+    Ok(reader)
+}
+
+/// [`open`] for the selected channel alone.
+fn open_one(config: &SourceConfig) -> Result<Box<dyn SampleReader>> {
     check_rate(config.rate_hz)?;
     check_volts_per_unit(config.volts_per_unit)?;
     if config.follow && !matches!(config.spec, SourceSpec::Path(_)) {

@@ -512,9 +512,15 @@ impl Worker {
                 }
                 continue;
             }
+            // Paired channels: `ch` values per frame, so pace `ch` values per sample time
+            // and never ask for less than one frame.
+            let ch = self.reader.channels_delivered().max(1);
             let want = match self.speed {
                 Some(speed) if !self.live && !self.paused => {
-                    match self.pacer.due(self.reader.sample_rate_hz() * speed, max) {
+                    match self
+                        .pacer
+                        .due(self.reader.sample_rate_hz() * speed * ch as f64, max)
+                    {
                         Ok(n) => n,
                         Err(wait) => {
                             if self.commands(Some(wait)) == Flow::Stop {
@@ -526,6 +532,7 @@ impl Worker {
                 }
                 _ => max,
             };
+            let want = (want - want % ch).max(ch);
             if buf.capacity() == 0
                 && let Ok(block) = self.recycled.try_recv()
             {

@@ -568,6 +568,16 @@ impl SampleReader for WavReader {
     fn describe(&self) -> String {
         self.description.clone()
     }
+
+    fn channels_delivered(&self) -> usize {
+        self.frames.channels_delivered()
+    }
+
+    fn pair_with(&mut self, channel_b: usize) -> Result<()> {
+        self.frames.pair_with(channel_b)?;
+        self.description.push_str(&format!(" and {channel_b}"));
+        Ok(())
+    }
 }
 
 #[cfg(test)]

@@ -31,8 +31,12 @@ pub fn run(args: &AnalyzeArgs) -> Result<ExitCode> {
         figure::FigureFormat::from_path(path).map_err(|e| InputError(e.to_string()))?;
         output::check_output_for(path, &args.source.source)?;
     }
-    let run = pipeline::compute_spectrum(&args.source, &args.welch)?;
-    let mut report = report::analyze(&run.spectrum, &options)?;
+    let (mut report, run) = if args.source.cross_channel.is_some() {
+        super::cross::run_analyze(args, &options)?
+    } else {
+        let run = pipeline::compute_spectrum(&args.source, &args.welch)?;
+        (report::analyze(&run.spectrum, &options)?, run)
+    };
     for warning in run.warnings.iter().rev() {
         if !report.warnings.contains(warning) {
             report.warnings.insert(0, warning.clone());
@@ -226,6 +230,17 @@ fn write_summary(out: &mut dyn Write, report: &Report) -> io::Result<()> {
         )
     )?;
     writeln!(out, "stray peaks            {}", report.peaks.len())?;
+    if let Some(c) = &report.cross {
+        writeln!(
+            out,
+            "two detectors          channels {} × {}, K_eff {}, coherence at mode {} (5 % noise level {})",
+            c.channel_a,
+            c.channel_b,
+            sig(c.k_eff, 4),
+            c.coherence_at_mode.map_or("—".to_string(), |v| sig(v, 3)),
+            sig(c.coherence_noise_threshold, 3)
+        )?;
+    }
     Ok(())
 }
 

@@ -284,6 +284,12 @@ pub struct SourceArgs {
     /// The rate is --rate, else the dataset's sample_rate_hz, fs or rate attribute.
     #[arg(long, value_name = "/PATH")]
     pub dataset: Option<String>,
+    /// A second channel J (0-based, called b) of the same interleaved source, read in the
+    /// same pass as --channel K (called a): `spectrum` adds channel b's PSD, the
+    /// cross-spectral density and the coherence; `analyze` fits the mode on Re P_ab
+    /// (spectrum and analyze only; mean averaging).
+    #[arg(long, value_name = "J")]
+    pub cross_channel: Option<u32>,
 }
 
 /// Welch averager options.

@@ -68,6 +68,16 @@ pub fn source_config(args: &SourceArgs) -> Result<SourceConfig> {
         if args.rate.is_none() {
             return Err(InputError(format!("{what} need --rate HZ")));
         }
+        if let Some(j) = args.cross_channel
+            && j >= args.channels
+        {
+            return Err(InputError(format!(
+                "--cross-channel {j} is out of range: the stream has {} channel{} (0-based, so 0..={}); give --channels",
+                args.channels,
+                if args.channels == 1 { "" } else { "s" },
+                args.channels - 1
+            )));
+        }
         if args.channel >= args.channels {
             return Err(InputError(format!(
                 "--channel {} is out of range: the stream has {} channel{} (0-based, so 0..={})",
@@ -92,6 +102,7 @@ pub fn source_config(args: &SourceArgs) -> Result<SourceConfig> {
     config.volts_per_unit = args.volts_per_unit;
     config.follow = args.follow;
     config.dataset.clone_from(&args.dataset);
+    config.cross_channel = args.cross_channel.map(|j| j as usize);
     Ok(config)
 }
 

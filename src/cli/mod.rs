@@ -12,6 +12,7 @@ mod bench;
 mod bench_live;
 pub mod config;
 pub mod interrupt;
+mod cross;
 mod monitor;
 mod output;
 mod pipeline;

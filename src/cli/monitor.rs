@@ -54,6 +54,13 @@ pub fn run_demo(window: &WindowOptions) -> Result<ExitCode> {
 /// Bad options, or the window could not be created, or this build has none.
 pub fn run(args: &MonitorArgs, matches: Option<&ArgMatches>) -> Result<ExitCode> {
     let source = config::source_config(&args.source)?;
+    if source.cross_channel.is_some() {
+        return Err(super::InputError(
+            "--cross-channel works with spectrum and analyze only (the window shows one channel)"
+                .into(),
+        )
+        .into());
+    }
     let welch_given = any_given(matches, WELCH_IDS);
     let analysis_given = any_given(matches, ANALYSIS_IDS);
     let analysis = config::analysis_options(&args.calibration, &args.heterodyne, None)?;

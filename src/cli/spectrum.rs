@@ -17,6 +17,9 @@ use super::{InputError, note, output, pipeline, warn};
 /// # Errors
 /// Bad options or input, a failed calibration, an unwritable output.
 pub fn run(args: &SpectrumArgs) -> Result<ExitCode> {
+    if args.source.cross_channel.is_some() {
+        return super::cross::run_spectrum(args);
+    }
     let kind = config::calibration_kind(&args.calibration)?;
     let options = config::analysis_options(&args.calibration, &HeterodyneArgs::default(), None)?;
     output::check_output_for(&args.output, &args.source.source)?;

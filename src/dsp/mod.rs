@@ -13,9 +13,12 @@
 //!   restart; NaN/Inf segments skipped; optional worker threads) and the [`Spectrum`] it fills.
 //! - [`units`]: [`units::DensityUnit`] conversions, band variance/rms, cumulative rms,
 //!   [`units::tone_power`].
+//! - [`cross`]: [`cross::CrossWelch`], cross-spectral density and coherence of two
+//!   channels (scipy.signal.csd / coherence conventions, METHODS.md §10).
 //! - [`bench`](mod@bench): Welch throughput and the FFT-only floor, for `stillpoint bench`.
 
 pub mod bench;
+pub mod cross;
 mod error;
 pub mod units;
 pub mod welch;

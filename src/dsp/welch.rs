@@ -309,8 +309,9 @@ impl std::fmt::Debug for Welch {
     }
 }
 
-/// Turns one segment into its periodogram |Y_k|² (one per thread).
-struct Transformer {
+/// Turns one segment into its periodogram |Y_k|² (one per thread; also used by
+/// [`super::cross`] for each channel).
+pub(crate) struct Transformer {
     detrend: Detrend,
     /// Largest segment energy Σx² whose periodogram, summed over 10¹⁰ segments, stays
     /// finite: |Y_k|² ≤ N max w² Σx² (Cauchy–Schwarz).
@@ -323,7 +324,11 @@ struct Transformer {
 }
 
 impl Transformer {
-    fn new(detrend: Detrend, window: Arc<[f64]>, fft: Arc<dyn RealToComplex<f64>>) -> Self {
+    pub(crate) fn new(
+        detrend: Detrend,
+        window: Arc<[f64]>,
+        fft: Arc<dyn RealToComplex<f64>>,
+    ) -> Self {
         let fft_in = fft.make_input_vec();
         let fft_out = fft.make_output_vec();
         let scratch = fft.make_scratch_vec();
@@ -344,7 +349,7 @@ impl Transformer {
     }
 
     /// Same plan and window, own buffers.
-    fn fork(&self) -> Self {
+    pub(crate) fn fork(&self) -> Self {
         Self::new(
             self.detrend,
             Arc::clone(&self.window),
@@ -354,7 +359,7 @@ impl Transformer {
 
     /// Loads `head ++ tail` (N samples), detrends, windows and transforms it into `fft_out`.
     /// Returns false (and leaves `fft_out` unspecified) if the segment is not finite.
-    fn transform(&mut self, head: &[f64], tail: &[f64]) -> bool {
+    pub(crate) fn transform(&mut self, head: &[f64], tail: &[f64]) -> bool {
         if head.len() + tail.len() != self.fft_in.len() {
             return false;
         }
@@ -372,6 +377,11 @@ impl Transformer {
         self.fft
             .process_with_scratch(&mut self.fft_in, &mut self.fft_out, &mut self.scratch)
             .is_ok()
+    }
+
+    /// The transform of the last accepted segment, Y_k for k = 0 … ⌊N/2⌋.
+    pub(crate) fn output(&self) -> &[Complex<f64>] {
+        &self.fft_out
     }
 
     fn powers(&self) -> impl Iterator<Item = f64> + '_ {

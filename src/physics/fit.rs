@@ -516,6 +516,279 @@ fn fit_bins(
     Ok(fit)
 }
 
+/// The mode model shifted by a constant (data shifted alike), with a background of either
+/// sign: for data that are no PSD of one channel (the real part of a cross-spectrum).
+struct SignedBackground<'a> {
+    inner: ModeModel<'a>,
+    offset: f64,
+}
+
+impl Model for SignedBackground<'_> {
+    fn n_params(&self) -> usize {
+        self.inner.n_params()
+    }
+
+    fn eval(&self, p: &[f64], i: usize, grad: &mut [f64]) -> f64 {
+        self.inner.eval(p, i, grad) + self.offset
+    }
+
+    fn admissible(&self, p: &[f64]) -> bool {
+        p.iter().all(|v| v.is_finite()) && p[1] > 0.0 && p[2] > 0.0 && p[3] > 0.0
+    }
+}
+
+/// Start values (B, A, f_m, γ) for noisy data of either sign: a running mean over ±h bins
+/// (h ≈ n/40) for the peak and its half-width, the median of the outer quarters for B.
+fn signed_guess(freqs: &[f64], data: &[f64], df: f64) -> Option<(f64, f64, f64, f64)> {
+    let n = data.len();
+    let h = (n / 40).max(1);
+    let smooth: Vec<f64> = (0..n)
+        .map(|i| {
+            let s = &data[i.saturating_sub(h)..=(i + h).min(n - 1)];
+            s.iter().sum::<f64>() / s.len() as f64
+        })
+        .collect();
+    let quarter = (n / 4).max(2).min(n);
+    let mut outer: Vec<f64> = data[..quarter].to_vec();
+    outer.extend_from_slice(&data[n - quarter..]);
+    let floor = median(&outer);
+    let (i_pk, &peak) = smooth
+        .iter()
+        .enumerate()
+        .max_by(|a, b| a.1.total_cmp(b.1))?;
+    let height = peak - floor;
+    if !(height.is_finite() && height > 0.0) {
+        return None;
+    }
+    let half = floor + 0.5 * height;
+    let left = (0..i_pk)
+        .rev()
+        .find(|&i| smooth[i] <= half)
+        .map_or(freqs[0], |i| freqs[i]);
+    let right = (i_pk + 1..n)
+        .find(|&i| smooth[i] <= half)
+        .map_or(freqs[n - 1], |i| freqs[i]);
+    let width = (right - left).max(df);
+    Some((floor, height * PI * width / 2.0, freqs[i_pk], width))
+}
+
+/// Fits one mechanical line plus a flat (or sloped) background **of either sign** to
+/// `data.psd_v2_per_hz` in `band_hz`, with the variance of each bin *given* by
+/// `variance(k, model_k)` (bin index k, current model value there): the fit of the real part
+/// of a cross-spectral density, whose variance is `(P_aa P_bb + Re² − Im²)/(2K_eff)`
+/// (METHODS.md §10). The weights are recomputed from the model until the parameters settle;
+/// the covariance is scaled by χ²_red and the window's bin-correlation inflation as in
+/// [`fit_mode_with`], and the same acceptance checks apply. `data` supplies the bins, Δf,
+/// ENBW and the window; its values may be negative.
+///
+/// # Errors
+/// As [`fit_mode_with`].
+pub fn fit_mode_given_variance(
+    data: &Spectrum,
+    band_hz: (f64, f64),
+    options: &FitOptions,
+    variance: &dyn Fn(usize, f64) -> f64,
+) -> Result<ModeFit> {
+    let (k_lo, k_hi) = band_bins(data, band_hz, "mode band")?;
+    let df = data.resolution_hz;
+    let mut freqs = Vec::new();
+    let mut values = Vec::new();
+    let mut bins = Vec::new();
+    for k in k_lo..=k_hi {
+        let f = k as f64 * df;
+        if options.exclude_hz.iter().any(|&(a, b)| f >= a && f <= b) {
+            continue;
+        }
+        if let Some(&d) = data.psd_v2_per_hz.get(k)
+            && d.is_finite()
+        {
+            freqs.push(f);
+            values.push(d);
+            bins.push(k);
+        }
+    }
+    let n_par = if options.sloped_background { 5 } else { 4 };
+    if values.len() < n_par + 4 {
+        return Err(PhysicsError::NoMode(format!(
+            "the band holds only {} usable bins (need at least {})",
+            values.len(),
+            n_par + 4
+        )));
+    }
+    let (b0, a0, f0, w0) = signed_guess(&freqs, &values, df)
+        .ok_or_else(|| PhysicsError::NoMode("no peak above the background".into()))?;
+    let scale_max = values.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    let f_ref = 0.5 * (band_hz.0 + band_hz.1);
+    let model = SignedBackground {
+        inner: ModeModel {
+            freqs: &freqs,
+            shape: options.line_shape,
+            sloped: options.sloped_background,
+            f_ref,
+        },
+        offset: 0.0,
+    };
+    let model_at = |p: &[f64], i: usize| {
+        let mut grad = [0.0; 5];
+        model.inner.eval(p, i, &mut grad[..n_par])
+    };
+    let inv_var_at = |p: &[f64]| -> Option<Vec<f64>> {
+        (0..values.len())
+            .map(|i| {
+                let v = variance(bins[i], model_at(p, i));
+                (v.is_finite() && v > 0.0).then(|| 1.0 / v)
+            })
+            .collect()
+    };
+    let mut best: Option<(lsq::Solution, f64)> = None;
+    let mut last_err = SolveFailure::BadStart;
+    for scale in [1.0, 3.0, 0.33] {
+        let mut p = vec![b0, a0 * scale, f0, w0 * scale];
+        if options.sloped_background {
+            p.push(0.0);
+        }
+        let mut outcome: std::result::Result<lsq::Solution, SolveFailure> =
+            Err(SolveFailure::NotConverged);
+        for _ in 0..30 {
+            let Some(inv_var) = inv_var_at(&p) else {
+                outcome = Err(SolveFailure::BadStart);
+                break;
+            };
+            // Shift data and model so the model stays positive (residuals unchanged).
+            let peak = p[1] * 2.0 / (PI * p[3].max(df));
+            let offset = 10.0 * (scale_max + peak.abs() + p[0].abs()) + 1e-300;
+            let shifted = SignedBackground {
+                offset,
+                inner: ModeModel { ..model.inner },
+            };
+            let data_shifted: Vec<f64> = values.iter().map(|v| v + offset).collect();
+            match lsq::fit_model_fixed(&shifted, &p, &data_shifted, &inv_var) {
+                Ok(sol) => {
+                    let n = sol.params.len();
+                    let moved = (0..n)
+                        .map(|k| {
+                            let sd = sol.covariance[k * n + k].max(0.0).sqrt();
+                            (sol.params[k] - p[k]).abs() / sd.max(1e-300)
+                        })
+                        .fold(0.0, f64::max);
+                    p.clone_from(&sol.params);
+                    let settled = moved <= 1e-4;
+                    outcome = Ok(sol);
+                    if settled {
+                        break;
+                    }
+                }
+                Err(e) => {
+                    outcome = Err(e);
+                    break;
+                }
+            }
+        }
+        match outcome {
+            Ok(sol) => {
+                let chi2 = sol.chi2;
+                if best.as_ref().is_none_or(|b| chi2 < b.1) {
+                    best = Some((sol, chi2));
+                }
+            }
+            Err(e) => last_err = e,
+        }
+    }
+    let Some((sol, _)) = best else {
+        return Err(PhysicsError::NoMode(match last_err {
+            SolveFailure::BadStart => "the fit could not start from the data".to_string(),
+            SolveFailure::NotConverged => "the fit did not converge".to_string(),
+            SolveFailure::Singular => "the fit is degenerate (line not constrained)".to_string(),
+        }));
+    };
+    let n = sol.params.len();
+    let chi2_red = sol.chi2 / sol.dof.max(1) as f64;
+    let inflation = window_stats::error_inflation(data.window);
+    let var_scale = chi2_red * inflation * inflation;
+    let cov =
+        |a: usize, b: usize| sol.covariance.get(a * n + b).copied().unwrap_or(0.0) * var_scale;
+    let sd = |k: usize| cov(k, k).max(0.0).sqrt();
+    let propagate = |g: [f64; 3]| {
+        let mut v = 0.0;
+        for (i, gi) in (1..4).zip(g) {
+            for (j, gj) in (1..4).zip(g) {
+                v += gi * gj * cov(i, j);
+            }
+        }
+        v.max(0.0).sqrt()
+    };
+    let p = &sol.params;
+    let (b, a, c, w) = (p[0], p[1], p[2], p[3]);
+    let peak = 2.0 * a / (PI * w);
+    let (bg, bg_sigma, slope) = if options.sloped_background {
+        let x = c - f_ref;
+        (
+            b + p[4] * x,
+            (cov(0, 0) + x * x * cov(4, 4) + 2.0 * x * cov(0, 4))
+                .max(0.0)
+                .sqrt(),
+            Some(Estimate::new(p[4], sd(4))),
+        )
+    } else {
+        (b, sd(0), None)
+    };
+    let fit = ModeFit {
+        frequency_hz: Estimate::new(c, sd(2)),
+        linewidth_hz: Estimate::new(w, sd(3)),
+        quality_factor: Estimate::new(c / w, propagate([0.0, 1.0 / w, -c / (w * w)])),
+        area: Estimate::new(a, sd(1)),
+        peak_psd: Estimate::new(peak, propagate([2.0 / (PI * w), 0.0, -peak / w])),
+        background_psd: Estimate::new(bg, bg_sigma),
+        background_slope_per_hz: slope,
+        line_shape: options.line_shape,
+        reduced_chi2: chi2_red,
+        bins: values.len(),
+        band_hz,
+        error_inflation: inflation,
+        resolution_limited: w < 5.0 * data.enbw_hz,
+        slope_reference_hz: f_ref,
+    };
+    let all_finite = [
+        fit.frequency_hz,
+        fit.linewidth_hz,
+        fit.quality_factor,
+        fit.area,
+        fit.peak_psd,
+        fit.background_psd,
+    ]
+    .iter()
+    .all(Estimate::is_finite)
+        && chi2_red.is_finite();
+    if !all_finite {
+        return Err(PhysicsError::NoMode(
+            "the fit gave non-finite values".into(),
+        ));
+    }
+    if c < band_hz.0 || c > band_hz.1 {
+        return Err(PhysicsError::NoMode(format!(
+            "the fitted centre {c:.6} Hz lies outside the band"
+        )));
+    }
+    if w > band_hz.1 - band_hz.0 {
+        return Err(PhysicsError::NoMode(format!(
+            "the fitted linewidth {w:.4} Hz is wider than the band"
+        )));
+    }
+    if w < 0.25 * df {
+        return Err(PhysicsError::NoMode(format!(
+            "the linewidth is unresolved (fitted {w:.3e} Hz, bin spacing {df:.3e} Hz)"
+        )));
+    }
+    if a < options.min_significance * fit.area.sigma {
+        return Err(PhysicsError::NoMode(format!(
+            "no significant peak (area {:.2}σ above zero, need {})",
+            a / fit.area.sigma,
+            options.min_significance
+        )));
+    }
+    Ok(fit)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -328,6 +328,36 @@ pub(crate) fn fit_model_weighted(
     })
 }
 
+/// Least squares with *given* weights `inv_var` (1/σ², one per data point): Levenberg–Marquardt
+/// to convergence, then the unscaled covariance (JᵀWJ)⁻¹. For data whose variance is known
+/// from elsewhere (e.g. the real part of a cross-spectral density, METHODS.md §10). The model
+/// must stay positive over the data (shift data and model by the same constant if needed:
+/// residuals and derivatives do not change).
+pub(crate) fn fit_model_fixed(
+    model: &dyn Model,
+    start: &[f64],
+    data: &[f64],
+    inv_var: &[f64],
+) -> Result<Solution, SolveFailure> {
+    let n = model.n_params();
+    if !model.admissible(start) || data.len() <= n || inv_var.len() != data.len() {
+        return Err(SolveFailure::BadStart);
+    }
+    let p = lm_fixed_weights(model, start, data, inv_var, 400)?;
+    let (chi2, jtj, _) =
+        normal_equations(model, &p, data, inv_var).ok_or(SolveFailure::BadStart)?;
+    let covariance = invert(&jtj, n).ok_or(SolveFailure::Singular)?;
+    if covariance.iter().any(|v| !v.is_finite()) || (0..n).any(|k| covariance[k * n + k] <= 0.0) {
+        return Err(SolveFailure::Singular);
+    }
+    Ok(Solution {
+        params: p,
+        covariance,
+        chi2,
+        dof: data.len() - n,
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

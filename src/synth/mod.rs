@@ -32,6 +32,7 @@
 pub mod oscillator;
 pub mod rng;
 mod stream;
+pub mod two_detector;
 mod wav;
 
 use std::path::PathBuf;
@@ -71,6 +72,10 @@ pub const SCENARIO_HELP: &[(&str, &str)] = &[
     (
         "strays",
         "cold mode + mount/stage resonances, pump lines, a higher mode, 50 Hz mains harmonics",
+    ),
+    (
+        "two-detector",
+        "one mode read by two detectors (2-channel WAV), 6 dB below each detector's floor",
     ),
 ];
 

@@ -29,6 +29,7 @@ pub const NAMES: &[&str] = &[
     "--endian",
     "--channels",
     "--channel",
+    "--cross-channel",
     "--volts-per-unit",
     "--follow",
     "--stall-timeout",
