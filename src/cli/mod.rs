@@ -11,7 +11,7 @@ pub mod args;
 mod bench;
 mod bench_live;
 pub mod config;
-mod monitor;
+pub mod monitor;
 mod output;
 mod pipeline;
 mod spectrum;
