@@ -73,7 +73,8 @@ fn demo_window_end_to_end() {
     h.get_by_label("V/√Hz").click();
     h.run_steps(2);
     assert_eq!(h.state().state().unit, DensityUnit::VPerRtHz);
-    h.key_press(egui::Key::U);
+    // Letter keys act anywhere only with Ctrl (or with the pointer on the plot).
+    h.key_press_modifiers(egui::Modifiers::CTRL, egui::Key::U);
     h.run_steps(2);
     assert_eq!(h.state().state().unit, DensityUnit::DbV2PerHz);
 

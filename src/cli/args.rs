@@ -11,7 +11,7 @@ use crate::acquire::{Endian, SampleFormat};
 use crate::dsp::{Detrend, WindowKind};
 
 /// Default segment length when the record length is not known in advance (samples).
-pub const DEFAULT_SEGMENT: usize = 1 << 16;
+pub const DEFAULT_SEGMENT: usize = crate::dsp::DEFAULT_SEGMENT;
 
 const LONG_ABOUT: &str = "\
 stillpoint turns a photodetector voltage (a live stream or a recording) into a calibrated \

@@ -8,8 +8,7 @@ use crate::report::AnalysisOptions;
 
 use super::InputError;
 use super::args::{
-    AveragingArg, CalibrationArgs, DEFAULT_SEGMENT, HeterodyneArgs, LoSideArg, SourceArgs,
-    WelchArgs,
+    AveragingArg, CalibrationArgs, HeterodyneArgs, LoSideArg, SourceArgs, WelchArgs,
 };
 
 /// Result of a configuration check.
@@ -112,14 +111,7 @@ pub const MAX_SEGMENT: usize = 1 << 27;
 /// The default segment: [`DEFAULT_SEGMENT`], or the largest power of two ≤ L/8 when the
 /// record length L is known and shorter (never below 2).
 pub fn default_segment(record_samples: Option<u64>) -> usize {
-    match record_samples {
-        Some(len) if len / 8 < DEFAULT_SEGMENT as u64 => {
-            let eighth = (len / 8).max(2);
-            let pow = 1u64 << (63 - eighth.leading_zeros());
-            pow as usize
-        }
-        _ => DEFAULT_SEGMENT,
-    }
+    crate::dsp::default_segment(record_samples)
 }
 
 /// Worker threads for the averager: one per core (at most 64).

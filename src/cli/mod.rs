@@ -13,7 +13,7 @@ mod bench_live;
 pub mod config;
 pub mod interrupt;
 mod cross;
-mod monitor;
+pub mod monitor;
 mod output;
 mod pipeline;
 mod spectrum;

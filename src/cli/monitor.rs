@@ -53,44 +53,69 @@ pub fn run_demo(window: &WindowOptions) -> Result<ExitCode> {
 /// # Errors
 /// Bad options, or the window could not be created, or this build has none.
 pub fn run(args: &MonitorArgs, matches: Option<&ArgMatches>) -> Result<ExitCode> {
-    let source = config::source_config(&args.source)?;
-    if source.cross_channel.is_some() {
+    if args.source.cross_channel.is_some() {
         return Err(super::InputError(
             "--cross-channel works with spectrum and analyze only (the window shows one channel)"
                 .into(),
         )
         .into());
     }
-    let welch_given = any_given(matches, WELCH_IDS);
-    let analysis_given = any_given(matches, ANALYSIS_IDS);
-    let analysis = config::analysis_options(&args.calibration, &args.heterodyne, None)?;
     #[cfg(feature = "gui")]
     {
-        let mut options = crate::ui::MonitorOptions::for_source(source);
-        if welch_given {
-            let mut welch = args.welch.clone();
-            if !any_given(matches, &["averaging"]) {
-                // Watching live: a running average, not a mean of everything since start.
-                welch.averaging = AveragingArg::Exponential;
-            }
-            let segment = welch.segment.unwrap_or(DEFAULT_SEGMENT as u64);
-            welch.segment = Some(segment);
-            // The window takes the sample rate from the source; 1 Hz only passes validation.
-            options.welch = Some(config::welch_config(&welch, 1.0, None)?);
-        }
-        if analysis_given {
-            options.analysis = Some(analysis);
-        }
-        options.speed = args.speed;
-        apply_window_options(&mut options, &args.window);
+        let options = monitor_options(args, matches)?;
         crate::ui::run(options)?;
         Ok(ExitCode::SUCCESS)
     }
     #[cfg(not(feature = "gui"))]
     {
-        let _ = (source, welch_given, analysis_given, analysis);
+        let _ = config::source_config(&args.source)?;
+        let _ = config::analysis_options(&args.calibration, &args.heterodyne, None)?;
+        let _ = (
+            any_given(matches, WELCH_IDS),
+            any_given(matches, ANALYSIS_IDS),
+        );
         Err(super::InputError(NO_WINDOW.into()).into())
     }
+}
+
+/// The window's start-up options for `stillpoint monitor …`: the analysis options exactly
+/// as `analyze` builds them (one type, handed to the engine unchanged), and the Welch
+/// options typed; a segment or an averaging not typed stays automatic (chosen for the
+/// source as the command line does on a recording).
+///
+/// # Errors
+/// Bad source, Welch or calibration options.
+#[cfg(feature = "gui")]
+pub fn monitor_options(
+    args: &MonitorArgs,
+    matches: Option<&ArgMatches>,
+) -> Result<crate::ui::MonitorOptions> {
+    let source = config::source_config(&args.source)?;
+    let analysis = config::analysis_options(&args.calibration, &args.heterodyne, None)?;
+    let mut options = crate::ui::MonitorOptions::for_source(source);
+    if any_given(matches, WELCH_IDS) {
+        let mut welch = args.welch.clone();
+        // The window takes the sample rate from the source; 1 Hz only passes validation.
+        let segment_auto = welch.segment.is_none();
+        welch.segment = Some(welch.segment.unwrap_or(DEFAULT_SEGMENT as u64));
+        let averaging_auto = !any_given(matches, &["averaging"]);
+        if averaging_auto {
+            welch.averaging = AveragingArg::Mean;
+        }
+        let config = config::welch_config(&welch, 1.0, None)?;
+        let mut settings = crate::model::WelchSettings::from_config(&config);
+        settings.segment_auto = segment_auto;
+        if averaging_auto {
+            settings.averaging = crate::model::AveragingChoice::Auto;
+        }
+        options.welch = Some(settings);
+    }
+    if any_given(matches, ANALYSIS_IDS) {
+        options.analysis = Some(analysis);
+    }
+    options.speed = args.speed;
+    apply_window_options(&mut options, &args.window);
+    Ok(options)
 }
 
 /// Copies the window options into the window's start-up options.

@@ -19,11 +19,13 @@
 
 pub mod bench;
 pub mod cross;
+mod defaults;
 mod error;
 pub mod units;
 pub mod welch;
 pub mod window;
 
+pub use defaults::{DEFAULT_SEGMENT, default_segment};
 pub use error::{DspError, Result};
 pub use welch::{Averaging, Detrend, MEDIAN_MEMORY_LIMIT_BYTES, Spectrum, Welch, WelchConfig};
 pub use window::{WindowConstants, WindowKind};

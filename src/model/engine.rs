@@ -12,10 +12,10 @@ use crossbeam_channel::{Receiver, Sender, TrySendError, bounded, never, select};
 
 use super::decimate::log_columns_max;
 use super::history::{TrendPoint, WaterfallRow};
-use super::state::WelchSettings;
+use super::state::{SourceKind, WelchSettings};
 use super::{ModelError, Result};
 use crate::acquire::{
-    self, AcqCommand, AcqEvent, AcqOptions, AcqStatus, Acquisition, SourceConfig,
+    self, AcqCommand, AcqEvent, AcqOptions, AcqStatus, Acquisition, SourceConfig, SourceSpec,
 };
 use crate::dsp::{Spectrum, Welch};
 use crate::report::{self, AnalysisOptions, Report};
@@ -131,6 +131,29 @@ pub struct EngineStatus {
     pub elapsed_s: f64,
     /// Wall time of the last analysis, s.
     pub analysis_s: f64,
+    /// How the spectrum is averaged, in words ("mean of every segment (auto: a recording)").
+    pub averaging: String,
+    /// True for a recording of known length (Restart after its end replays it).
+    pub recording: bool,
+    /// The average holds the K segments asked for ("at most K") and takes no more.
+    pub max_averages_reached: Option<usize>,
+    /// A live source has delivered nothing for this long, s (waiting for it).
+    pub waiting_s: Option<f64>,
+    /// Times a live source reconnected.
+    pub reconnects: u64,
+    /// The last interruption of a live source, in words ("reconnected after 3.2 s, about
+    /// 320 000 samples lost").
+    pub stream_note: Option<String>,
+}
+
+/// Something that happened during the session, marked on the history (a band set by hand,
+/// a gap in a live stream).
+#[derive(Debug, Clone, PartialEq)]
+pub struct SessionMark {
+    /// Seconds since the engine started (the time axis of the history).
+    pub time_s: f64,
+    /// What happened.
+    pub text: String,
 }
 
 /// One update for the window.
@@ -157,14 +180,20 @@ pub struct Frame {
     pub waterfall_row: Option<WaterfallRow>,
     /// A new trend point, about once per history interval.
     pub trend: Option<TrendPoint>,
+    /// Marks since the previous frame.
+    pub marks: Vec<SessionMark>,
 }
 
 /// A message that must not be lost (sent on its own channel).
 #[derive(Debug, Clone, PartialEq)]
 pub enum EngineNotice {
-    /// A source was opened.
+    /// A source was opened (its description).
     Opened(String),
-    /// Something failed (opening a source, bad settings); shown in red.
+    /// A source could not be opened; the one running before (if any) runs on untouched.
+    OpenFailed(String),
+    /// Something the user should know that is not a failure (a stream reconnected).
+    Info(String),
+    /// Something failed (bad settings, a source that stopped with an error); shown in red.
     Error(String),
 }
 
@@ -248,6 +277,7 @@ impl Drop for Engine {
 struct Source {
     acquisition: Acquisition,
     live: bool,
+    kind: SourceKind,
 }
 
 /// Events of the acquisition queue. A pipe delivers at most 16 Ki f32 samples per read, so
@@ -261,8 +291,17 @@ const SOURCE_QUEUE: usize = 256;
 /// reader wait, blocks it cannot take in time are dropped and counted. Recordings and the demo
 /// are paced at `speed` × real time; live sources come as fast as they come.
 fn start_source(config: &SourceConfig, speed: Option<f64>) -> Result<(Source, f64, String)> {
+    let mut config = config.clone();
+    // The window keeps a TCP source across a dropped connection (with back-off), so the
+    // average and the history survive a restarted server.
+    config.reconnect = matches!(config.spec, SourceSpec::Tcp(_));
+    let config = &config;
     let reader = acquire::open(config).map_err(ModelError::Source)?;
     let live = reader.is_live() || config.spec.is_live() || config.follow;
+    let kind = match acquire::known_length(config) {
+        Some(len) if !live => SourceKind::Recording(len),
+        _ => SourceKind::Live,
+    };
     let rate = reader.sample_rate_hz();
     let options = AcqOptions {
         channel_capacity: SOURCE_QUEUE,
@@ -272,7 +311,15 @@ fn start_source(config: &SourceConfig, speed: Option<f64>) -> Result<(Source, f6
     };
     let acquisition = Acquisition::spawn(reader, options, None).map_err(ModelError::Source)?;
     let description = acquisition.description().to_string();
-    Ok((Source { acquisition, live }, rate, description))
+    Ok((
+        Source {
+            acquisition,
+            live,
+            kind,
+        },
+        rate,
+        description,
+    ))
 }
 
 /// Everything the engine thread owns.
@@ -302,6 +349,16 @@ struct Worker {
     last_publish: Instant,
     last_history: Option<Instant>,
     last_segment_arrival: Option<Instant>,
+    /// What the source is (for the automatic Welch settings).
+    source_kind: SourceKind,
+    /// When the last block arrived (or the source was opened).
+    last_block: Instant,
+    /// A reconnection was announced (Gap without missing samples) and no block came since.
+    reconnected: bool,
+    /// Take a history row at the next publish whatever the interval (end of a recording).
+    history_now: bool,
+    /// Marks not yet published.
+    marks: Vec<SessionMark>,
 }
 
 impl Worker {
@@ -338,7 +395,18 @@ impl Worker {
             last_publish: Instant::now(),
             last_history: None,
             last_segment_arrival: None,
+            source_kind: SourceKind::Live,
+            last_block: Instant::now(),
+            reconnected: false,
+            history_now: false,
+            marks: Vec::new(),
         }
+    }
+
+    fn mark(&mut self, text: String) {
+        let time_s = self.started.elapsed().as_secs_f64();
+        self.marks.push(SessionMark { time_s, text });
+        self.dirty = true;
     }
 
     fn notice(&self, notice: EngineNotice) {
@@ -383,21 +451,29 @@ impl Worker {
         self.source = None;
     }
 
+    /// Opens `config`. On failure the source running before (if any) keeps running and
+    /// everything shown from it stays: only a notice says what went wrong.
     fn open(&mut self, config: &SourceConfig) {
-        self.source = None;
-        self.generation += 1;
-        self.spectrum = None;
-        self.frequencies_hz = None;
-        self.log_psd = None;
-        self.report = None;
-        self.analysis_error = None;
-        self.last_history = None;
-        self.band_hz = self.config.analysis.mode_band_hz;
-        self.waterfall_range_hz = None;
-        self.status = EngineStatus::default();
         match start_source(config, self.config.playback_speed) {
             Ok((source, rate, description)) => {
+                self.generation += 1;
+                self.spectrum = None;
+                self.frequencies_hz = None;
+                self.log_psd = None;
+                self.report = None;
+                self.analysis_error = None;
+                self.last_history = None;
+                self.last_segment_arrival = None;
+                self.band_hz = self.config.analysis.mode_band_hz;
+                self.waterfall_range_hz = None;
+                self.status = EngineStatus::default();
+                self.marks.clear();
+                self.reconnected = false;
+                self.history_now = false;
+                self.last_block = Instant::now();
                 self.sample_rate_hz = rate;
+                self.source_kind = source.kind;
+                self.status.recording = matches!(source.kind, SourceKind::Recording(_));
                 self.status.source = description.clone();
                 self.status.sample_rate_hz = rate;
                 self.source = Some(source);
@@ -406,16 +482,24 @@ impl Worker {
                 self.notice(EngineNotice::Opened(description));
             }
             Err(e) => {
-                self.status.ended = Some(format!("cannot open source: {e}"));
-                self.status.failed = true;
-                self.notice(EngineNotice::Error(format!("cannot open source: {e}")));
+                let text = format!("cannot open source: {e}");
+                if self.source.is_none() && self.spectrum.is_none() {
+                    // Nothing was running: the status line says it too.
+                    self.status.ended = Some(text.clone());
+                    self.status.failed = true;
+                }
+                self.notice(EngineNotice::OpenFailed(text));
             }
         }
         self.dirty = true;
     }
 
     fn rebuild_welch(&mut self) {
-        let cfg = self.config.welch.to_config(self.sample_rate_hz);
+        let cfg = self
+            .config
+            .welch
+            .to_config_for(self.sample_rate_hz, self.source_kind);
+        let segment = cfg.segment;
         match Welch::new(cfg) {
             Ok(w) => {
                 self.welch = Some(w);
@@ -426,13 +510,22 @@ impl Worker {
                 self.notice(EngineNotice::Error(format!("Welch settings: {e}")));
             }
         }
-        self.status.segment = self.config.welch.segment;
+        self.status.segment = segment;
+        self.status.averaging = self.config.welch.describe_for(self.source_kind);
+        self.status.max_averages_reached = None;
         self.dirty = true;
     }
 
     fn command(&mut self, command: EngineCommand) {
         match command {
             EngineCommand::RestartAverage => {
+                if self.status.recording && self.status.ended.is_some() {
+                    // The recording has been played: play it again.
+                    let source = self.config.source.clone();
+                    self.open(&source);
+                    return;
+                }
+                self.status.max_averages_reached = None;
                 if let Some(w) = self.welch.as_mut() {
                     w.restart();
                 }
@@ -463,9 +556,18 @@ impl Worker {
                 options,
                 follow_mode,
             } => {
-                if options.mode_band_hz != self.band_hz {
-                    // A band set by hand: the waterfall re-centres on it.
-                    self.waterfall_range_hz = None;
+                if options.mode_band_hz != self.band_hz
+                    && let Some((lo, hi)) = options.mode_band_hz
+                {
+                    // A band set by hand: the history is kept and the change marked on it;
+                    // the waterfall's span moves only if the new band leaves it.
+                    if self
+                        .waterfall_range_hz
+                        .is_some_and(|(a, b)| lo < a || hi > b)
+                    {
+                        self.waterfall_range_hz = None;
+                    }
+                    self.mark(format!("fit band set to {:.0} … {:.0} Hz", lo, hi));
                 }
                 self.band_hz = options.mode_band_hz;
                 self.config.analysis = options;
@@ -488,6 +590,7 @@ impl Worker {
         match event {
             AcqEvent::Block(block) => {
                 self.status.samples += block.len() as u64;
+                self.block_arrived(block.len());
                 if self.status.paused {
                     self.skipped_while_paused = true;
                     return;
@@ -507,7 +610,7 @@ impl Worker {
                     s.acquisition.recycle(block);
                 }
             }
-            AcqEvent::Gap { .. } => {
+            AcqEvent::Gap { samples } => {
                 // Samples are missing: the next segment starts after the gap instead of
                 // spanning it (a segment across a gap has a phase jump). The dropped blocks
                 // themselves are counted in the status.
@@ -515,9 +618,14 @@ impl Worker {
                     w.discard_pending();
                 }
                 self.status.gaps += 1;
+                if samples == 0 {
+                    self.reconnected = true;
+                    self.status.reconnects += 1;
+                }
                 self.dirty = true;
             }
             AcqEvent::Status(s) => {
+                self.check_silence();
                 let warnings = reader_warnings(&s);
                 // A changed counter or warning is news even without a new segment (a stalled
                 // or reconnecting stream): publish it.
@@ -541,6 +649,9 @@ impl Worker {
                 } else {
                     "end of recording".into()
                 });
+                self.status.waiting_s = None;
+                // The last state of the record goes into the history too.
+                self.history_now = true;
                 self.dirty = true;
             }
             AcqEvent::Stopped(Some(e)) => {
@@ -548,6 +659,50 @@ impl Worker {
                 self.status.ended = Some(text.clone());
                 self.status.failed = true;
                 self.notice(EngineNotice::Error(text));
+                self.dirty = true;
+            }
+        }
+    }
+
+    /// A block arrived: if the live source had been silent (or had reconnected), say for how
+    /// long and about how many samples that cost, and mark it on the history.
+    fn block_arrived(&mut self, _samples: usize) {
+        let silent_s = self.last_block.elapsed().as_secs_f64();
+        self.last_block = Instant::now();
+        let was_waiting = self.status.waiting_s.take().is_some();
+        let reconnected = std::mem::take(&mut self.reconnected);
+        let live = self.source.as_ref().is_some_and(|s| s.live);
+        if !live || !(was_waiting || reconnected) {
+            return;
+        }
+        let lost = (silent_s * self.sample_rate_hz).round();
+        let what = if reconnected {
+            "reconnected"
+        } else {
+            "stream resumed"
+        };
+        let text = format!(
+            "{what} after {silent_s:.1} s without samples (about {} samples lost; the average \
+             and the history go on)",
+            crate::model::format::group_thousands(lost)
+        );
+        self.status.stream_note = Some(text.clone());
+        self.mark(format!("{what} after {silent_s:.1} s"));
+        self.notice(EngineNotice::Info(text));
+    }
+
+    /// A live source that has sent nothing for a second is shown as waiting (updated once a
+    /// second, so the window repaints only then).
+    fn check_silence(&mut self) {
+        let live = self.source.as_ref().is_some_and(|s| s.live);
+        if !live || self.status.paused || self.status.ended.is_some() {
+            return;
+        }
+        let silent_s = self.last_block.elapsed().as_secs_f64();
+        if silent_s >= 1.0 {
+            let shown = self.status.waiting_s.map(f64::floor);
+            self.status.waiting_s = Some(silent_s);
+            if shown != Some(silent_s.floor()) {
                 self.dirty = true;
             }
         }
@@ -632,9 +787,23 @@ impl Worker {
         } else {
             self.status.averages = 0;
         }
-        self.status.latency_s = self
-            .last_segment_arrival
-            .map_or(0.0, |t| t.elapsed().as_secs_f64());
+        if fresh {
+            // From the arrival of the newest segment to its frame; held (not growing) while
+            // nothing new arrives (a recording that has ended, a full "at most K" average).
+            self.status.latency_s = self
+                .last_segment_arrival
+                .map_or(0.0, |t| t.elapsed().as_secs_f64());
+        }
+        if let (Some(k), Some(s)) = (self.config.welch.max_averages, &self.spectrum)
+            && s.averages >= k
+            && self.status.max_averages_reached.is_none()
+            && !matches!(
+                s.averaging,
+                crate::dsp::Averaging::Exponential { .. } | crate::dsp::Averaging::MaxHold
+            )
+        {
+            self.status.max_averages_reached = Some(k);
+        }
         self.status.elapsed_s = self.started.elapsed().as_secs_f64();
 
         let mut waterfall_row = None;
@@ -642,8 +811,8 @@ impl Worker {
         let history_due = self
             .last_history
             .is_none_or(|t| t.elapsed() >= self.config.history_interval);
-        if fresh
-            && history_due
+        let history_now = std::mem::take(&mut self.history_now);
+        if (fresh && history_due || history_now)
             && !self.status.paused
             && let Some(s) = &self.spectrum
         {
@@ -673,6 +842,7 @@ impl Worker {
             status: self.status.clone(),
             waterfall_row,
             trend,
+            marks: std::mem::take(&mut self.marks),
         };
         if let Err(TrySendError::Full(frame)) = self.frames.try_send(frame) {
             let _ = self.frames_drop.try_recv();
@@ -874,6 +1044,7 @@ mod tests {
             seed: 1,
         }));
         cfg.welch.segment = 4096;
+        cfg.welch.segment_auto = false;
         cfg.history_interval = Duration::from_millis(100);
         cfg.publish_interval = Duration::from_millis(50);
         let woken = Arc::new(std::sync::atomic::AtomicUsize::new(0));
@@ -929,7 +1100,7 @@ mod tests {
             }
             std::thread::sleep(Duration::from_millis(20));
         }
-        assert!(matches!(got, Some(EngineNotice::Error(_))), "{got:?}");
+        assert!(matches!(got, Some(EngineNotice::OpenFailed(_))), "{got:?}");
         drop(engine); // joins without hanging
     }
 }

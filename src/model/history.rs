@@ -16,6 +16,25 @@ pub struct WaterfallRow {
     pub log_psd: Vec<f32>,
 }
 
+/// Values on `columns` log-spaced columns over `to`, read from log-spaced `values` over
+/// `from` (the column holding each new column's centre; NaN outside `from`).
+fn regrid(values: &[f32], from: (f64, f64), to: (f64, f64), columns: usize) -> Vec<f32> {
+    let n = values.len();
+    let span_from = (from.1 / from.0).ln();
+    let span_to = (to.1 / to.0).ln();
+    (0..columns)
+        .map(|j| {
+            let f = to.0 * (span_to * (j as f64 + 0.5) / columns as f64).exp();
+            let u = (f / from.0).ln() / span_from;
+            if !(u.is_finite() && (0.0..1.0).contains(&u)) {
+                return f32::NAN;
+            }
+            let k = (u * n as f64) as usize;
+            values.get(k).copied().unwrap_or(f32::NAN)
+        })
+        .collect()
+}
+
 /// A ring of the newest waterfall rows.
 #[derive(Debug, Clone)]
 pub struct Waterfall {
@@ -39,12 +58,17 @@ impl Waterfall {
     }
 
     /// Adds a row. A row on a different grid (span or column count) than the ones held
-    /// clears the history first.
+    /// keeps the history: the rows held are resampled onto the new grid (NaN where they
+    /// have no data) and the epoch changes (a texture repaints in full).
     pub fn push(&mut self, row: WaterfallRow) {
         if let Some(last) = self.rows.back()
             && (last.range_hz != row.range_hz || last.log_psd.len() != row.log_psd.len())
         {
-            self.clear();
+            for r in &mut self.rows {
+                r.log_psd = regrid(&r.log_psd, r.range_hz, row.range_hz, row.log_psd.len());
+                r.range_hz = row.range_hz;
+            }
+            self.epoch += 1;
         }
         if self.rows.len() == self.capacity {
             self.rows.pop_front();
@@ -259,6 +283,14 @@ mod tests {
     }
 
     #[test]
+    fn regrid_reads_the_column_of_each_new_centre() {
+        // three decades in three columns onto six decades in six columns
+        let v = regrid(&[0.0, 1.0, 2.0], (1.0, 1e3), (1.0, 1e6), 6);
+        assert_eq!(&v[..3], &[0.0, 1.0, 2.0]);
+        assert!(v[3..].iter().all(|x| x.is_nan()));
+    }
+
+    #[test]
     fn waterfall_is_a_bounded_ring() {
         let mut w = Waterfall::new(10);
         for i in 0..25 {
@@ -268,10 +300,11 @@ mod tests {
         assert_eq!(w.rows().front().unwrap().time_s, 15.0);
         assert_eq!(w.rows().back().unwrap().time_s, 24.0);
         assert_eq!(w.pushed(), 25);
-        // a new grid clears
+        // a new grid keeps the history, resampled onto it
         let e = w.epoch();
         w.push(row(30.0, 16));
-        assert_eq!(w.rows().len(), 1);
+        assert_eq!(w.rows().len(), 10);
+        assert!(w.rows().iter().all(|r| r.log_psd.len() == 16));
         assert_ne!(w.epoch(), e);
         let (lo, hi) = w.value_range().unwrap();
         assert!(lo <= hi);

@@ -9,16 +9,19 @@
 pub mod curves;
 pub mod decimate;
 pub mod engine;
+pub mod format;
 pub mod history;
 pub mod snapshots;
 pub mod state;
 
 pub use decimate::{bench_plot_prep, decimate_minmax, log_columns_max};
-pub use engine::{Engine, EngineCommand, EngineConfig, EngineNotice, EngineStatus, Frame, Waker};
+pub use engine::{
+    Engine, EngineCommand, EngineConfig, EngineNotice, EngineStatus, Frame, SessionMark, Waker,
+};
 pub use history::{CalibrationDrift, TrendBuffer, TrendPoint, Waterfall, WaterfallRow};
 pub use snapshots::LoadedSnapshot;
 pub use state::{
-    AppState, AveragingChoice, CalibrationInputs, CalibrationMethod, Overlays, WelchSettings,
+    AppState, AveragingChoice, CalibrationMethod, Overlays, SourceKind, WelchSettings,
 };
 
 /// Result alias of the model.
@@ -50,10 +53,16 @@ pub struct LiveState {
     pub waterfall: Waterfall,
     /// Trend strips.
     pub trends: TrendBuffer,
+    /// Marks of the session (band set by hand, gaps in a live stream), oldest first; at
+    /// most [`SESSION_MARKS`].
+    pub marks: std::collections::VecDeque<SessionMark>,
     /// Frames applied since start.
     pub frames_applied: u64,
     generation: u64,
 }
+
+/// Session marks kept.
+pub const SESSION_MARKS: usize = 256;
 
 impl Default for LiveState {
     fn default() -> Self {
@@ -68,6 +77,7 @@ impl LiveState {
             frame: None,
             waterfall: Waterfall::new(WATERFALL_ROWS),
             trends: TrendBuffer::new(TREND_POINTS),
+            marks: std::collections::VecDeque::new(),
             frames_applied: 0,
             generation: 0,
         }
@@ -80,6 +90,13 @@ impl LiveState {
             self.generation = frame.generation;
             self.waterfall.clear();
             self.trends.clear();
+            self.marks.clear();
+        }
+        for m in frame.marks.drain(..) {
+            if self.marks.len() == SESSION_MARKS {
+                self.marks.pop_front();
+            }
+            self.marks.push_back(m);
         }
         if let Some(row) = frame.waterfall_row.take() {
             self.waterfall.push(row);
@@ -122,6 +139,7 @@ mod tests {
                 time_s: t,
                 ..TrendPoint::default()
             }),
+            marks: Vec::new(),
         };
         live.apply(frame(1, 0.0));
         live.apply(frame(1, 1.0));

@@ -110,10 +110,13 @@ pub fn plot_y_from_m2(psd_m2_per_hz: f64, unit: DensityUnit, m_per_v: Option<f64
 /// Which averaging the Welch settings ask for (a flat enum for a combo box).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
 pub enum AveragingChoice {
+    /// Chosen for the source: the mean of every segment on a recording (as the command line
+    /// computes it), a running exponential average on a live source.
+    #[default]
+    Auto,
     /// Arithmetic mean of all (or the first K) segments.
     Linear,
-    /// Running exponential average with time constant τ segments (the live default).
-    #[default]
+    /// Running exponential average with time constant τ segments.
     Exponential,
     /// Bias-corrected median.
     Median,
@@ -123,25 +126,48 @@ pub enum AveragingChoice {
 
 impl AveragingChoice {
     /// All choices, in menu order.
-    pub const ALL: [Self; 4] = [Self::Exponential, Self::Linear, Self::Median, Self::MaxHold];
+    pub const ALL: [Self; 5] = [
+        Self::Auto,
+        Self::Linear,
+        Self::Exponential,
+        Self::Median,
+        Self::MaxHold,
+    ];
 
     /// Menu name.
     pub fn name(self) -> &'static str {
         match self {
-            Self::Linear => "linear",
-            Self::Exponential => "exponential",
+            Self::Auto => "auto (mean on a recording, running on a live source)",
+            Self::Linear => "mean",
+            Self::Exponential => "running (exponential)",
             Self::Median => "median",
             Self::MaxHold => "max-hold",
         }
     }
 }
 
+/// Segment length of a live source when the segment is left to the window (2¹⁴: a new
+/// spectrum several times a second at the usual digitiser rates).
+pub const LIVE_SEGMENT: usize = 16_384;
+
+/// What the source is, for settings chosen automatically.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SourceKind {
+    /// A recording of known length (samples of the analysed channel).
+    Recording(u64),
+    /// A stream without a known end (stdin, TCP, a followed file, the demo generator).
+    Live,
+}
+
 /// Welch settings as the user sets them (the sample rate comes from the source).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(default)]
 pub struct WelchSettings {
-    /// Segment length N, samples.
+    /// Segment length N, samples (used when `segment_auto` is off).
     pub segment: usize,
+    /// Choose the segment for the source: as the command line does on a recording (2¹⁶, or
+    /// the largest power of two ≤ a eighth of the record), [`LIVE_SEGMENT`] on a live source.
+    pub segment_auto: bool,
     /// Overlap fraction.
     pub overlap: f64,
     /// Window.
@@ -152,18 +178,19 @@ pub struct WelchSettings {
     pub averaging: AveragingChoice,
     /// τ of the exponential average, segments.
     pub time_constant_segments: f64,
-    /// At most this many segments (linear, median); `None` = all.
+    /// At most this many segments (mean, median); `None` = all.
     pub max_averages: Option<usize>,
 }
 
 impl Default for WelchSettings {
     fn default() -> Self {
         Self {
-            segment: 16_384,
+            segment: LIVE_SEGMENT,
+            segment_auto: true,
             overlap: 0.5,
             window: WindowKind::Hann,
             detrend: Detrend::Mean,
-            averaging: AveragingChoice::Exponential,
+            averaging: AveragingChoice::Auto,
             time_constant_segments: 16.0,
             max_averages: None,
         }
@@ -183,6 +210,7 @@ impl WelchSettings {
         };
         Self {
             segment: config.segment,
+            segment_auto: false,
             overlap: config.overlap,
             window: config.window,
             detrend: config.detrend,
@@ -192,11 +220,60 @@ impl WelchSettings {
         }
     }
 
-    /// The averager configuration at `sample_rate_hz`.
-    pub fn to_config(&self, sample_rate_hz: f64) -> WelchConfig {
-        let averaging = match self.averaging {
+    /// The segment length used on `source`.
+    pub fn segment_for(&self, source: SourceKind) -> usize {
+        if !self.segment_auto {
+            return self.segment;
+        }
+        match source {
+            SourceKind::Recording(len) => crate::dsp::default_segment(Some(len)),
+            SourceKind::Live => LIVE_SEGMENT,
+        }
+    }
+
+    /// The averaging used on `source` (`Auto` resolved).
+    pub fn averaging_for(&self, source: SourceKind) -> AveragingChoice {
+        match (self.averaging, source) {
+            (AveragingChoice::Auto, SourceKind::Recording(_)) => AveragingChoice::Linear,
+            (AveragingChoice::Auto, SourceKind::Live) => AveragingChoice::Exponential,
+            (a, _) => a,
+        }
+    }
+
+    /// One line for the user: what averages on `source` ("mean of every segment (auto:
+    /// a recording)").
+    pub fn describe_for(&self, source: SourceKind) -> String {
+        let what = match self.averaging_for(source) {
+            AveragingChoice::Linear => match self.max_averages {
+                Some(k) => format!("mean of the first {k} segments"),
+                None => "mean of every segment".to_string(),
+            },
+            AveragingChoice::Exponential | AveragingChoice::Auto => format!(
+                "running average, τ {} segments",
+                self.time_constant_segments.max(1.0)
+            ),
+            AveragingChoice::Median => match self.max_averages {
+                Some(k) => format!("median of the first {k} segments"),
+                None => "median of every segment".to_string(),
+            },
+            AveragingChoice::MaxHold => "max-hold".to_string(),
+        };
+        if self.averaging == AveragingChoice::Auto {
+            let kind = match source {
+                SourceKind::Recording(_) => "a recording",
+                SourceKind::Live => "a live source",
+            };
+            format!("{what} (auto: {kind})")
+        } else {
+            what
+        }
+    }
+
+    /// The averager configuration at `sample_rate_hz` for `source`.
+    pub fn to_config_for(&self, sample_rate_hz: f64, source: SourceKind) -> WelchConfig {
+        let averaging = match self.averaging_for(source) {
             AveragingChoice::Linear => Averaging::Linear,
-            AveragingChoice::Exponential => Averaging::Exponential {
+            AveragingChoice::Exponential | AveragingChoice::Auto => Averaging::Exponential {
                 time_constant_segments: self.time_constant_segments.max(1.0),
             },
             AveragingChoice::Median => Averaging::Median,
@@ -204,7 +281,7 @@ impl WelchSettings {
         };
         WelchConfig {
             sample_rate_hz,
-            segment: self.segment,
+            segment: self.segment_for(source),
             overlap: self.overlap,
             window: self.window,
             detrend: self.detrend,
@@ -212,9 +289,16 @@ impl WelchSettings {
             max_averages: self.max_averages,
         }
     }
+
+    /// The averager configuration at `sample_rate_hz` for a live source.
+    pub fn to_config(&self, sample_rate_hz: f64) -> WelchConfig {
+        self.to_config_for(sample_rate_hz, SourceKind::Live)
+    }
 }
 
-/// How volts become metres.
+/// The calibration methods of the window's menu, read from (and written into) the one
+/// analysis-settings type, [`AnalysisOptions`]: the menu is a view of those options, not a
+/// second copy of them.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
 pub enum CalibrationMethod {
     /// Uncalibrated: volts only.
@@ -250,131 +334,21 @@ impl CalibrationMethod {
             Self::Equipartition => "equipartition at bath T",
         }
     }
-}
 
-/// Calibration, mode and heterodyne inputs as the user sets them.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(default)]
-pub struct CalibrationInputs {
-    /// Method.
-    pub method: CalibrationMethod,
-    /// Given calibration, m/V.
-    pub m_per_v: f64,
-    /// Tone frequency, Hz.
-    pub tone_frequency_hz: f64,
-    /// Tone's equivalent rms displacement, m.
-    pub tone_rms_m: f64,
-    /// Phase-modulation depth β, rad.
-    pub pm_depth_rad: f64,
-    /// Frequency pull G/2π, Hz/m.
-    pub freq_pull_hz_per_m: f64,
-    /// Bath temperature, K (equipartition, and the thermal-expectation overlay).
-    pub bath_temperature_k: f64,
-    /// Effective mass, kg (`None`: quantum references off).
-    pub mass_kg: Option<f64>,
-    /// 1σ of the effective mass, kg (`None`: taken as exact).
-    pub mass_uncertainty_kg: Option<f64>,
-    /// 1σ of the bath temperature, K (`None`: taken as exact).
-    pub bath_temperature_uncertainty_k: Option<f64>,
-    /// Mode fit band, Hz (`None`: picked automatically around the strongest line).
-    pub mode_band_hz: Option<(f64, f64)>,
-    /// Let the band follow the fitted mode as it drifts.
-    pub follow_mode: bool,
-    /// Heterodyne carrier (IF), Hz; `None` for direct detection.
-    pub carrier_hz: Option<f64>,
-    /// LO above the laser (true) or below (false).
-    pub lo_above: bool,
-    /// Stray-peak threshold over the floor, dB.
-    pub peak_threshold_db: f64,
-}
-
-impl Default for CalibrationInputs {
-    fn default() -> Self {
-        Self {
-            method: CalibrationMethod::None,
-            m_per_v: 1e-9,
-            tone_frequency_hz: 0.0,
-            tone_rms_m: 1e-15,
-            pm_depth_rad: 1e-3,
-            freq_pull_hz_per_m: 1e18,
-            bath_temperature_k: 4.0,
-            mass_kg: None,
-            mass_uncertainty_kg: None,
-            bath_temperature_uncertainty_k: None,
-            mode_band_hz: None,
-            follow_mode: true,
-            carrier_hz: None,
-            lo_above: true,
-            peak_threshold_db: 10.0,
+    /// The method `options` stand for (the same precedence as the analysis: a given m/V,
+    /// then a tone, then equipartition).
+    pub fn of(options: &AnalysisOptions) -> Self {
+        if options.m_per_v.is_some() {
+            Self::Given
+        } else if options.tone_frequency_hz.is_some() && options.tone_rms_m.is_some() {
+            Self::ToneDisplacement
+        } else if options.tone_frequency_hz.is_some() && options.pm_depth_rad.is_some() {
+            Self::TonePhaseModulation
+        } else if options.bath_temperature_k.is_some() {
+            Self::Equipartition
+        } else {
+            Self::None
         }
-    }
-}
-
-impl CalibrationInputs {
-    /// Inputs taken from the command-line analysis options.
-    pub fn from_options(options: &AnalysisOptions) -> Self {
-        let mut c = Self::default();
-        if let Some(v) = options.m_per_v {
-            c.method = CalibrationMethod::Given;
-            c.m_per_v = v;
-        }
-        if let Some(f) = options.tone_frequency_hz {
-            c.tone_frequency_hz = f;
-            if let Some(x) = options.tone_rms_m {
-                c.method = CalibrationMethod::ToneDisplacement;
-                c.tone_rms_m = x;
-            }
-            if let (Some(b), Some(g)) = (options.pm_depth_rad, options.freq_pull_hz_per_m) {
-                c.method = CalibrationMethod::TonePhaseModulation;
-                c.pm_depth_rad = b;
-                c.freq_pull_hz_per_m = g;
-            }
-        }
-        if let Some(t) = options.bath_temperature_k {
-            c.bath_temperature_k = t;
-            if c.method == CalibrationMethod::None {
-                c.method = CalibrationMethod::Equipartition;
-            }
-        }
-        c.mass_kg = options.mass_kg;
-        c.mass_uncertainty_kg = options.mass_uncertainty_kg;
-        c.bath_temperature_uncertainty_k = options.bath_temperature_uncertainty_k;
-        c.mode_band_hz = options.mode_band_hz;
-        c.carrier_hz = options.carrier_hz;
-        c.lo_above = options.lo_above.unwrap_or(true);
-        c.peak_threshold_db = options.peak_threshold_db.unwrap_or(10.0);
-        c
-    }
-
-    /// The analysis options these inputs stand for (only the chosen method's fields set).
-    pub fn to_options(&self) -> AnalysisOptions {
-        let mut o = AnalysisOptions {
-            mass_kg: self.mass_kg,
-            mass_uncertainty_kg: self.mass_kg.and(self.mass_uncertainty_kg),
-            mode_band_hz: self.mode_band_hz,
-            carrier_hz: self.carrier_hz,
-            lo_above: self.carrier_hz.map(|_| self.lo_above),
-            peak_threshold_db: Some(self.peak_threshold_db),
-            ..AnalysisOptions::default()
-        };
-        match self.method {
-            CalibrationMethod::None => {}
-            CalibrationMethod::Given => o.m_per_v = Some(self.m_per_v),
-            CalibrationMethod::ToneDisplacement => {
-                o.tone_frequency_hz = Some(self.tone_frequency_hz);
-                o.tone_rms_m = Some(self.tone_rms_m);
-            }
-            CalibrationMethod::TonePhaseModulation => {
-                o.tone_frequency_hz = Some(self.tone_frequency_hz);
-                o.pm_depth_rad = Some(self.pm_depth_rad);
-                o.freq_pull_hz_per_m = Some(self.freq_pull_hz_per_m);
-            }
-            CalibrationMethod::Equipartition => {
-                o.bath_temperature_k = Some(self.bath_temperature_k);
-                o.bath_temperature_uncertainty_k = self.bath_temperature_uncertainty_k;
-            }
-        }
-        o
     }
 }
 
@@ -422,8 +396,15 @@ pub struct AppState {
     pub overlays: Overlays,
     /// Welch settings.
     pub welch: WelchSettings,
-    /// Calibration, mode band, heterodyne inputs.
-    pub calibration: CalibrationInputs,
+    /// Calibration, mode band, heterodyne and fit options: the same type the command line
+    /// builds and the analysis takes, carried unchanged to the engine.
+    pub analysis: AnalysisOptions,
+    /// Let the fit band follow the fitted mode as it drifts (and pick one around the
+    /// strongest line when none is given).
+    pub follow_mode: bool,
+    /// The source these settings were last used with (to say so when they are applied to
+    /// another one).
+    pub settings_source: Option<String>,
     /// Playback speed of recordings (1 = real time).
     pub playback_speed: f64,
     /// Folder of the last snapshot saved or loaded.
@@ -440,7 +421,9 @@ impl Default for AppState {
             unit: DensityUnit::M2PerHz,
             overlays: Overlays::default(),
             welch: WelchSettings::default(),
-            calibration: CalibrationInputs::default(),
+            analysis: AnalysisOptions::default(),
+            follow_mode: true,
+            settings_source: None,
             playback_speed: 1.0,
             last_snapshot_dir: None,
             last_source_path: None,
@@ -498,26 +481,48 @@ mod tests {
     }
 
     #[test]
-    fn calibration_inputs_roundtrip_through_options() {
-        let o = AnalysisOptions {
-            tone_frequency_hz: Some(1.05e6),
-            pm_depth_rad: Some(1e-3),
-            freq_pull_hz_per_m: Some(1e18),
-            mass_kg: Some(1e-13),
-            mass_uncertainty_kg: Some(1e-14),
-            mode_band_hz: Some((0.9e6, 1.1e6)),
-            ..AnalysisOptions::default()
-        };
-        let c = CalibrationInputs::from_options(&o);
-        assert_eq!(c.method, CalibrationMethod::TonePhaseModulation);
-        let back = c.to_options();
-        assert_eq!(back.tone_frequency_hz, o.tone_frequency_hz);
-        assert_eq!(back.pm_depth_rad, o.pm_depth_rad);
-        assert_eq!(back.mass_kg, o.mass_kg);
-        assert_eq!(back.mass_uncertainty_kg, o.mass_uncertainty_kg);
-        assert_eq!(back.mode_band_hz, o.mode_band_hz);
-        assert_eq!(back.m_per_v, None);
-        assert_eq!(back.bath_temperature_k, None);
+    fn calibration_method_is_read_from_the_options() {
+        let mut o = AnalysisOptions::default();
+        assert_eq!(CalibrationMethod::of(&o), CalibrationMethod::None);
+        o.bath_temperature_k = Some(4.0);
+        assert_eq!(CalibrationMethod::of(&o), CalibrationMethod::Equipartition);
+        o.tone_frequency_hz = Some(1e5);
+        o.pm_depth_rad = Some(1e-3);
+        o.freq_pull_hz_per_m = Some(1e18);
+        // a tone calibration with a bath temperature given beside it stays a tone calibration
+        assert_eq!(
+            CalibrationMethod::of(&o),
+            CalibrationMethod::TonePhaseModulation
+        );
+        o.m_per_v = Some(1e-9);
+        assert_eq!(CalibrationMethod::of(&o), CalibrationMethod::Given);
+    }
+
+    #[test]
+    fn automatic_welch_settings_follow_the_source() {
+        let w = WelchSettings::default();
+        // A recording: the command line's rule (2^16, or ≤ a eighth of the record), mean.
+        let rec = SourceKind::Recording(3_000_000);
+        let c = w.to_config_for(1e5, rec);
+        assert_eq!(c.segment, 65_536);
+        assert_eq!(c.averaging, Averaging::Linear);
+        assert_eq!(
+            w.to_config_for(1e5, SourceKind::Recording(200_000)).segment,
+            16_384
+        );
+        assert!(w.describe_for(rec).contains("mean of every segment"));
+        // A live source: a short segment and a running average.
+        let c = w.to_config_for(1e5, SourceKind::Live);
+        assert_eq!(c.segment, LIVE_SEGMENT);
+        assert!(matches!(c.averaging, Averaging::Exponential { .. }));
+        assert!(w.describe_for(SourceKind::Live).contains("live source"));
+        // Chosen by hand: used as given on both.
+        let mut w = w;
+        w.segment_auto = false;
+        w.segment = 4096;
+        w.averaging = AveragingChoice::Median;
+        assert_eq!(w.to_config_for(1e5, rec).segment, 4096);
+        assert_eq!(w.to_config_for(1e5, rec).averaging, Averaging::Median);
     }
 
     #[test]

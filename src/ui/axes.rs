@@ -155,9 +155,13 @@ fn format_mantissa(m: f64) -> String {
 }
 
 /// Tick label of the log10-frequency axis: decades ("10 kHz") or round frequencies when
-/// zoomed in; empty for minor marks.
+/// zoomed in; empty for minor marks, and for marks so close to the right end of the axis
+/// that a label centred on them would be cut off ("6.0 kH").
 pub fn frequency_tick(mark: GridMark, range: &RangeInclusive<f64>) -> String {
     let (lo, hi) = (*range.start(), *range.end());
+    if mark.value > hi - 0.04 * (hi - lo) {
+        return String::new();
+    }
     let f = 10f64.powf(mark.value);
     if let Some(step) = linear_step_hz((lo, hi)) {
         let k = f / step;
@@ -255,5 +259,11 @@ mod tests {
             .filter(|s| !s.is_empty())
             .collect();
         assert!(labels.contains(&"86.2 kHz".to_string()), "{labels:?}");
+        // a mark at the very right end gets no label (it would be cut off)
+        let end = GridMark {
+            value: hi - 0.01 * (hi - lo),
+            step_size: 1.0,
+        };
+        assert_eq!(frequency_tick(end, &(lo..=hi)), "");
     }
 }

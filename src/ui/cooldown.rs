@@ -271,6 +271,7 @@ fn trends_ui(ui: &mut Ui, live: &LiveState, height: f32) {
                         .color(colour)
                         .width(1.5),
                 );
+                super::plot::session_marks(pui, live);
             });
     }
 }

@@ -6,7 +6,7 @@ use std::path::{Path, PathBuf};
 
 use eframe::egui::{self, ColorImage, RichText, Ui};
 
-use super::{StillpointApp, UiCommand, theme};
+use super::{MessageKind, StillpointApp, UiCommand, theme};
 use crate::model::{AppState, LoadedSnapshot};
 
 /// What the overwrite question is about.
@@ -119,7 +119,8 @@ impl FileState {
     }
 }
 
-/// A new snapshot path in the last folder, named by the local date and time.
+/// A new snapshot path in the last folder, named by the date and time (UTC, readable:
+/// `stillpoint-snapshot-2026-12-03_07-45-12Z.json`).
 pub fn auto_snapshot_path(state: &AppState) -> String {
     let dir = state
         .last_snapshot_dir
@@ -129,11 +130,12 @@ pub fn auto_snapshot_path(state: &AppState) -> String {
     let secs = std::time::SystemTime::now()
         .duration_since(std::time::UNIX_EPOCH)
         .map_or(0, |d| d.as_secs());
+    let stamp = crate::model::format::utc_file_stamp(secs);
     for i in 0..1000 {
         let name = if i == 0 {
-            format!("stillpoint-snapshot-{secs}.json")
+            format!("stillpoint-snapshot-{stamp}Z.json")
         } else {
-            format!("stillpoint-snapshot-{secs}-{i}.json")
+            format!("stillpoint-snapshot-{stamp}Z-{i}.json")
         };
         let p = dir.join(name);
         if !p.exists() {
@@ -210,6 +212,13 @@ pub fn snapshots_ui(
             let colour = theme::SNAPSHOT_COLOURS[i % theme::SNAPSHOT_COLOURS.len()];
             ui.label(RichText::new("■").color(colour));
             ui.checkbox(&mut s.visible, &s.name);
+            if crate::model::state::unit_is_displacement(state.unit) && s.m_per_v.is_none() {
+                ui.label(RichText::new("volts only: not drawn in metres").color(theme::WARN))
+                    .on_hover_text(
+                        "this snapshot was saved without a calibration; switch to a volt unit \
+                         to see it",
+                    );
+            }
             let is_ref = *reference == Some(i);
             if ui
                 .selectable_label(is_ref, "reference")
@@ -304,7 +313,6 @@ pub fn snapshots_ui(
             }
         }
     }
-    let _ = state;
     out
 }
 
@@ -321,13 +329,19 @@ impl StillpointApp {
     pub(super) fn save_snapshot(&mut self, overwrite: bool) {
         let path = match Self::typed_path(&self.files.snapshot_path, "snapshot") {
             Ok(p) => p,
-            Err(e) => return self.error(e),
+            Err(e) => return self.error(MessageKind::Snapshot, e),
         };
         let Some(frame) = self.live.frame.clone() else {
-            return self.error("nothing to save yet: no spectrum has arrived");
+            return self.error(
+                MessageKind::Snapshot,
+                "nothing to save yet: no spectrum has arrived",
+            );
         };
         let Some(spectrum) = frame.spectrum.clone() else {
-            return self.error("nothing to save yet: no spectrum has arrived");
+            return self.error(
+                MessageKind::Snapshot,
+                "nothing to save yet: no spectrum has arrived",
+            );
         };
         if !overwrite && path.exists() {
             self.files.confirm_overwrite = Some(path);
@@ -348,31 +362,43 @@ impl StillpointApp {
                 if let Some(dir) = path.parent() {
                     self.state.last_snapshot_dir = Some(dir.to_path_buf());
                 }
-                self.info(format!("snapshot saved: {}", saved.path.display()));
+                self.info(
+                    MessageKind::Snapshot,
+                    format!("snapshot saved: {}", saved.path.display()),
+                );
                 self.snapshots.push(saved);
             }
-            Err(e) => self.error(format!("cannot save the snapshot: {e}")),
+            Err(e) => self.error(
+                MessageKind::Snapshot,
+                format!("cannot save the snapshot: {e}"),
+            ),
         }
     }
 
     pub(super) fn load_snapshot(&mut self) {
         let path = match Self::typed_path(&self.files.snapshot_path, "snapshot") {
             Ok(p) => p,
-            Err(e) => return self.error(e),
+            Err(e) => return self.error(MessageKind::Snapshot, e),
         };
         match crate::model::snapshots::load(&path) {
             Ok(s) => {
                 if let Some(dir) = path.parent() {
                     self.state.last_snapshot_dir = Some(dir.to_path_buf());
                 }
-                self.info(format!(
-                    "snapshot loaded: {} ({} bins)",
-                    s.name,
-                    s.frequencies_hz.len()
-                ));
+                self.info(
+                    MessageKind::Snapshot,
+                    format!(
+                        "snapshot loaded: {} ({} bins)",
+                        s.name,
+                        s.frequencies_hz.len()
+                    ),
+                );
                 self.snapshots.push(s);
             }
-            Err(e) => self.error(format!("cannot load {}: {e}", path.display())),
+            Err(e) => self.error(
+                MessageKind::Snapshot,
+                format!("cannot load {}: {e}", path.display()),
+            ),
         }
     }
 
@@ -386,8 +412,8 @@ impl StillpointApp {
             .unwrap_or_default();
         for r in done {
             match r {
-                Ok(p) => self.info(format!("PNG saved: {p}")),
-                Err(e) => self.error(format!("cannot save the PNG: {e}")),
+                Ok(p) => self.info(MessageKind::Export, format!("PNG saved: {p}")),
+                Err(e) => self.error(MessageKind::Export, format!("cannot save the PNG: {e}")),
             }
         }
     }
@@ -395,7 +421,7 @@ impl StillpointApp {
     pub(super) fn export_png(&mut self, ctx: &egui::Context, overwrite: bool) {
         let path = match Self::typed_path(&self.files.png_path, "PNG export") {
             Ok(p) => p,
-            Err(e) => return self.error(e),
+            Err(e) => return self.error(MessageKind::Export, e),
         };
         if !overwrite && path.exists() {
             self.files.confirm_overwrite = Some(path);
@@ -411,6 +437,9 @@ impl StillpointApp {
             }
             ctx2.request_repaint();
         });
-        self.info("PNG export requested (written after the next frame)");
+        self.info(
+            MessageKind::Export,
+            "PNG export requested (written after the next frame)",
+        );
     }
 }

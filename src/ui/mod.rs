@@ -15,7 +15,7 @@ mod plot;
 mod theme;
 
 use std::path::PathBuf;
-use std::time::Duration;
+use std::time::{Duration, Instant};
 
 use eframe::egui::{self, Key, RichText};
 
@@ -23,8 +23,8 @@ use crate::acquire::{SourceConfig, SourceSpec};
 use crate::dsp::WelchConfig;
 use crate::dsp::units::DensityUnit;
 use crate::model::{
-    self, AppState, CalibrationInputs, CalibrationMethod, Engine, EngineCommand, EngineConfig,
-    EngineNotice, LiveState, LoadedSnapshot, WelchSettings,
+    self, AppState, Engine, EngineCommand, EngineConfig, EngineNotice, LiveState, LoadedSnapshot,
+    WelchSettings,
 };
 use crate::report::AnalysisOptions;
 
@@ -34,8 +34,9 @@ pub struct MonitorOptions {
     /// Source to open.
     pub source: SourceConfig,
     /// Welch settings from the command line (`None`: the remembered ones, or defaults).
-    pub welch: Option<WelchConfig>,
-    /// Calibration/mode/heterodyne options from the command line (`None`: remembered).
+    pub welch: Option<WelchSettings>,
+    /// Calibration/mode/heterodyne/fit options from the command line, taken as they are
+    /// (`None`: the remembered ones, or defaults).
     pub analysis: Option<AnalysisOptions>,
     /// Playback speed of recordings (1 = real time; `None`: remembered, default 1).
     pub speed: Option<f64>,
@@ -66,7 +67,7 @@ impl MonitorOptions {
             w.averaging = crate::dsp::Averaging::Exponential {
                 time_constant_segments: 8.0,
             };
-            welch = Some(w);
+            welch = Some(WelchSettings::from_config(&w));
         }
         Self {
             source: SourceConfig::new(SourceSpec::Demo {
@@ -117,14 +118,47 @@ pub fn run(options: MonitorOptions) -> anyhow::Result<()> {
     .map_err(|e| anyhow::anyhow!("cannot open the window: {e}"))
 }
 
-/// A message shown in the window.
+/// What a message is about: a later success of the same kind clears an error of that kind
+/// (a corrected mistake does not stay on screen).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum MessageKind {
+    /// Opening a source.
+    Source,
+    /// The averaging settings.
+    Averaging,
+    /// The calibration and mode settings.
+    Analysis,
+    /// Snapshot files.
+    Snapshot,
+    /// PNG export.
+    Export,
+    /// Anything else.
+    Other,
+}
+
+/// A message shown in the window (above the plot; at most [`MESSAGES_SHOWN`] at a time).
 #[derive(Debug, Clone, PartialEq)]
 pub struct UiMessage {
     /// Text.
     pub text: String,
     /// Shown in red.
     pub error: bool,
+    /// What it is about.
+    pub kind: MessageKind,
+    /// A button offered with it (label, command).
+    pub action: Option<(String, UiCommand)>,
+    /// Window time (s) after which it goes away by itself; `None`: until dismissed.
+    pub expires_at: Option<f64>,
 }
+
+/// Messages shown at once (newest); older ones are counted and reachable by dismissing.
+pub const MESSAGES_SHOWN: usize = 3;
+/// Messages kept at most.
+const MESSAGES_KEPT: usize = 8;
+/// Seconds an information message stays.
+pub const INFO_SECONDS: f64 = 8.0;
+/// Seconds an error stays (unless dismissed or corrected first).
+pub const ERROR_SECONDS: f64 = 30.0;
 
 /// What a click or key asks for; applied after the frame.
 #[must_use]
@@ -132,7 +166,7 @@ pub struct UiMessage {
 pub enum UiCommand {
     /// Pause or resume.
     TogglePause,
-    /// Restart the average.
+    /// Restart the average (after the end of a recording: play it again).
     Restart,
     /// Next display unit.
     CycleUnit,
@@ -168,6 +202,11 @@ pub enum UiCommand {
     ZoomTo(f64, f64),
     /// Zoom to the whole spectrum.
     ZoomAll,
+    /// Forget the remembered averaging and calibration settings and use the defaults for the
+    /// source that is open.
+    FreshSettings,
+    /// Remove every message.
+    DismissMessages,
 }
 
 /// The eframe app.
@@ -176,6 +215,8 @@ pub struct StillpointApp {
     engine: Option<Engine>,
     live: LiveState,
     source: SourceConfig,
+    /// A source asked for and not yet opened by the engine.
+    pending_source: Option<SourceConfig>,
     messages: Vec<UiMessage>,
     paused: bool,
     commands: Vec<UiCommand>,
@@ -190,39 +231,74 @@ pub struct StillpointApp {
     screenshot: Option<(PathBuf, f64)>,
     screenshot_requested: bool,
     start_time: Option<f64>,
+    /// Window time of the frame being drawn, s.
+    now_s: f64,
+    /// The analysis options last sent to the engine (tests read them).
+    sent_analysis: AnalysisOptions,
+    /// The Welch settings last sent to the engine (tests read them).
+    sent_welch: WelchSettings,
+    /// CPU time of the last frames (logic + drawing), smoothed, s.
+    frame_cpu_s: f64,
+    /// CPU time of this frame's logic, s.
+    logic_cpu_s: f64,
+}
+
+/// A short name for a source, to say which one remembered settings were made for.
+fn source_key(source: &SourceConfig) -> String {
+    match &source.spec {
+        SourceSpec::Demo { scenario, .. } => format!("the demo '{scenario}'"),
+        SourceSpec::Path(p) => p.display().to_string(),
+        SourceSpec::Stdin => "standard input".into(),
+        SourceSpec::Tcp(a) => format!("tcp://{a}"),
+    }
 }
 
 impl StillpointApp {
     /// Creates the app (starts the engine on `options.source`).
     pub fn new(cc: &eframe::CreationContext<'_>, options: MonitorOptions) -> Self {
         theme::install(&cc.egui_ctx);
-        let mut state: AppState = if options.fresh_settings || options.screenshot.is_some() {
-            AppState::default()
+        let remembered: Option<AppState> = if options.fresh_settings || options.screenshot.is_some()
+        {
+            None
         } else {
             cc.storage
                 .and_then(|s| eframe::get_value(s, eframe::APP_KEY))
-                .unwrap_or_default()
         };
+        let from_storage = remembered.is_some();
+        let mut state = remembered.unwrap_or_default();
+        let remembered_for = state.settings_source.clone();
         if let Some(w) = &options.welch {
-            state.welch = WelchSettings::from_config(w);
+            state.welch = w.clone();
         }
         if let Some(a) = &options.analysis {
-            state.calibration = CalibrationInputs::from_options(a);
+            state.analysis = a.clone();
         }
         if let Some(s) = options.speed {
             state.playback_speed = s;
         }
         if crate::model::state::unit_is_displacement(state.unit)
-            && state.calibration.method == CalibrationMethod::None
+            && crate::model::CalibrationMethod::of(&state.analysis)
+                == crate::model::CalibrationMethod::None
         {
             state.unit = DensityUnit::V2PerHz;
         }
+        let key = source_key(&options.source);
+        // Remembered settings applied to another source than the one they were made for:
+        // say so, with one click back to fresh settings.
+        let uses_remembered = options.welch.is_none() || options.analysis.is_none();
+        let announce = from_storage
+            && uses_remembered
+            && remembered_for.as_deref() != Some(key.as_str())
+            && (state.welch != WelchSettings::default()
+                || state.analysis != AnalysisOptions::default());
+        state.settings_source = Some(key.clone());
         let ctx = cc.egui_ctx.clone();
         let mut app = Self {
             state,
             engine: None,
             live: LiveState::new(),
             source: options.source.clone(),
+            pending_source: None,
             messages: Vec::new(),
             paused: false,
             commands: Vec::new(),
@@ -240,9 +316,30 @@ impl StillpointApp {
                 .map(|p| (p, options.screenshot_after_s)),
             screenshot_requested: false,
             start_time: None,
+            now_s: ctx.input(|i| i.time),
+            sent_analysis: AnalysisOptions::default(),
+            sent_welch: WelchSettings::default(),
+            frame_cpu_s: 0.0,
+            logic_cpu_s: 0.0,
         };
         app.ui.sync_from(&app.state);
         app.plot.quiet = app.screenshot.is_some();
+        if announce {
+            let from = remembered_for.unwrap_or_else(|| "an earlier session".into());
+            app.push(UiMessage {
+                text: format!(
+                    "Averaging and calibration settings remembered from {from} are applied to \
+                     {key}."
+                ),
+                error: false,
+                kind: MessageKind::Other,
+                action: Some((
+                    "Fresh settings for this source".into(),
+                    UiCommand::FreshSettings,
+                )),
+                expires_at: None,
+            });
+        }
         app.start_engine(&ctx);
         app
     }
@@ -250,16 +347,18 @@ impl StillpointApp {
     fn start_engine(&mut self, ctx: &egui::Context) {
         let mut config = EngineConfig::new(self.source.clone());
         config.welch = self.state.welch.clone();
-        config.analysis = self.state.calibration.to_options();
-        config.follow_mode = self.state.calibration.follow_mode;
+        config.analysis = self.state.analysis.clone();
+        config.follow_mode = self.state.follow_mode;
         config.playback_speed = Some(self.state.playback_speed);
+        self.sent_welch = config.welch.clone();
+        self.sent_analysis = config.analysis.clone();
         let waker_ctx = ctx.clone();
         match Engine::start(
             config,
             Box::new(move || waker_ctx.request_repaint_after(Duration::from_millis(10))),
         ) {
             Ok(e) => self.engine = Some(e),
-            Err(e) => self.error(format!("cannot start the engine: {e}")),
+            Err(e) => self.error(MessageKind::Other, format!("cannot start the engine: {e}")),
         }
     }
 
@@ -268,7 +367,27 @@ impl StillpointApp {
         &self.state
     }
 
-    /// Messages shown (tests read them).
+    /// The analysis options last handed to the engine (tests read them).
+    pub fn engine_analysis(&self) -> &AnalysisOptions {
+        &self.sent_analysis
+    }
+
+    /// The Welch settings last handed to the engine (tests read them).
+    pub fn engine_welch(&self) -> &WelchSettings {
+        &self.sent_welch
+    }
+
+    /// The fit band fields of the panel as they read (tests read them).
+    pub fn band_fields(&self) -> (String, String) {
+        self.ui.band_fields()
+    }
+
+    /// The source in use (tests read it).
+    pub fn source(&self) -> &SourceConfig {
+        &self.source
+    }
+
+    /// Messages kept, oldest first (tests read them).
     pub fn messages(&self) -> &[UiMessage] {
         &self.messages
     }
@@ -283,28 +402,66 @@ impl StillpointApp {
         &self.live
     }
 
-    fn error(&mut self, text: impl Into<String>) {
-        self.push_message(text.into(), true);
+    /// CPU time per frame (logic and drawing), smoothed over the last frames, s.
+    pub fn frame_cpu_s(&self) -> f64 {
+        self.frame_cpu_s
     }
 
-    fn info(&mut self, text: impl Into<String>) {
-        self.push_message(text.into(), false);
+    fn error(&mut self, kind: MessageKind, text: impl Into<String>) {
+        self.push(UiMessage {
+            text: text.into(),
+            error: true,
+            kind,
+            action: None,
+            expires_at: Some(self.now_s + ERROR_SECONDS),
+        });
     }
 
-    fn push_message(&mut self, text: String, error: bool) {
-        if self.messages.last().is_some_and(|m| m.text == text) {
+    fn info(&mut self, kind: MessageKind, text: impl Into<String>) {
+        self.push(UiMessage {
+            text: text.into(),
+            error: false,
+            kind,
+            action: None,
+            expires_at: Some(self.now_s + INFO_SECONDS),
+        });
+    }
+
+    /// A success of `kind`: errors of that kind are corrected and go.
+    fn corrected(&mut self, kind: MessageKind) {
+        self.messages.retain(|m| !(m.error && m.kind == kind));
+    }
+
+    fn push(&mut self, message: UiMessage) {
+        if let Some(m) = self.messages.iter_mut().find(|m| m.text == message.text) {
+            m.expires_at = message.expires_at;
             return;
         }
-        self.messages.push(UiMessage { text, error });
-        if self.messages.len() > 6 {
+        if !message.error {
+            self.corrected(message.kind);
+        }
+        self.messages.push(message);
+        while self.messages.len() > MESSAGES_KEPT {
             self.messages.remove(0);
         }
+    }
+
+    /// Drops expired messages; returns the time until the next one expires.
+    fn expire_messages(&mut self) -> Option<f64> {
+        let now = self.now_s;
+        self.messages
+            .retain(|m| m.expires_at.is_none_or(|t| t > now));
+        self.messages
+            .iter()
+            .filter_map(|m| m.expires_at)
+            .map(|t| t - now)
+            .reduce(f64::min)
     }
 
     fn send(&mut self, command: EngineCommand) {
         let sent = self.engine.as_ref().is_some_and(|e| e.send(command));
         if !sent {
-            self.error("the engine is not running");
+            self.error(MessageKind::Other, "the engine is not running");
         }
     }
 
@@ -319,21 +476,61 @@ impl StillpointApp {
         }
         for n in notices {
             match n {
-                EngineNotice::Opened(d) => self.info(format!("opened: {d}")),
-                EngineNotice::Error(e) => self.error(e),
+                EngineNotice::Opened(d) => {
+                    if let Some(cfg) = self.pending_source.take() {
+                        if let SourceSpec::Path(p) = &cfg.spec {
+                            self.state.last_source_path = Some(p.clone());
+                        }
+                        self.state.settings_source = Some(source_key(&cfg));
+                        self.source = cfg;
+                        self.cooldown = cooldown::CooldownState::default();
+                        self.plot.reset_view = true;
+                    }
+                    self.corrected(MessageKind::Source);
+                    self.info(MessageKind::Source, format!("opened: {d}"));
+                }
+                EngineNotice::OpenFailed(e) => {
+                    self.pending_source = None;
+                    let running = if self.live.frame.is_some() {
+                        " (the source running before goes on)"
+                    } else {
+                        ""
+                    };
+                    self.error(MessageKind::Source, format!("{e}{running}"));
+                }
+                EngineNotice::Info(t) => self.info(MessageKind::Other, t),
+                EngineNotice::Error(e) => self.error(MessageKind::Other, e),
             }
         }
         if let Some(frame) = &self.live.frame
             && let Some(band) = frame.band_hz
-            && self.state.calibration.follow_mode
+            && self.state.follow_mode
+            && self.state.analysis.mode_band_hz != Some(band)
         {
-            // Keep the remembered band in step with the one the engine follows.
-            self.state.calibration.mode_band_hz = Some(band);
+            // Keep the remembered band, and the band fields, in step with the band the
+            // engine follows (so "Apply" never sends a stale band).
+            self.state.analysis.mode_band_hz = Some(band);
+            self.ui.show_band(band);
         }
     }
 
+    /// Keyboard shortcuts. Never while a text field has focus; letter keys and Space only
+    /// while the pointer is over the spectrum plot, or anywhere with Ctrl (⌘) held, so
+    /// keystrokes meant as text (after a missed click) never act.
     fn keyboard(&mut self, ctx: &egui::Context) {
         if ctx.egui_wants_keyboard_input() {
+            return;
+        }
+        let (command, f1) = ctx.input(|i| {
+            (
+                i.modifiers.command || i.modifiers.ctrl,
+                i.key_pressed(Key::F1),
+            )
+        });
+        if f1 {
+            self.show_help = !self.show_help;
+        }
+        if !(command || self.plot.hovered) {
             return;
         }
         let pressed = |k: Key| ctx.input(|i| i.key_pressed(k));
@@ -353,7 +550,7 @@ impl StillpointApp {
             self.plot.band_mode = !self.plot.band_mode;
         }
         if pressed(Key::M)
-            && let Some((lo, hi)) = self.state.calibration.mode_band_hz
+            && let Some((lo, hi)) = self.state.analysis.mode_band_hz
         {
             let w = hi - lo;
             self.commands.push(UiCommand::ZoomTo(lo - w, hi + w));
@@ -361,7 +558,7 @@ impl StillpointApp {
         if pressed(Key::A) {
             self.commands.push(UiCommand::ZoomAll);
         }
-        if pressed(Key::F1) || pressed(Key::H) {
+        if pressed(Key::H) {
             self.show_help = !self.show_help;
         }
     }
@@ -383,49 +580,54 @@ impl StillpointApp {
                     EngineCommand::Resume
                 });
             }
-            UiCommand::Restart => self.send(EngineCommand::RestartAverage),
+            UiCommand::Restart => {
+                if self.paused {
+                    self.paused = false;
+                    self.send(EngineCommand::Resume);
+                }
+                self.send(EngineCommand::RestartAverage);
+            }
             UiCommand::CycleUnit => {
                 self.state.cycle_unit();
                 self.plot.reset_y = true;
             }
             UiCommand::ApplyWelch => match self.ui.welch_settings() {
                 Ok(w) => {
+                    self.corrected(MessageKind::Averaging);
                     self.state.welch = w.clone();
+                    self.sent_welch = w.clone();
                     self.send(EngineCommand::SetWelch(w));
                 }
-                Err(e) => self.error(e),
+                Err(e) => self.error(MessageKind::Averaging, e),
             },
-            UiCommand::ApplyAnalysis => match self.ui.calibration_inputs(&self.state.calibration) {
-                Ok(c) => {
-                    self.state.calibration = c;
+            UiCommand::ApplyAnalysis => match self.ui.analysis_options(&self.state.analysis) {
+                Ok((options, follow)) => {
+                    self.corrected(MessageKind::Analysis);
+                    self.state.analysis = options;
+                    self.state.follow_mode = follow;
                     self.send_analysis();
                 }
-                Err(e) => self.error(e),
+                Err(e) => self.error(MessageKind::Analysis, e),
             },
             UiCommand::SetBand(lo, hi) => {
                 let (lo, hi) = if lo <= hi { (lo, hi) } else { (hi, lo) };
                 if lo > 0.0 && hi > lo {
-                    self.state.calibration.mode_band_hz = Some((lo, hi));
-                    self.ui.sync_from(&self.state);
+                    self.state.analysis.mode_band_hz = Some((lo, hi));
+                    self.ui.show_band((lo, hi));
                     self.send_analysis();
                 }
             }
             UiCommand::OpenSource => match self.ui.source_config() {
                 Ok(cfg) => {
-                    if let SourceSpec::Path(p) = &cfg.spec {
-                        self.state.last_source_path = Some(p.clone());
-                    }
-                    self.source = cfg.clone();
-                    self.cooldown = cooldown::CooldownState::default();
-                    self.plot.reset_view = true;
+                    // The running source stays until the engine has opened this one.
+                    self.pending_source = Some(cfg.clone());
                     self.send(EngineCommand::OpenSource(cfg));
                 }
-                Err(e) => self.error(e),
+                Err(e) => self.error(MessageKind::Source, e),
             },
             UiCommand::OpenDemo => {
                 let demo = MonitorOptions::demo();
-                self.source = demo.source.clone();
-                self.plot.reset_view = true;
+                self.pending_source = Some(demo.source.clone());
                 self.send(EngineCommand::OpenSource(demo.source));
             }
             UiCommand::SetSpeed(s) => {
@@ -447,12 +649,32 @@ impl StillpointApp {
                 }
             }
             UiCommand::ZoomAll => self.plot.reset_view = true,
+            UiCommand::FreshSettings => {
+                let fresh = AppState::default();
+                self.state.welch = fresh.welch;
+                self.state.analysis = fresh.analysis;
+                self.state.follow_mode = fresh.follow_mode;
+                if crate::model::state::unit_is_displacement(self.state.unit) {
+                    self.state.unit = DensityUnit::V2PerHz;
+                }
+                self.ui.sync_from(&self.state);
+                self.messages.retain(|m| m.action.is_none());
+                self.sent_welch = self.state.welch.clone();
+                self.send(EngineCommand::SetWelch(self.state.welch.clone()));
+                self.send_analysis();
+                self.info(
+                    MessageKind::Other,
+                    "fresh settings: automatic averaging, no calibration, band found automatically",
+                );
+            }
+            UiCommand::DismissMessages => self.messages.clear(),
         }
     }
 
     fn send_analysis(&mut self) {
-        let options = self.state.calibration.to_options();
-        let follow = self.state.calibration.follow_mode;
+        let options = self.state.analysis.clone();
+        self.sent_analysis = options.clone();
+        let follow = self.state.follow_mode;
         self.send(EngineCommand::SetAnalysis {
             options,
             follow_mode: follow,
@@ -466,14 +688,23 @@ impl StillpointApp {
             let pause_label = if self.paused { "Resume" } else { "Freeze" };
             if ui
                 .button(pause_label)
-                .on_hover_text("Space: freeze/resume the display")
+                .on_hover_text("Space (pointer on the plot) or Ctrl+Space: freeze/resume")
                 .clicked()
             {
                 self.commands.push(UiCommand::TogglePause);
             }
+            let ended_recording = self
+                .live
+                .status()
+                .is_some_and(|s| s.recording && s.ended.is_some());
+            let (restart_label, restart_hint) = if ended_recording {
+                ("Replay", "R: play the recording again from its start")
+            } else {
+                ("Restart average", "R: forget the averaged segments")
+            };
             if ui
-                .button("Restart average")
-                .on_hover_text("R: forget the averaged segments")
+                .button(restart_label)
+                .on_hover_text(restart_hint)
                 .clicked()
             {
                 self.commands.push(UiCommand::Restart);
@@ -511,7 +742,7 @@ impl StillpointApp {
                 self.commands.push(UiCommand::ZoomAll);
             }
             if ui.button("Mode region").on_hover_text("M").clicked()
-                && let Some((lo, hi)) = self.state.calibration.mode_band_hz
+                && let Some((lo, hi)) = self.state.analysis.mode_band_hz
             {
                 let w = hi - lo;
                 self.commands.push(UiCommand::ZoomTo(lo - w, hi + w));
@@ -527,20 +758,39 @@ impl StillpointApp {
         });
     }
 
+    /// The newest [`MESSAGES_SHOWN`] messages above the plot (each with its button and a ×);
+    /// a fixed number of lines, so the plot is never pushed down further.
     fn messages_ui(&mut self, ui: &mut egui::Ui) {
         let mut remove = None;
-        for (i, m) in self.messages.iter().enumerate() {
+        let mut commands = Vec::new();
+        let first = self.messages.len().saturating_sub(MESSAGES_SHOWN);
+        for (i, m) in self.messages.iter().enumerate().skip(first) {
             ui.horizontal(|ui| {
-                let color = if m.error { theme::ERROR } else { theme::PENCIL };
+                let color = if m.error { theme::ERROR } else { theme::INK };
                 if ui.small_button("×").on_hover_text("dismiss").clicked() {
                     remove = Some(i);
                 }
-                ui.label(RichText::new(&m.text).color(color));
+                if let Some((label, command)) = &m.action
+                    && ui.button(label).clicked()
+                {
+                    commands.push(command.clone());
+                }
+                ui.add(egui::Label::new(RichText::new(&m.text).color(color)).truncate())
+                    .on_hover_text(&m.text);
+            });
+        }
+        if first > 0 {
+            ui.horizontal(|ui| {
+                ui.label(RichText::new(format!("{first} older message(s)")).color(theme::PENCIL));
+                if ui.small_button("dismiss all").clicked() {
+                    commands.push(UiCommand::DismissMessages);
+                }
             });
         }
         if let Some(i) = remove {
             self.messages.remove(i);
         }
+        self.commands.extend(commands);
     }
 
     fn windows(&mut self, ctx: &egui::Context) {
@@ -581,25 +831,41 @@ impl StillpointApp {
             .open(&mut open)
             .collapsible(false)
             .show(ctx, |ui| {
+                ui.label(
+                    "Keys act only while the pointer is over the spectrum plot, or anywhere with \
+                     Ctrl held — never while you type in a field.",
+                );
+                ui.add_space(4.0);
                 egui::Grid::new("help_grid").striped(true).show(ui, |ui| {
                     for (k, what) in [
                         ("Space", "freeze / resume"),
-                        ("R", "restart the average"),
+                        (
+                            "R",
+                            "restart the average (after a recording's end: replay it)",
+                        ),
                         ("S", "save a snapshot (JSON + CSV) in the last folder"),
                         ("U", "next display unit"),
                         ("B", "set the fit band: drag across the spectrum"),
                         ("M", "zoom to the mode region"),
                         ("A", "zoom to the whole span"),
-                        ("H / F1", "this help"),
+                        ("H / F1", "this help (F1 anywhere)"),
                         ("drag", "pan the plot (scroll or Ctrl+scroll to zoom)"),
                         ("double-click", "whole span"),
-                        ("click a resonance", "zoom the plot to it"),
+                        (
+                            "click a resonance",
+                            "zoom the plot to it (marker or list row)",
+                        ),
                     ] {
                         ui.label(RichText::new(k).monospace());
                         ui.label(what);
                         ui.end_row();
                     }
                 });
+                ui.add_space(4.0);
+                ui.label(format!(
+                    "Frame time (CPU for the plot and the panels): {:.1} ms",
+                    1e3 * self.frame_cpu_s
+                ));
             });
         self.show_help = open;
 
@@ -655,24 +921,31 @@ impl StillpointApp {
 
 impl eframe::App for StillpointApp {
     fn logic(&mut self, ctx: &egui::Context, _frame: &mut eframe::Frame) {
+        let t0 = Instant::now();
+        self.now_s = ctx.input(|i| i.time);
         self.drain_engine();
         self.drain_png_results();
         self.keyboard(ctx);
         self.screenshot_tick(ctx);
+        self.logic_cpu_s = t0.elapsed().as_secs_f64();
     }
 
     fn ui(&mut self, ui: &mut egui::Ui, _frame: &mut eframe::Frame) {
+        let t0 = Instant::now();
         let ctx = ui.ctx().clone();
+        self.now_s = ctx.input(|i| i.time);
+        let next_expiry = self.expire_messages();
         egui::Panel::top("menu")
             .frame(egui::Frame::new().fill(theme::PANEL).inner_margin(6.0))
             .show(ui, |ui| self.menu_bar(ui));
         egui::Panel::bottom("status")
             .frame(egui::Frame::new().fill(theme::PANEL).inner_margin(4.0))
             .show(ui, |ui| {
-                panels::status_line(ui, &self.live, &self.source, self.paused)
+                panels::status_line(ui, &self.live, &self.source, self.paused, self.frame_cpu_s);
             });
         egui::Panel::left("controls")
             .default_size(270.0)
+            .size_range(220.0..=340.0)
             .frame(egui::Frame::new().fill(theme::PANEL).inner_margin(8.0))
             .show(ui, |ui| {
                 egui::ScrollArea::vertical().show(ui, |ui| {
@@ -680,11 +953,14 @@ impl eframe::App for StillpointApp {
                     self.commands.extend(cmds);
                 });
             });
+        // The right panel has a fixed width range: long rows wrap or scroll instead of
+        // widening it, so the plot stays the largest thing in the window.
         egui::Panel::right("mode")
-            .default_size(300.0)
+            .default_size(310.0)
+            .size_range(260.0..=360.0)
             .frame(egui::Frame::new().fill(theme::PANEL).inner_margin(8.0))
             .show(ui, |ui| {
-                egui::ScrollArea::vertical().show(ui, |ui| {
+                egui::ScrollArea::both().show(ui, |ui| {
                     panels::mode_panel(ui, &self.live, &self.state);
                     ui.separator();
                     panels::sideband_panel(ui, &self.live);
@@ -726,14 +1002,22 @@ impl eframe::App for StillpointApp {
             });
         self.windows(&ctx);
         self.apply_commands(&ctx);
-        // Repaint while data flows; idle when frozen or when the stream has ended.
-        let flowing = !self.paused && self.live.status().is_none_or(|s| s.ended.is_none());
-        if flowing {
-            ctx.request_repaint_after(Duration::from_millis(50));
+        // Repaint only on change: the engine wakes the window when a frame arrives; here only
+        // the next message expiry is waited for. Nothing changing (frozen, ended, an "at most
+        // K" average that is full) costs no frames.
+        if let Some(dt) = next_expiry {
+            ctx.request_repaint_after(Duration::from_secs_f64(dt.clamp(0.05, 60.0)));
         }
+        let cpu = self.logic_cpu_s + t0.elapsed().as_secs_f64();
+        self.frame_cpu_s = if self.frame_cpu_s > 0.0 {
+            0.9 * self.frame_cpu_s + 0.1 * cpu
+        } else {
+            cpu
+        };
     }
 
     fn save(&mut self, storage: &mut dyn eframe::Storage) {
+        self.state.settings_source = Some(source_key(&self.source));
         if self.screenshot.is_none() {
             eframe::set_value(storage, eframe::APP_KEY, &self.state);
         }

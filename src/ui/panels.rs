@@ -4,16 +4,17 @@
 use eframe::egui::{self, RichText, Ui};
 
 use super::UiCommand;
-use super::axes::{format_hz, format_sig};
+use super::axes::format_hz;
 use super::files::FileState;
 use super::theme;
 use crate::acquire::{Endian, SampleFormat, SourceConfig, SourceSpec};
 use crate::dsp::{Detrend, WindowKind};
+use crate::model::format::{format_rate, format_significant, format_uncertain};
 use crate::model::state::unit_short;
 use crate::model::{
-    AppState, AveragingChoice, CalibrationInputs, CalibrationMethod, LiveState, LoadedSnapshot,
-    WelchSettings,
+    AppState, AveragingChoice, CalibrationMethod, LiveState, LoadedSnapshot, WelchSettings,
 };
+use crate::report::AnalysisOptions;
 
 /// Text fields and choices being edited (applied on "Apply"/"Open").
 #[derive(Debug, Clone)]
@@ -47,6 +48,8 @@ pub struct PanelState {
     carrier: String,
     lo_above: bool,
     threshold: String,
+    sloped_background: bool,
+    imbalance: String,
 }
 
 fn num_text(v: f64) -> String {
@@ -137,12 +140,15 @@ impl PanelState {
             carrier: String::new(),
             lo_above: true,
             threshold: String::new(),
+            sloped_background: false,
+            imbalance: String::new(),
         };
         s.sync_from(&AppState::default());
         s
     }
 
-    /// Copies the settings into the edit fields.
+    /// Copies the settings into the edit fields (fields of the methods not in use keep
+    /// what was typed in them, so switching the method back does not lose it).
     pub fn sync_from(&mut self, state: &AppState) {
         self.welch = state.welch.clone();
         self.max_averages_text = state
@@ -150,24 +156,42 @@ impl PanelState {
             .max_averages
             .map(|k| k.to_string())
             .unwrap_or_default();
-        let c = &state.calibration;
-        self.method = c.method;
-        self.m_per_v = num_text(c.m_per_v);
-        self.tone_freq = num_text(c.tone_frequency_hz);
-        self.tone_rms = num_text(c.tone_rms_m);
-        self.pm_depth = num_text(c.pm_depth_rad);
-        self.pull = num_text(c.freq_pull_hz_per_m);
-        self.bath_t = num_text(c.bath_temperature_k);
+        let c = &state.analysis;
+        self.method = CalibrationMethod::of(c);
+        let keep = |field: &mut String, v: Option<f64>| {
+            if let Some(v) = v {
+                *field = num_text(v);
+            }
+        };
+        keep(&mut self.m_per_v, c.m_per_v);
+        keep(&mut self.tone_freq, c.tone_frequency_hz);
+        keep(&mut self.tone_rms, c.tone_rms_m);
+        keep(&mut self.pm_depth, c.pm_depth_rad);
+        keep(&mut self.pull, c.freq_pull_hz_per_m);
+        self.bath_t = opt_text(c.bath_temperature_k);
         self.bath_t_sigma = opt_text(c.bath_temperature_uncertainty_k);
         self.mass = opt_text(c.mass_kg);
         self.mass_sigma = opt_text(c.mass_uncertainty_kg);
         self.band_lo = opt_text(c.mode_band_hz.map(|b| b.0));
         self.band_hi = opt_text(c.mode_band_hz.map(|b| b.1));
-        self.follow_mode = c.follow_mode;
+        self.follow_mode = state.follow_mode;
         self.carrier = opt_text(c.carrier_hz);
-        self.lo_above = c.lo_above;
-        self.threshold = num_text(c.peak_threshold_db);
+        self.lo_above = c.lo_above.unwrap_or(true);
+        self.threshold = num_text(c.peak_threshold_db.unwrap_or(10.0));
+        self.sloped_background = c.sloped_background;
+        self.imbalance = opt_text(c.sideband_imbalance);
         self.speed = state.playback_speed;
+    }
+
+    /// The band fields as typed (low, high).
+    pub fn band_fields(&self) -> (String, String) {
+        (self.band_lo.clone(), self.band_hi.clone())
+    }
+
+    /// Shows `band` (Hz) in the band fields: the band in use when it follows the mode.
+    pub fn show_band(&mut self, band: (f64, f64)) {
+        self.band_lo = format!("{:.1}", band.0);
+        self.band_hi = format!("{:.1}", band.1);
     }
 
     /// The Welch settings being edited, checked.
@@ -193,7 +217,7 @@ impl PanelState {
                     })?,
             )
         };
-        if w.segment < 16 || w.segment > (1 << 24) {
+        if !w.segment_auto && (w.segment < 16 || w.segment > (1 << 24)) {
             return Err(format!(
                 "segment must be 16 … 16777216 samples, got {}",
                 w.segment
@@ -205,54 +229,66 @@ impl PanelState {
         Ok(w)
     }
 
-    /// The calibration inputs being edited, checked (unchanged fields from `current`).
+    /// The analysis options being edited, checked, and whether the band follows the mode.
+    /// Starts from `current`, so options the panel has no field for (imbalance tones, the
+    /// reference peaks) pass through unchanged.
     ///
     /// # Errors
-    /// A one-line message naming the bad field.
-    pub fn calibration_inputs(
+    /// A one-line message naming the bad field by its label.
+    pub fn analysis_options(
         &self,
-        current: &CalibrationInputs,
-    ) -> Result<CalibrationInputs, String> {
+        current: &AnalysisOptions,
+    ) -> Result<(AnalysisOptions, bool), String> {
         let mut c = current.clone();
-        c.method = self.method;
+        c.m_per_v = None;
+        c.tone_frequency_hz = None;
+        c.tone_rms_m = None;
+        c.pm_depth_rad = None;
+        c.freq_pull_hz_per_m = None;
         match self.method {
             CalibrationMethod::None => {}
-            CalibrationMethod::Given => c.m_per_v = parse_pos(&self.m_per_v, "m/V")?,
+            CalibrationMethod::Given => c.m_per_v = Some(parse_pos(&self.m_per_v, "m/V")?),
             CalibrationMethod::ToneDisplacement => {
-                c.tone_frequency_hz = parse_pos(&self.tone_freq, "tone frequency")?;
-                c.tone_rms_m = parse_pos(&self.tone_rms, "tone rms displacement")?;
+                c.tone_frequency_hz = Some(parse_pos(&self.tone_freq, "tone frequency")?);
+                c.tone_rms_m = Some(parse_pos(&self.tone_rms, "tone rms")?);
             }
             CalibrationMethod::TonePhaseModulation => {
-                c.tone_frequency_hz = parse_pos(&self.tone_freq, "tone frequency")?;
-                c.pm_depth_rad = parse_pos(&self.pm_depth, "modulation depth β")?;
-                c.freq_pull_hz_per_m = parse_pos(&self.pull, "frequency pull G/2π")?;
+                c.tone_frequency_hz = Some(parse_pos(&self.tone_freq, "tone frequency")?);
+                c.pm_depth_rad = Some(parse_pos(&self.pm_depth, "depth β")?);
+                c.freq_pull_hz_per_m = Some(parse_pos(&self.pull, "pull G/2π")?);
             }
             CalibrationMethod::Equipartition => {
                 if self.mass.trim().is_empty() {
-                    return Err("equipartition needs the effective mass".into());
+                    return Err("equipartition needs the effective mass (kg)".into());
+                }
+                if self.bath_t.trim().is_empty() {
+                    return Err("equipartition needs the bath T (K)".into());
                 }
             }
         }
-        c.bath_temperature_k = parse_pos(&self.bath_t, "bath temperature")?;
-        c.bath_temperature_uncertainty_k =
-            parse_opt_non_negative(&self.bath_t_sigma, "bath temperature 1σ")?;
+        c.bath_temperature_k = parse_opt_pos(&self.bath_t, "bath T")?;
+        c.bath_temperature_uncertainty_k = parse_opt_non_negative(&self.bath_t_sigma, "bath T 1σ")?;
         c.mass_kg = parse_opt_pos(&self.mass, "effective mass")?;
-        c.mass_uncertainty_kg = parse_opt_non_negative(&self.mass_sigma, "effective mass 1σ")?;
-        let lo = parse_opt_pos(&self.band_lo, "band low edge")?;
-        let hi = parse_opt_pos(&self.band_hi, "band high edge")?;
+        c.mass_uncertainty_kg = parse_opt_non_negative(&self.mass_sigma, "mass 1σ")?;
+        let lo = parse_opt_pos(&self.band_lo, "band low")?;
+        let hi = parse_opt_pos(&self.band_hi, "band high")?;
         c.mode_band_hz = match (lo, hi) {
             (Some(a), Some(b)) if b > a => Some((a, b)),
             (Some(a), Some(b)) => {
                 return Err(format!(
-                    "mode band: the low edge {a} Hz must be below {b} Hz"
+                    "fit band: band low {a} Hz must be below band high {b} Hz"
                 ));
             }
             (None, None) => None,
-            _ => return Err("mode band: give both edges, or neither".into()),
+            _ => return Err("fit band: give band low and band high, or neither".into()),
         };
-        c.follow_mode = self.follow_mode;
         c.carrier_hz = parse_opt_pos(&self.carrier, "carrier")?;
-        c.lo_above = self.lo_above;
+        c.lo_above = c.carrier_hz.map(|_| self.lo_above);
+        c.sideband_imbalance = if c.carrier_hz.is_some() {
+            parse_opt_pos(&self.imbalance, "imbalance η_r/η_b")?
+        } else {
+            current.sideband_imbalance
+        };
         let t: f64 = self
             .threshold
             .trim()
@@ -261,8 +297,12 @@ impl PanelState {
         if !(t.is_finite() && t > 0.0) {
             return Err("peak threshold must be a positive number of dB".into());
         }
-        c.peak_threshold_db = t;
-        Ok(c)
+        // The default (10 dB when none is given) is not turned into a given value.
+        if Some(t) != current.peak_threshold_db.or(Some(10.0)) {
+            c.peak_threshold_db = Some(t);
+        }
+        c.sloped_background = self.sloped_background;
+        Ok((c, self.follow_mode))
     }
 
     /// The source being edited, checked.
@@ -448,12 +488,31 @@ impl PanelState {
     fn welch_ui(&mut self, ui: &mut Ui, out: &mut Vec<UiCommand>) {
         egui::Grid::new("welch_grid").num_columns(2).show(ui, |ui| {
             let l8 = ui.label("segment N");
+            let shown = if self.welch.segment_auto {
+                "auto".to_string()
+            } else {
+                self.welch.segment.to_string()
+            };
             let _ = egui::ComboBox::from_id_salt("segment")
-                .selected_text(self.welch.segment.to_string())
+                .selected_text(shown)
                 .show_ui(ui, |ui| {
+                    ui.selectable_value(&mut self.welch.segment_auto, true, "auto")
+                        .on_hover_text(
+                            "a recording: 65536, or fewer so that about 8 segments fit \
+                             (as the command line); a live source: 16384",
+                        );
                     for p in 8..=22 {
                         let n = 1usize << p;
-                        ui.selectable_value(&mut self.welch.segment, n, n.to_string());
+                        if ui
+                            .selectable_label(
+                                !self.welch.segment_auto && self.welch.segment == n,
+                                n.to_string(),
+                            )
+                            .clicked()
+                        {
+                            self.welch.segment = n;
+                            self.welch.segment_auto = false;
+                        }
                     }
                 })
                 .response
@@ -500,7 +559,10 @@ impl PanelState {
                 .response
                 .labelled_by(l12.id);
             ui.end_row();
-            if self.welch.averaging == AveragingChoice::Exponential {
+            if matches!(
+                self.welch.averaging,
+                AveragingChoice::Exponential | AveragingChoice::Auto
+            ) {
                 let l13 = ui.label("τ (segments)");
                 ui.add(
                     egui::DragValue::new(&mut self.welch.time_constant_segments)
@@ -508,7 +570,8 @@ impl PanelState {
                 )
                 .labelled_by(l13.id);
                 ui.end_row();
-            } else {
+            }
+            if self.welch.averaging != AveragingChoice::Exponential {
                 let l14 = ui.label("at most K");
                 ui.add(egui::TextEdit::singleline(&mut self.max_averages_text).hint_text("all"))
                     .labelled_by(l14.id);
@@ -562,9 +625,17 @@ impl PanelState {
             row(ui, "band low (Hz)", &mut self.band_lo);
             row(ui, "band high (Hz)", &mut self.band_hi);
             row(ui, "carrier (Hz)", &mut self.carrier);
+            if !self.carrier.trim().is_empty() {
+                row(ui, "imbalance η_r/η_b", &mut self.imbalance);
+            }
             row(ui, "peak threshold (dB)", &mut self.threshold);
         });
-        ui.checkbox(&mut self.follow_mode, "band follows the mode");
+        ui.checkbox(&mut self.follow_mode, "band follows the mode")
+            .on_hover_text("the band fields then show the band in use");
+        ui.checkbox(
+            &mut self.sloped_background,
+            "sloped background under the mode",
+        );
         if !self.carrier.trim().is_empty() {
             ui.horizontal(|ui| {
                 ui.label("LO is");
@@ -579,25 +650,14 @@ impl PanelState {
     }
 }
 
-fn pm(value: Option<f64>, sigma: Option<f64>, digits: usize) -> String {
-    match (value, sigma) {
-        (Some(v), Some(s)) if s.is_finite() && s > 0.0 => {
-            format!("{} ± {}", format_sig(v, digits), format_sig(s, 2))
-        }
-        (Some(v), _) => format_sig(v, digits),
-        _ => "—".into(),
-    }
+/// `value ± σ` by the usual rule ([`format_uncertain`]), or "—".
+fn pm(value: Option<f64>, sigma: Option<f64>) -> String {
+    value.map_or_else(|| "—".into(), |v| format_uncertain(v, sigma))
 }
 
-fn hz_pm(value: Option<f64>, sigma: Option<f64>) -> String {
-    match (value, sigma) {
-        (Some(v), Some(s)) if s.is_finite() && s > 0.0 => {
-            let step = 10f64.powf(s.log10().floor() - 1.0);
-            format!("{} ± {}", format_hz(v, step), format_hz(s, step))
-        }
-        (Some(v), _) => format_hz(v, v.abs() * 1e-6),
-        _ => "—".into(),
-    }
+/// A note under a panel: readable size, dark enough to read, wrapping in the panel.
+fn note(ui: &mut Ui, text: &str, colour: egui::Color32) {
+    ui.add(egui::Label::new(RichText::new(text).size(13.0).color(colour)).wrap());
 }
 
 /// The mode read-out (always visible): f_m, γ, Q, n̄, T_eff, m/V with ± 1σ.
@@ -622,48 +682,48 @@ pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
                 ui.label(RichText::new(value).monospace());
                 ui.end_row();
             };
-            row(ui, "f_m", hz_pm(m.frequency_hz, m.frequency_hz_uncertainty));
             row(
                 ui,
-                "γ (FWHM)",
-                hz_pm(m.linewidth_hz, m.linewidth_hz_uncertainty),
+                "f_m (Hz)",
+                pm(m.frequency_hz, m.frequency_hz_uncertainty),
             );
             row(
                 ui,
-                "Q",
-                pm(m.quality_factor, m.quality_factor_uncertainty, 4),
+                "γ FWHM (Hz)",
+                pm(m.linewidth_hz, m.linewidth_hz_uncertainty),
             );
-            row(
-                ui,
-                "occupancy n",
-                pm(q.occupancy, q.occupancy_uncertainty, 3),
-            );
+            row(ui, "Q", pm(m.quality_factor, m.quality_factor_uncertainty));
+            row(ui, "occupancy n", pm(q.occupancy, q.occupancy_uncertainty));
             row(
                 ui,
                 "T_eff (K)",
                 pm(
                     q.effective_temperature_k,
                     q.effective_temperature_k_uncertainty,
-                    3,
                 ),
             );
-            row(ui, "m/V", pm(c.m_per_v, c.m_per_v_uncertainty, 3));
+            row(ui, "m/V", pm(c.m_per_v, c.m_per_v_uncertainty));
             row(
                 ui,
                 "⟨x²⟩ (m²)",
-                pm(m.variance_m2, m.variance_m2_uncertainty, 3),
+                pm(m.variance_m2, m.variance_m2_uncertainty),
             );
-            row(ui, "x_zpf (m)", pm(q.x_zpf_m, None, 3));
-            row(ui, "χ²_red", pm(m.reduced_chi2, None, 3));
+            row(ui, "x_zpf (m)", pm(q.x_zpf_m, None));
+            row(
+                ui,
+                "χ²_red",
+                m.reduced_chi2
+                    .map_or_else(|| "—".into(), |v| format_significant(v, 3)),
+            );
         });
     if let Some(method) = &c.method {
         let mut text = format!("calibration: {method}");
         if let Some(f) = c.tone_frequency_hz {
             text.push_str(&format!(", tone at {}", format_hz(f, 1.0)));
         }
-        ui.label(RichText::new(text).color(theme::PENCIL));
+        note(ui, &text, theme::INK);
     } else {
-        ui.label(RichText::new("uncalibrated: volts only").color(theme::PENCIL));
+        note(ui, "uncalibrated: volts only", theme::INK);
     }
     // Drift of the calibration over the session (model::TrendBuffer::calibration_drift);
     // highlighted when it is beyond 3σ of the readings' own uncertainty.
@@ -671,8 +731,9 @@ pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
         let sigma = d
             .sigma_percent
             .map_or(String::new(), |s| format!(" ± {s:.2}"));
-        ui.label(
-            RichText::new(format!(
+        note(
+            ui,
+            &format!(
                 "calibration drift: {:+.2}{sigma} % over {:.0} s{}",
                 d.percent,
                 d.span_s,
@@ -681,33 +742,34 @@ pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
                 } else {
                     ""
                 }
-            ))
-            .color(if d.is_significant() {
+            ),
+            if d.is_significant() {
                 theme::WARN
             } else {
-                theme::PENCIL
-            }),
+                theme::INK
+            },
         );
     }
     if crate::model::state::unit_is_displacement(state.unit) && c.m_per_v.is_none() {
-        ui.label(
-            RichText::new(format!(
+        note(
+            ui,
+            &format!(
                 "{} needs a calibration: showing nothing in metres",
                 unit_short(state.unit)
-            ))
-            .color(theme::WARN),
+            ),
+            theme::WARN,
         );
     }
     if let Some(frame) = &live.frame {
         if let Some(e) = &frame.analysis_error {
-            ui.label(RichText::new(format!("analysis: {e}")).color(theme::ERROR));
+            note(ui, &format!("analysis: {e}"), theme::ERROR);
         }
         if let Some(r) = &frame.report {
             for n in r.notes.iter().take(4) {
-                ui.label(RichText::new(n).small().color(theme::PENCIL));
+                note(ui, n, theme::INK);
             }
             for w in r.warnings.iter().take(4) {
-                ui.label(RichText::new(w).small().color(theme::WARN));
+                note(ui, w, theme::WARN);
             }
         }
     }
@@ -741,7 +803,7 @@ pub fn sideband_panel(ui: &mut Ui, live: &LiveState) {
                     sb.red
                         .frequency_hz
                         .map_or("—".into(), |f| format_hz(f, 1.0)),
-                    pm(sb.red.area_v2, sb.red.area_v2_uncertainty, 3)
+                    pm(sb.red.area_v2, sb.red.area_v2_uncertainty)
                 ),
             );
             row(
@@ -752,24 +814,20 @@ pub fn sideband_panel(ui: &mut Ui, live: &LiveState) {
                     sb.blue
                         .frequency_hz
                         .map_or("—".into(), |f| format_hz(f, 1.0)),
-                    pm(sb.blue.area_v2, sb.blue.area_v2_uncertainty, 3)
+                    pm(sb.blue.area_v2, sb.blue.area_v2_uncertainty)
                 ),
             );
-            row(ui, "R = red/blue", pm(sb.ratio, sb.ratio_uncertainty, 4));
+            row(ui, "R = red/blue", pm(sb.ratio, sb.ratio_uncertainty));
             row(
                 ui,
                 "n = 1/(R−1)",
-                pm(sb.occupancy, sb.occupancy_uncertainty, 3),
+                pm(sb.occupancy, sb.occupancy_uncertainty),
             );
-            row(ui, "γ", hz_pm(sb.linewidth_hz, None));
-            row(
-                ui,
-                "imbalance η_b/η_r",
-                pm(sb.imbalance_correction, None, 4),
-            );
+            row(ui, "γ (Hz)", pm(sb.linewidth_hz, None));
+            row(ui, "imbalance η_b/η_r", pm(sb.imbalance_correction, None));
         });
     if let Some(c) = &sb.convention {
-        ui.label(RichText::new(c).small().color(theme::PENCIL));
+        note(ui, c, theme::INK);
     }
     ui.separator();
 }
@@ -795,11 +853,7 @@ pub fn peaks_panel(
     let resolution = frame.spectrum.as_ref().map_or(1.0, |s| s.resolution_hz);
     if let Some(r) = reference {
         crate::snapshot::mark_new_peaks(&mut peaks, &r.peaks, 3.0 * resolution);
-        ui.label(
-            RichText::new(format!("new since '{}' in ochre", r.name))
-                .small()
-                .color(theme::PENCIL),
-        );
+        note(ui, &format!("new since '{}' in ochre", r.name), theme::INK);
     }
     if peaks.is_empty() {
         ui.label("none above the threshold");
@@ -849,8 +903,15 @@ pub fn peaks_panel(
     out
 }
 
-/// The status line (always visible).
-pub fn status_line(ui: &mut Ui, live: &LiveState, source: &SourceConfig, paused: bool) {
+/// The status line (always visible): source, rate, averaging, resolution, what the stream
+/// is doing (waiting, reconnected, ended, "at most K" reached), drops, frame time.
+pub fn status_line(
+    ui: &mut Ui,
+    live: &LiveState,
+    source: &SourceConfig,
+    paused: bool,
+    frame_cpu_s: f64,
+) {
     ui.horizontal_wrapped(|ui| {
         let Some(s) = live.status() else {
             let name = match &source.spec {
@@ -865,11 +926,57 @@ pub fn status_line(ui: &mut Ui, live: &LiveState, source: &SourceConfig, paused:
         let sep = |ui: &mut Ui| {
             ui.label(RichText::new("·").color(theme::PENCIL));
         };
+        // What the stream is doing comes first, so it is never cut off.
+        if paused || s.paused {
+            ui.label(RichText::new("FROZEN").strong().color(theme::WARN));
+            sep(ui);
+        }
+        if let Some(w) = s.waiting_s {
+            ui.label(
+                RichText::new(format!(
+                    "waiting for the source: no samples for {w:.0} s (reconnecting)"
+                ))
+                .strong()
+                .color(theme::WARN),
+            );
+            sep(ui);
+        }
+        if let Some(e) = &s.ended {
+            let text = if s.failed {
+                e.clone()
+            } else if s.recording {
+                format!(
+                    "{e}: showing the result of the whole record ({} segments); Replay plays it again",
+                    s.averages
+                )
+            } else {
+                e.clone()
+            };
+            ui.label(RichText::new(text).strong().color(if s.failed {
+                theme::ERROR
+            } else {
+                theme::INK
+            }));
+            sep(ui);
+        }
+        if let Some(k) = s.max_averages_reached {
+            ui.label(
+                RichText::new(format!(
+                    "stopped: at most K = {k} segments reached (Restart average for more)"
+                ))
+                .strong()
+                .color(theme::WARN),
+            );
+            sep(ui);
+        }
         ui.label(RichText::new(&s.source).strong());
         sep(ui);
-        ui.label(format!("{} S/s", format_sig(s.sample_rate_hz, 4)));
+        ui.label(format_rate(s.sample_rate_hz));
         sep(ui);
-        ui.label(format!("averages {} (K_eff {:.1})", s.averages, s.k_eff));
+        ui.label(format!(
+            "{} · {} averaged (K_eff {:.1})",
+            s.averaging, s.averages, s.k_eff
+        ));
         sep(ui);
         ui.label(format!("N = {}", s.segment));
         sep(ui);
@@ -880,15 +987,21 @@ pub fn status_line(ui: &mut Ui, live: &LiveState, source: &SourceConfig, paused:
         ));
         sep(ui);
         ui.label(format!("latency {:.0} ms", 1e3 * s.latency_s));
-        sep(ui);
+        if let Some(n) = &s.stream_note {
+            sep(ui);
+            ui.label(RichText::new(n).color(theme::WARN));
+        }
         let dropped = s.dropped_blocks > 0 || s.dropped_frames > 0;
-        ui.label(
-            RichText::new(format!(
-                "dropped {} blocks ({} samples), {} frames",
-                s.dropped_blocks, s.dropped_samples, s.dropped_frames
-            ))
-            .color(if dropped { theme::WARN } else { theme::INK }),
-        );
+        if dropped {
+            sep(ui);
+            ui.label(
+                RichText::new(format!(
+                    "dropped {} blocks ({} samples), {} frames",
+                    s.dropped_blocks, s.dropped_samples, s.dropped_frames
+                ))
+                .color(theme::WARN),
+            );
+        }
         if s.gaps > 0 {
             sep(ui);
             ui.label(
@@ -911,19 +1024,14 @@ pub fn status_line(ui: &mut Ui, live: &LiveState, source: &SourceConfig, paused:
             sep(ui);
             ui.label(RichText::new(w).color(theme::WARN));
         }
-        if paused || s.paused {
-            sep(ui);
-            ui.label(RichText::new("FROZEN").strong().color(theme::WARN));
-        }
-        if let Some(e) = &s.ended {
-            sep(ui);
-            ui.label(RichText::new(e).color(if s.failed {
-                theme::ERROR
-            } else {
-                theme::PENCIL
-            }));
-        }
         sep(ui);
-        ui.label(RichText::new(format!("fit {:.0} ms", 1e3 * s.analysis_s)).color(theme::PENCIL));
+        ui.label(
+            RichText::new(format!(
+                "fit {:.0} ms · frame {:.1} ms",
+                1e3 * s.analysis_s,
+                1e3 * frame_cpu_s
+            ))
+            .color(theme::INK),
+        );
     });
 }

@@ -37,6 +37,8 @@ pub struct PlotState {
     pub reset_y: bool,
     /// Frequency range in view on the last frame, Hz (for "Export figure").
     pub view_hz: Option<(f64, f64)>,
+    /// The pointer was over the plot in the last frame (letter shortcuts act only then).
+    pub hovered: bool,
     view_initialised: bool,
 }
 
@@ -96,11 +98,12 @@ impl PlotState {
             } else {
                 "Waiting for the first averaged spectrum…".to_string()
             };
-            ui.allocate_ui(egui::vec2(ui.available_width(), height), |ui| {
+            let r = ui.allocate_ui(egui::vec2(ui.available_width(), height), |ui| {
                 ui.centered_and_justified(|ui| {
                     ui.label(egui::RichText::new(text).color(theme::PENCIL).size(15.0));
                 });
             });
+            self.hovered = r.response.contains_pointer();
             return out;
         }
         let (ya, yb) = affine.unwrap_or((1.0, 0.0));
@@ -122,8 +125,8 @@ impl PlotState {
                 r.mode.background_psd_v2_per_hz,
             ))
         });
-        let mass = state.calibration.mass_kg;
-        let bath_t = state.calibration.bath_temperature_k;
+        let mass = state.analysis.mass_kg;
+        let bath_t = state.analysis.bath_temperature_k.unwrap_or(0.0);
         let overlays = state.overlays.clone();
         let peaks = report.as_ref().map(|r| r.peaks.clone()).unwrap_or_default();
         let tone = report
@@ -143,7 +146,7 @@ impl PlotState {
             ),
         ];
         // In heterodyne the mode's lines sit at carrier ± f_m, not at f_m: no mode curves.
-        let heterodyne = state.calibration.carrier_hz.is_some() || sb.is_some();
+        let heterodyne = state.analysis.carrier_hz.is_some() || sb.is_some();
         let band_mode = self.band_mode;
         let quiet = self.quiet;
         let mut request_bounds: Option<PlotBounds> = None;
@@ -191,6 +194,8 @@ impl PlotState {
         let mut drag_start = self.band_drag_start;
         let mut band_set: Option<(f64, f64)> = None;
         let mut want_reset = false;
+        let mut zoom_to: Option<(f64, f64)> = None;
+        let mut hovered = false;
 
         let y_label = unit_label(unit);
         let y_fmt = move |mark: GridMark, range: &RangeInclusive<f64>| {
@@ -267,7 +272,13 @@ impl PlotState {
             // Snapshots.
             if overlays.snapshots {
                 for (i, s) in snapshots.iter().filter(|s| s.visible).enumerate() {
-                    let c = s.m_per_v.or(m_per_v);
+                    // A snapshot is drawn in metres only with its own calibration (never the
+                    // live source's); an uncalibrated one is left out in metre units and the
+                    // snapshot list says so.
+                    if unit_is_displacement(unit) && s.m_per_v.is_none() {
+                        continue;
+                    }
+                    let c = s.m_per_v;
                     let sy: Vec<f64> = s
                         .spectrum
                         .psd_v2_per_hz
@@ -391,17 +402,22 @@ impl PlotState {
                         .width(1.0),
                 );
             }
+            let mut markers: Vec<([f64; 2], usize)> = Vec::new();
             if overlays.peaks && !peaks.is_empty() {
                 let pts: Vec<[f64; 2]> = peaks
                     .iter()
-                    .filter_map(|p| {
+                    .enumerate()
+                    .filter_map(|(i, p)| {
                         let k = freqs.partition_point(|&f| f < p.frequency_hz);
                         let y = (k.saturating_sub(2)..(k + 2).min(logs.len()))
                             .filter_map(|j| logs.get(j).map(|l| ya * l + yb))
                             .filter(|y| y.is_finite())
                             .fold(f64::NEG_INFINITY, f64::max);
-                        y.is_finite()
-                            .then(|| [p.frequency_hz.log10(), y + if db { 2.0 } else { 0.15 }])
+                        let xy = [p.frequency_hz.log10(), y + if db { 2.0 } else { 0.15 }];
+                        y.is_finite().then(|| {
+                            markers.push((xy, i));
+                            xy
+                        })
                     })
                     .collect();
                 pui.points(
@@ -412,8 +428,31 @@ impl PlotState {
                         .radius(4.0),
                 );
             }
-            // Band dragging.
+            // Band dragging; a click on a stray-resonance marker zooms to it.
             let resp = pui.response().clone();
+            if !band_mode
+                && resp.clicked()
+                && overlays.peaks
+                && let Some(pointer) = resp.interact_pointer_pos()
+            {
+                let hit = markers
+                    .iter()
+                    .filter_map(|(xy, i)| {
+                        let at = pui.screen_from_plot(egui_plot::PlotPoint::new(xy[0], xy[1]));
+                        let d = at.distance(pointer);
+                        (d <= 10.0).then_some((d, peaks.get(*i)?))
+                    })
+                    .min_by(|a, b| a.0.total_cmp(&b.0));
+                if let Some((_, p)) = hit {
+                    let resolution = freqs.get(1).copied().unwrap_or(1.0);
+                    let half = (30.0 * p.linewidth_hz).max(50.0 * resolution);
+                    zoom_to = Some((
+                        (p.frequency_hz - half).max(resolution),
+                        p.frequency_hz + half,
+                    ));
+                }
+            }
+            hovered = resp.contains_pointer();
             if band_mode {
                 if resp.drag_started() {
                     drag_start = pui.pointer_coordinate().map(|p| p.x);
@@ -435,6 +474,10 @@ impl PlotState {
             }
         });
         self.band_drag_start = drag_start;
+        self.hovered = hovered;
+        if let Some((lo, hi)) = zoom_to {
+            out.push(UiCommand::ZoomTo(lo, hi));
+        }
         if let Some((lo, hi)) = band_set {
             self.band_mode = false;
             if hi > lo * (1.0 + 1e-7) {
@@ -458,5 +501,18 @@ fn format_power_short(v: f64) -> String {
         format_power(10f64.powf(e))
     } else {
         format!("{m:.2}×{}", format_power(10f64.powf(e)))
+    }
+}
+
+/// The session's marks (a fit band set by hand, a gap in a live stream) as thin vertical
+/// lines on a plot whose x axis is the session time (the trend strips).
+pub fn session_marks(pui: &mut egui_plot::PlotUi<'_>, live: &LiveState) {
+    for m in &live.marks {
+        pui.add(
+            VLine::new(m.text.clone(), m.time_s)
+                .color(theme::WARN)
+                .style(LineStyle::Dashed { length: 4.0 })
+                .width(1.0),
+        );
     }
 }

@@ -1,0 +1,219 @@
+//! How the window writes numbers: a value with its uncertainty (σ to two significant
+//! digits, the value to the same decimal — common practice in physics reporting), sample
+//! rates one way ("250 kS/s"), large counts grouped by thousands, and the readable UTC
+//! date-time used to name files. No egui here, so the rules are unit-tested.
+
+/// Superscript digits for a power of ten ("−9" → "⁻⁹").
+fn superscript(n: i32) -> String {
+    n.to_string()
+        .chars()
+        .map(|c| match c {
+            '-' => '⁻',
+            '0' => '⁰',
+            '1' => '¹',
+            '2' => '²',
+            '3' => '³',
+            '4' => '⁴',
+            '5' => '⁵',
+            '6' => '⁶',
+            '7' => '⁷',
+            '8' => '⁸',
+            '9' => '⁹',
+            other => other,
+        })
+        .collect()
+}
+
+/// `value` with `sig` significant digits: plain between 10⁻³ and 10⁷, else `m × 10ⁿ`.
+pub fn format_significant(value: f64, sig: usize) -> String {
+    if !value.is_finite() {
+        return "—".into();
+    }
+    if value == 0.0 {
+        return "0".into();
+    }
+    let sig = sig.max(1);
+    let e = value.abs().log10().floor() as i32;
+    if (-3..7).contains(&e) {
+        let decimals = (sig as i32 - 1 - e).max(0) as usize;
+        let step = 10f64.powi(e + 1 - sig as i32);
+        let rounded = if decimals == 0 {
+            (value / step).round() * step
+        } else {
+            value
+        };
+        format!("{rounded:.decimals$}")
+    } else {
+        let m = value / 10f64.powi(e);
+        format!("{m:.*} × 10{}", sig - 1, superscript(e))
+    }
+}
+
+/// `value ± sigma` with σ rounded to two significant digits and the value to the same
+/// decimal place: 15085 ± 1895 → "15100 ± 1900", 9.04e5 ± 92724 → "904000 ± 93000",
+/// 1.957e−9 ± 2.1e−11 → "(1.957 ± 0.021) × 10⁻⁹". Plain notation between 10⁻³ and 10⁷,
+/// else a common power of ten. Without a usable σ: four significant digits.
+pub fn format_uncertain(value: f64, sigma: Option<f64>) -> String {
+    if !value.is_finite() {
+        return "—".into();
+    }
+    let Some(sigma) = sigma.filter(|s| s.is_finite() && *s > 0.0) else {
+        return format_significant(value, 4);
+    };
+    // Decimal place of σ's second significant digit (10^d); σ rounding up to three digits
+    // (99.7 → 100) moves it one place.
+    let mut d = sigma.log10().floor() as i32 - 1;
+    if (sigma / 10f64.powi(d)).round() >= 100.0 {
+        d += 1;
+    }
+    let step = 10f64.powi(d);
+    let s = (sigma / step).round() * step;
+    let v = (value / step).round() * step;
+    let top = v.abs().max(s);
+    let e = top.log10().floor() as i32;
+    if (-3..7).contains(&e) {
+        let decimals = (-d).max(0) as usize;
+        format!("{v:.decimals$} ± {s:.decimals$}")
+    } else {
+        let scale = 10f64.powi(e);
+        let decimals = (e - d).max(0) as usize;
+        format!(
+            "({:.decimals$} ± {:.decimals$}) × 10{}",
+            v / scale,
+            s / scale,
+            superscript(e)
+        )
+    }
+}
+
+/// A sample rate with an SI prefix and at most four significant digits, trailing zeros
+/// dropped: 250000 → "250 kS/s", 44100 → "44.1 kS/s", 1.25e6 → "1.25 MS/s".
+pub fn format_rate(rate_hz: f64) -> String {
+    if !(rate_hz.is_finite() && rate_hz > 0.0) {
+        return "— S/s".into();
+    }
+    let (scale, prefix) = if rate_hz >= 1e9 {
+        (1e9, "G")
+    } else if rate_hz >= 1e6 {
+        (1e6, "M")
+    } else if rate_hz >= 1e3 {
+        (1e3, "k")
+    } else {
+        (1.0, "")
+    };
+    let v = rate_hz / scale;
+    let decimals = if v >= 100.0 {
+        1
+    } else if v >= 10.0 {
+        2
+    } else {
+        3
+    };
+    let text = format!("{v:.decimals$}");
+    let text = text.trim_end_matches('0').trim_end_matches('.');
+    format!("{text} {prefix}S/s")
+}
+
+/// A count rounded to a whole number, grouped by thousands with spaces ("320 000").
+pub fn group_thousands(count: f64) -> String {
+    if !count.is_finite() {
+        return "—".into();
+    }
+    let n = count.round().abs() as u64;
+    let digits = n.to_string();
+    let mut out = String::new();
+    for (i, c) in digits.chars().enumerate() {
+        if i > 0 && (digits.len() - i).is_multiple_of(3) {
+            out.push(' ');
+        }
+        out.push(c);
+    }
+    if count < -0.5 {
+        format!("−{out}")
+    } else {
+        out
+    }
+}
+
+/// Seconds since 1970-01-01 00:00 UTC as "YYYY-MM-DD_HH-MM-SS" (UTC; no characters that
+/// file systems refuse). The civil-date conversion is the days-from-civil inverse of
+/// H. Hinnant's "chrono-Compatible Low-Level Date Algorithms" (common practice).
+pub fn utc_file_stamp(unix_s: u64) -> String {
+    let days = (unix_s / 86_400) as i64;
+    let rem = unix_s % 86_400;
+    let (h, m, s) = (rem / 3600, (rem % 3600) / 60, rem % 60);
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z.rem_euclid(146_097);
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let day = doy - (153 * mp + 2) / 5 + 1;
+    let month = if mp < 10 { mp + 3 } else { mp - 9 };
+    let year = yoe + era * 400 + i64::from(month <= 2);
+    format!("{year:04}-{month:02}-{day:02}_{h:02}-{m:02}-{s:02}")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn uncertainty_two_significant_digits_value_to_the_same_decimal() {
+        // The examples of the rule (σ to 2 significant digits; common practice).
+        assert_eq!(format_uncertain(15085.0, Some(1895.0)), "15100 ± 1900");
+        assert_eq!(format_uncertain(9.04e5, Some(92_724.0)), "904000 ± 93000");
+        assert_eq!(format_uncertain(86_102.03, Some(0.8123)), "86102.03 ± 0.81");
+        assert_eq!(format_uncertain(28.64, Some(1.71)), "28.6 ± 1.7");
+        assert_eq!(format_uncertain(2.4412, Some(0.3104)), "2.44 ± 0.31");
+        assert_eq!(
+            format_uncertain(1.957e-9, Some(0.021e-9)),
+            "(1.957 ± 0.021) × 10⁻⁹"
+        );
+        assert_eq!(
+            format_uncertain(3.2e12, Some(4.4e10)),
+            "(3.200 ± 0.044) × 10¹²"
+        );
+        // σ rounding up to three digits moves the decimal: 0.0996 → 0.10.
+        assert_eq!(format_uncertain(0.5, Some(0.0996)), "0.50 ± 0.10");
+        assert_eq!(format_uncertain(287.3, Some(16.96)), "287 ± 17");
+        // σ larger than the value
+        assert_eq!(format_uncertain(0.3, Some(1.26)), "0.3 ± 1.3");
+        // no σ: four significant digits
+        assert_eq!(format_uncertain(86_102.034, None), "86100");
+        assert_eq!(
+            format_uncertain(1.23456e-15, Some(f64::NAN)),
+            "1.235 × 10⁻¹⁵"
+        );
+        assert_eq!(format_uncertain(f64::NAN, Some(1.0)), "—");
+        assert_eq!(format_uncertain(-12.346, Some(0.25)), "-12.35 ± 0.25");
+    }
+
+    #[test]
+    fn rates_one_way() {
+        assert_eq!(format_rate(250_000.0), "250 kS/s");
+        assert_eq!(format_rate(20_000.0), "20 kS/s");
+        assert_eq!(format_rate(44_100.0), "44.1 kS/s");
+        assert_eq!(format_rate(1.25e6), "1.25 MS/s");
+        assert_eq!(format_rate(1e8), "100 MS/s");
+        assert_eq!(format_rate(800.0), "800 S/s");
+        assert_eq!(format_rate(0.0), "— S/s");
+    }
+
+    #[test]
+    fn thousands_grouped() {
+        assert_eq!(group_thousands(320_000.0), "320 000");
+        assert_eq!(group_thousands(1_234_567.4), "1 234 567");
+        assert_eq!(group_thousands(999.0), "999");
+        assert_eq!(group_thousands(0.0), "0");
+    }
+
+    #[test]
+    fn file_stamps_are_utc_calendar_dates() {
+        // Reference instants from Python's datetime.fromtimestamp(t, timezone.utc).
+        assert_eq!(utc_file_stamp(0), "1970-01-01_00-00-00");
+        assert_eq!(utc_file_stamp(1_700_000_000), "2023-11-14_22-13-20");
+        assert_eq!(utc_file_stamp(951_782_400), "2000-02-29_00-00-00");
+        assert_eq!(utc_file_stamp(4_102_444_799), "2099-12-31_23-59-59");
+    }
+}
