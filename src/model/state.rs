@@ -282,8 +282,10 @@ pub struct CalibrationInputs {
     pub follow_mode: bool,
     /// Heterodyne carrier (IF), Hz; `None` for direct detection.
     pub carrier_hz: Option<f64>,
-    /// LO above the laser (true) or below (false).
-    pub lo_above: bool,
+    /// LO above the laser (`Some(true)`) or below (`Some(false)`); `None` until the user
+    /// chooses (never assumed: a wrong side swaps n̄ and n̄+1, METHODS §6).
+    #[serde(default)]
+    pub lo_above: Option<bool>,
     /// Stray-peak threshold over the floor, dB.
     pub peak_threshold_db: f64,
 }
@@ -304,7 +306,7 @@ impl Default for CalibrationInputs {
             mode_band_hz: None,
             follow_mode: true,
             carrier_hz: None,
-            lo_above: true,
+            lo_above: None,
             peak_threshold_db: 10.0,
         }
     }
@@ -341,7 +343,7 @@ impl CalibrationInputs {
         c.bath_temperature_uncertainty_k = options.bath_temperature_uncertainty_k;
         c.mode_band_hz = options.mode_band_hz;
         c.carrier_hz = options.carrier_hz;
-        c.lo_above = options.lo_above.unwrap_or(true);
+        c.lo_above = options.lo_above;
         c.peak_threshold_db = options.peak_threshold_db.unwrap_or(10.0);
         c
     }
@@ -353,7 +355,7 @@ impl CalibrationInputs {
             mass_uncertainty_kg: self.mass_kg.and(self.mass_uncertainty_kg),
             mode_band_hz: self.mode_band_hz,
             carrier_hz: self.carrier_hz,
-            lo_above: self.carrier_hz.map(|_| self.lo_above),
+            lo_above: self.carrier_hz.and(self.lo_above),
             peak_threshold_db: Some(self.peak_threshold_db),
             ..AnalysisOptions::default()
         };
