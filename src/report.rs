@@ -347,7 +347,12 @@ pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report,
     if let Some(f_tone) = options.tone_frequency_hz {
         let baseline = mode_fit.clone();
         let line = move |f: f64| baseline.as_ref().map_or(0.0, |m| m.line_psd_at(f));
-        match calibration::read_tone(spectrum, f_tone, &ToneOptions::default(), Some(&line)) {
+        // Heterodyne: the tone is the pair of PM lines at carrier ± f_tone (their summed power).
+        let reading = match options.carrier_hz {
+            Some(fc) => sideband::read_pm_lines(spectrum, fc, f_tone),
+            None => calibration::read_tone(spectrum, f_tone, &ToneOptions::default(), Some(&line)),
+        };
+        match reading {
             Ok(r) => tone_reading = Some(r),
             Err(PhysicsError::Input(m)) => return Err(AnalysisError::Input(m)),
             Err(e) => notes.push(format!("calibration: {e}")),
@@ -442,11 +447,23 @@ pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report,
 
     // --- Sidebands ---
     if let (Some(fc), Some(above)) = (options.carrier_hz, options.lo_above) {
-        report.sidebands = Some(sidebands(spectrum, options, fc, above, &mut report)?);
+        report.sidebands = Some(sidebands(
+            spectrum,
+            options,
+            fc,
+            above,
+            cal.as_ref(),
+            &mut report,
+        )?);
     }
 
     // --- Stray peaks ---
     let mut exclude: Vec<(f64, f64)> = tone_exclusion.into_iter().collect();
+    if let (Some(fc), Some((a, b))) = (options.carrier_hz, tone_exclusion) {
+        // Heterodyne: the tone's PM lines sit at carrier ± f_tone.
+        exclude.push((fc + a, fc + b));
+        exclude.push((fc - b, fc - a));
+    }
     if let Some(band) = options.mode_band_hz {
         if let Some(fc) = options.carrier_hz {
             exclude.push((fc + band.0, fc + band.1));
@@ -792,6 +809,7 @@ fn sidebands(
     options: &AnalysisOptions,
     carrier_hz: f64,
     lo_above: bool,
+    cal: Option<&Calibration>,
     report: &mut Report,
 ) -> Result<SidebandReport, AnalysisError> {
     let band = options.mode_band_hz.unwrap_or((0.0, 0.0));
@@ -841,8 +859,10 @@ fn sidebands(
             out.ratio_uncertainty = Some(f.ratio.sigma);
             out.occupancy = f.occupancy.map(|n| n.value);
             out.occupancy_uncertainty = f.occupancy.map(|n| n.sigma);
-            out.linewidth_hz = Some(f.linewidth_hz.value);
-            out.linewidth_hz_uncertainty = Some(f.linewidth_hz.sigma);
+            if !f.resolution_limited {
+                out.linewidth_hz = Some(f.linewidth_hz.value);
+                out.linewidth_hz_uncertainty = Some(f.linewidth_hz.sigma);
+            }
             out.mechanical_frequency_hz = Some(f.mechanical_frequency_hz.value);
             out.mechanical_frequency_hz_uncertainty = Some(f.mechanical_frequency_hz.sigma);
             out.convention = Some(f.convention.clone());
@@ -852,13 +872,15 @@ fn sidebands(
             let g = f.linewidth_hz;
             report.mode.frequency_hz = Some(fm.value);
             report.mode.frequency_hz_uncertainty = Some(fm.sigma);
-            report.mode.linewidth_hz = Some(g.value);
-            report.mode.linewidth_hz_uncertainty = Some(g.sigma);
-            let q = fm.value / g.value;
-            report.mode.quality_factor = Some(q);
-            report.mode.quality_factor_uncertainty =
-                Some(q * (fm.relative().powi(2) + g.relative().powi(2)).sqrt());
-            report.mode.line_shape = Some("lorentzian".into());
+            if !f.resolution_limited {
+                report.mode.linewidth_hz = Some(g.value);
+                report.mode.linewidth_hz_uncertainty = Some(g.sigma);
+                let q = fm.value / g.value;
+                report.mode.quality_factor = Some(q);
+                report.mode.quality_factor_uncertainty =
+                    Some(q * (fm.relative().powi(2) + g.relative().powi(2)).sqrt());
+                report.mode.line_shape = Some("lorentzian".into());
+            }
             report.notes.push("mode: heterodyne record: frequency and linewidth from the sideband pair; areas are per sideband (sidebands.*)".into());
             if let Some(mass) = options.mass_kg {
                 fill_quantum_levels(
@@ -868,7 +890,29 @@ fn sidebands(
                     g.value,
                     options.bath_temperature_k,
                 );
-                report.notes.push("quantum: heterodyne record: occupancy from the sideband ratio (sidebands.occupancy), not from a calibrated area".into());
+                if f.resolution_limited {
+                    // The zero-point peak needs the linewidth, which is not measured.
+                    report.quantum.zero_point_peak_psd_m2_per_hz = None;
+                    report.quantum.sql_psd_at_resonance_m2_per_hz = None;
+                    report.quantum.thermal_peak_psd_at_bath_m2_per_hz = None;
+                }
+                match (cal, report.quantum.x_zpf_m) {
+                    (Some(c), Some(x_zpf)) => {
+                        // METHODS §4: c²(A_red + A_blue) = x_zpf²(2n̄+1).
+                        if let Some(n) =
+                            sideband::occupancy_from_areas(f.red.area, f.blue.area, c.m2_per_v2(), x_zpf)
+                        {
+                            report.quantum.occupancy = Some(n.value);
+                            report.quantum.occupancy_uncertainty = Some(n.sigma);
+                            if let Some(t) = occupancy::effective_temperature(fm.value, n) {
+                                report.quantum.effective_temperature_k = Some(t.value);
+                                report.quantum.effective_temperature_k_uncertainty = Some(t.sigma);
+                            }
+                        }
+                        report.notes.push("quantum: heterodyne record: occupancy from the calibrated sideband areas, c²(A_red + A_blue) = x_zpf²(2n+1); sidebands.occupancy is the calibration-free value from their ratio".into());
+                    }
+                    _ => report.notes.push("quantum: heterodyne record: occupancy from the sideband ratio (sidebands.occupancy); quantum.occupancy needs a calibration (--m-per-v or a PM tone at carrier ± --tone-freq)".into()),
+                }
             }
         }
         Err(PhysicsError::Input(m)) => return Err(AnalysisError::Input(m)),

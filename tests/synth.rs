@@ -83,7 +83,10 @@ fn band_power(psd: &[f64], df: f64, f0: f64, half_width_hz: f64, floor: f64) -> 
 
 #[test]
 fn scenario_list_and_generator() {
-    assert_eq!(SCENARIOS, &["thermal", "cooldown", "heterodyne", "strays"]);
+    assert_eq!(
+        SCENARIOS,
+        &["thermal", "cooldown", "heterodyne", "strays", "quantum"]
+    );
     for name in SCENARIOS {
         let mut g = synth::generator(name, 3).expect("known scenario");
         let cfg = ScenarioConfig::defaults(name).unwrap();

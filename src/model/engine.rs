@@ -918,7 +918,9 @@ fn trend_point(r: &Report, time_s: f64) -> TrendPoint {
         time_s,
         frequency_hz: finite(r.mode.frequency_hz),
         linewidth_hz: finite(r.mode.linewidth_hz),
-        occupancy: finite(r.quantum.occupancy),
+        // Heterodyne without a calibration: the sideband asymmetry's n̄.
+        occupancy: finite(r.quantum.occupancy)
+            .or_else(|| finite(r.sidebands.as_ref().and_then(|s| s.occupancy))),
         m_per_v: finite(r.calibration.m_per_v),
         m_per_v_uncertainty: finite(r.calibration.m_per_v_uncertainty),
         effective_temperature_k: finite(r.quantum.effective_temperature_k),

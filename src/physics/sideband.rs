@@ -57,8 +57,13 @@ pub struct SidebandFit {
     pub occupancy: Option<Estimate>,
     /// Which side the LO is on and which electronic line was taken as red.
     pub convention: String,
-    /// Reduced χ² of the joint fit.
+    /// Reduced χ² of the joint fit (NaN for band sums).
     pub reduced_chi2: f64,
+    /// The lines are narrower than the resolution (METHODS §2c): the areas are
+    /// background-subtracted band sums, the frequencies interpolated peaks, and
+    /// `linewidth_hz` is the ENBW, an upper bound.
+    #[serde(default)]
+    pub resolution_limited: bool,
     /// Caveats.
     pub notes: Vec<String>,
 }
@@ -125,6 +130,18 @@ impl Model for PairModel<'_> {
 /// [`PhysicsError::Input`] for a band with LO ≥ HI, a negative LO, or sideband windows outside
 /// the spectrum; [`PhysicsError::Sideband`] when either line cannot be found or fitted.
 pub fn fit_sidebands(spectrum: &Spectrum, options: &SidebandOptions) -> Result<SidebandFit> {
+    match fit_sidebands_joint(spectrum, options) {
+        Ok(f) if f.linewidth_hz.value >= spectrum.enbw_hz => Ok(f),
+        Ok(f) => Ok(band_sum_sidebands(spectrum, options).unwrap_or(f)),
+        Err(PhysicsError::Sideband(m)) => {
+            band_sum_sidebands(spectrum, options).map_err(|_| PhysicsError::Sideband(m))
+        }
+        Err(e) => Err(e),
+    }
+}
+
+/// The Lorentzian joint fit (resolved lines).
+fn fit_sidebands_joint(spectrum: &Spectrum, options: &SidebandOptions) -> Result<SidebandFit> {
     let (lo, hi) = options.band_hz;
     let fc = options.carrier_hz;
     if !(fc.is_finite() && fc > 0.0) {
@@ -265,8 +282,183 @@ pub fn fit_sidebands(spectrum: &Spectrum, options: &SidebandOptions) -> Result<S
         occupancy,
         convention,
         reduced_chi2: chi2_red,
+        resolution_limited: false,
         notes,
     })
+}
+
+/// R = (A_red/A_blue)/(η_red/η_blue) with σ from independent relative area errors (METHODS §6).
+fn ratio_of(red: Estimate, blue: Estimate, eta: Estimate) -> Estimate {
+    let r = red.value / blue.value / eta.value;
+    let rel = (red.relative().powi(2) + blue.relative().powi(2) + eta.relative().powi(2)).sqrt();
+    Estimate::new(r, r * rel)
+}
+
+fn convention_text(lo_above: bool, red_hz: f64) -> String {
+    if lo_above {
+        format!(
+            "LO above the laser: red (Stokes, n+1) = f_IF + f_m at {red_hz:.3} Hz; blue (anti-Stokes, n) = f_IF − f_m"
+        )
+    } else {
+        format!(
+            "LO below the laser: red (Stokes, n+1) = f_IF − f_m at {red_hz:.3} Hz; blue (anti-Stokes, n) = f_IF + f_m"
+        )
+    }
+}
+
+/// One line narrower than the resolution read by a band sum (METHODS §2c): the strongest
+/// bin of the window, the area Σ(S_k − B)Δf over ±M bins (M = the window's tone half-width
+/// + 2, which holds ≥ 99.99 % of the kernel, METHODS §1), B the mean of the window's bins
+/// farther than 2M from the peak. σ from the χ² scatter of the summed bins (1/√K_eff each,
+/// neighbours correlated: × the window's error inflation) and of the background mean.
+fn band_sum_line(
+    spectrum: &Spectrum,
+    window_hz: (f64, f64),
+    what: &str,
+) -> Result<SidebandLineFit> {
+    let (a, b) = fit::band_bins(spectrum, window_hz, what)?;
+    let psd = |k: usize| spectrum.psd_v2_per_hz.get(k).copied().unwrap_or(f64::NAN);
+    let df = spectrum.resolution_hz;
+    let kp = (a..=b)
+        .filter(|&k| psd(k).is_finite())
+        .max_by(|&x, &y| psd(x).total_cmp(&psd(y)))
+        .ok_or_else(|| PhysicsError::Sideband(format!("no finite bins in the {what}")))?;
+    let m = spectrum.window.tone_half_width_bins() + 2;
+    let bg: Vec<f64> = (a..=b)
+        .filter(|&k| k.abs_diff(kp) > 2 * m)
+        .map(psd)
+        .filter(|v| v.is_finite())
+        .collect();
+    if bg.len() < 8 {
+        return Err(PhysicsError::Sideband(format!(
+            "the {what} is too narrow for a band sum"
+        )));
+    }
+    let k_eff = spectrum.k_eff.max(1.0);
+    let b_mean = bg.iter().sum::<f64>() / bg.len() as f64;
+    let sigma_b = b_mean / (k_eff * bg.len() as f64).sqrt();
+    let lo = kp.saturating_sub(m).max(a);
+    let hi = (kp + m).min(b);
+    let nbins = (hi - lo + 1) as f64;
+    let area: f64 = (lo..=hi).map(|k| (psd(k) - b_mean) * df).sum();
+    let var_bins: f64 = (lo..=hi)
+        .map(|k| (psd(k) * df).powi(2) / k_eff)
+        .sum::<f64>()
+        * window_stats::error_inflation(spectrum.window).powi(2);
+    let sigma = (var_bins + (nbins * df * sigma_b).powi(2)).sqrt();
+    if !(area > 3.0 * sigma) {
+        return Err(PhysicsError::Sideband(format!(
+            "the line in the {what} is not significant"
+        )));
+    }
+    // Parabolic interpolation of the peak (in log power) for the frequency.
+    let f = if kp > a && kp < b {
+        let (l, c, r) = (psd(kp - 1).ln(), psd(kp).ln(), psd(kp + 1).ln());
+        let den = l - 2.0 * c + r;
+        let d = if den.abs() > 0.0 {
+            0.5 * (l - r) / den
+        } else {
+            0.0
+        };
+        (kp as f64 + d.clamp(-0.5, 0.5)) * df
+    } else {
+        kp as f64 * df
+    };
+    Ok(SidebandLineFit {
+        frequency_hz: Estimate::new(f, df / 12f64.sqrt()),
+        area: Estimate::new(area, sigma),
+        background_psd: Estimate::new(b_mean, sigma_b),
+    })
+}
+
+/// Both lines by band sums (lines narrower than the resolution, METHODS §2c).
+fn band_sum_sidebands(spectrum: &Spectrum, options: &SidebandOptions) -> Result<SidebandFit> {
+    let (lo, hi) = options.band_hz;
+    let fc = options.carrier_hz;
+    let upper = band_sum_line(spectrum, (fc + lo, fc + hi), "upper sideband window")?;
+    let lower = band_sum_line(spectrum, (fc - hi, fc - lo), "lower sideband window")?;
+    let (red, blue) = if options.lo_above {
+        (upper, lower)
+    } else {
+        (lower, upper)
+    };
+    let ratio = ratio_of(red.area, blue.area, options.imbalance);
+    let occupancy = occupancy_from_ratio(ratio);
+    let mut notes = vec![
+        CLASSICAL_NOISE_NOTE.to_string(),
+        format!(
+            "sidebands: the lines are narrower than the resolution (ENBW {:.3} Hz): areas are background-subtracted band sums and the linewidth is not measured (METHODS §2c)",
+            spectrum.enbw_hz
+        ),
+    ];
+    if occupancy.is_none() {
+        notes.push(format!(
+            "sideband ratio R = {:.4} ≤ 1: no occupancy (check --lo-side, the imbalance correction and classical noise)",
+            ratio.value
+        ));
+    }
+    let split = Estimate::new(
+        0.5 * (upper.frequency_hz.value - lower.frequency_hz.value),
+        0.5 * upper.frequency_hz.sigma.hypot(lower.frequency_hz.sigma),
+    );
+    Ok(SidebandFit {
+        convention: convention_text(options.lo_above, red.frequency_hz.value),
+        red,
+        blue,
+        linewidth_hz: Estimate::new(spectrum.enbw_hz, 0.0),
+        mechanical_frequency_hz: split,
+        ratio,
+        imbalance: options.imbalance,
+        occupancy,
+        reduced_chi2: f64::NAN,
+        resolution_limited: true,
+        notes,
+    })
+}
+
+/// The two phase-modulation calibration lines at carrier ± `f_mod_hz`, read as tones
+/// (METHODS §1 band sums) and combined: the returned reading holds their summed power (each
+/// line carries half the equivalent power of the tone, so c² = x_cal,rms²/(P_up + P_down),
+/// whatever the split between the two detection sides) and f_mod from half their split.
+///
+/// # Errors
+/// As [`calibration::read_tone`].
+pub fn read_pm_lines(
+    spectrum: &Spectrum,
+    carrier_hz: f64,
+    f_mod_hz: f64,
+) -> Result<calibration::ToneReading> {
+    let opts = calibration::ToneOptions::default();
+    let up = calibration::read_tone(spectrum, carrier_hz + f_mod_hz, &opts, None)?;
+    let dn = calibration::read_tone(spectrum, carrier_hz - f_mod_hz, &opts, None)?;
+    let mut out = up.clone();
+    out.frequency_hz = 0.5 * (up.frequency_hz - dn.frequency_hz);
+    out.power = Estimate::new(
+        up.power.value + dn.power.value,
+        up.power.sigma.hypot(dn.power.sigma),
+    );
+    out.peak_power = up.peak_power + dn.peak_power;
+    out.floor_psd = 0.5 * (up.floor_psd + dn.floor_psd);
+    Ok(out)
+}
+
+/// Occupancy from the calibrated sideband areas (METHODS §4, §6): the red and blue areas are
+/// x_zpf²(n̄+1) and x_zpf² n̄, so c²(A_red + A_blue) = x_zpf²(2n̄+1) and
+/// n̄ = (c²(A_red + A_blue)/x_zpf² − 1)/2. σ by first-order propagation (independent areas,
+/// the calibration's relative error).
+pub fn occupancy_from_areas(
+    red_v2: Estimate,
+    blue_v2: Estimate,
+    m2_per_v2: Estimate,
+    x_zpf_m: f64,
+) -> Option<Estimate> {
+    let sum = red_v2.value + blue_v2.value;
+    let sum_sigma = red_v2.sigma.hypot(blue_v2.sigma);
+    let x2 = x_zpf_m * x_zpf_m;
+    let var = m2_per_v2.value * sum;
+    let var_sigma = var * (sum_sigma / sum).hypot(m2_per_v2.relative());
+    let n = Estimate::new(0.5 * (var / x2 - 1.0), 0.5 * var_sigma / x2);
+    (n.value.is_finite() && n.sigma.is_finite()).then_some(n)
 }
 
 #[cfg(test)]

@@ -30,6 +30,7 @@
 //! reproducible: see [`rng`] for what "the same on every platform" means.
 
 pub mod oscillator;
+pub mod quantum;
 pub mod rng;
 mod stream;
 pub mod two_detector;
@@ -53,7 +54,7 @@ pub trait Generator: Send {
 }
 
 /// Names of the scenarios `stillpoint synth` knows, in help order.
-pub const SCENARIOS: &[&str] = &["thermal", "cooldown", "heterodyne", "strays"];
+pub const SCENARIOS: &[&str] = &["thermal", "cooldown", "heterodyne", "strays", "quantum"];
 
 /// One-line description of each scenario (same order as [`SCENARIOS`]).
 pub const SCENARIO_HELP: &[(&str, &str)] = &[
@@ -76,6 +77,8 @@ pub const SCENARIO_HELP: &[(&str, &str)] = &[
     (
         "two-detector",
         "one mode read by two detectors (2-channel WAV), 6 dB below each detector's floor",
+        "quantum",
+        "heterodyne: cryostat 295 K -> 4 K, then sideband laser cooling to n ~ 2 (the demo; files: the few-phonon end)",
     ),
 ];
 
@@ -99,7 +102,7 @@ pub type Result<T> = std::result::Result<T, SynthError>;
 #[non_exhaustive]
 pub enum SynthError {
     /// The scenario name is not one of [`SCENARIOS`].
-    #[error("unknown scenario '{0}' (known: thermal, cooldown, heterodyne, strays)")]
+    #[error("unknown scenario '{0}' (known: thermal, cooldown, heterodyne, strays, quantum)")]
     UnknownScenario(String),
     /// An option name that this scenario does not take.
     #[error("scenario '{scenario}' has no option '{key}' (it takes: {known})")]
@@ -284,6 +287,9 @@ pub struct ScenarioConfig {
     pub heterodyne: Option<HeterodyneParams>,
     /// Stray lines (scenario `strays`).
     pub strays: Vec<StrayLine>,
+    /// Cryostat + laser cooling in heterodyne (scenario `quantum`).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub quantum: Option<quantum::QuantumParams>,
 }
 
 /// One named option of a scenario, for `stillpoint synth --help`-style listings.
@@ -324,6 +330,7 @@ impl ScenarioConfig {
             cooldown: None,
             heterodyne: None,
             strays: Vec::new(),
+            quantum: None,
         };
         match name {
             "thermal" => Ok(base),
@@ -367,6 +374,17 @@ impl ScenarioConfig {
                 mains_harmonics: 12,
                 mains_rms_v: 3.0e-3,
                 strays: default_strays(),
+                ..base
+            }),
+            "quantum" => Ok(Self {
+                duration_secs: 2.0,
+                sample_rate_hz: 500_000.0,
+                quality_factor: 5.0e4,
+                m_per_v: 1.0e-12,
+                floor_v2_per_hz: 1.2e-8,
+                tone_frequency_hz: 98_000.0,
+                tone_rms_m: 3.5e-14,
+                quantum: Some(quantum::QuantumParams::default()),
                 ..base
             }),
             other => Err(SynthError::UnknownScenario(other.to_string())),
@@ -485,6 +503,48 @@ impl ScenarioConfig {
                 ),
             ]);
         }
+        if let Some(q) = &self.quantum {
+            k.extend([
+                knob(
+                    "base_temperature_k",
+                    q.base_temperature_k,
+                    "bath temperature reached by the cryostat, K",
+                ),
+                knob(
+                    "base_frequency_hz",
+                    q.base_frequency_hz,
+                    "f_m at the bath temperature, Hz",
+                ),
+                knob(
+                    "base_quality_factor",
+                    q.base_quality_factor,
+                    "intrinsic Q at the bath temperature",
+                ),
+                knob(
+                    "cooling_damping_hz",
+                    q.cooling_damping_hz,
+                    "optical damping gamma_opt at full cooling power, Hz",
+                ),
+                knob(
+                    "cavity_linewidth_hz",
+                    q.cavity_linewidth_hz,
+                    "cavity linewidth kappa/2pi, Hz (n_min = (kappa/4 Omega_m)^2)",
+                ),
+                knob("carrier_hz", q.carrier_hz, "intermediate frequency, Hz"),
+                knob("carrier_rms_v", q.carrier_rms_v, "carrier rms, V"),
+                knob(
+                    "lo_side",
+                    if q.lo_above { "above" } else { "below" },
+                    "local oscillator above|below the laser",
+                ),
+                knob(
+                    "file_start_secs",
+                    q.file_start_secs
+                        .map_or_else(|| "auto".to_string(), |v| v.to_string()),
+                    "where in the cycle a file starts, s (auto: the few-phonon hold)",
+                ),
+            ]);
+        }
         if !self.strays.is_empty() {
             k.push(knob(
                 "strays_gain_db",
@@ -548,6 +608,47 @@ impl ScenarioConfig {
                 })?;
             }
             "mains_rms_v" => self.mains_rms_v = num()?,
+            "cooling_damping_hz"
+            | "cavity_linewidth_hz"
+            | "file_start_secs"
+            | "carrier_hz"
+            | "carrier_rms_v"
+            | "lo_side"
+            | "base_temperature_k"
+            | "base_frequency_hz"
+            | "base_quality_factor"
+                if self.quantum.is_some() =>
+            {
+                let q = self
+                    .quantum
+                    .as_mut()
+                    .ok_or_else(|| SynthError::Parameter(key.into()))?;
+                if key == "lo_side" {
+                    q.lo_above = match value.trim() {
+                        "above" => true,
+                        "below" => false,
+                        _ => {
+                            return Err(SynthError::Parameter(format!(
+                                "lo_side must be above or below, got '{value}'"
+                            )));
+                        }
+                    };
+                } else if key == "file_start_secs" && value.trim() == "auto" {
+                    q.file_start_secs = None;
+                } else {
+                    let v = num()?;
+                    match key {
+                        "cooling_damping_hz" => q.cooling_damping_hz = v,
+                        "cavity_linewidth_hz" => q.cavity_linewidth_hz = v,
+                        "file_start_secs" => q.file_start_secs = Some(v),
+                        "carrier_hz" => q.carrier_hz = v,
+                        "carrier_rms_v" => q.carrier_rms_v = v,
+                        "base_temperature_k" => q.base_temperature_k = v,
+                        "base_frequency_hz" => q.base_frequency_hz = v,
+                        _ => q.base_quality_factor = v,
+                    }
+                }
+            }
             "base_temperature_k"
             | "base_frequency_hz"
             | "base_quality_factor"
@@ -643,7 +744,10 @@ impl ScenarioConfig {
         positive("freq_pull_hz_per_m", self.freq_pull_hz_per_m)?;
         non_negative("mains_rms_v", self.mains_rms_v)?;
         below_nyquist("frequency_hz", self.frequency_hz, fs)?;
-        if self.tone_frequency_hz > 0.0 && self.heterodyne.is_none() {
+        if let Some(q) = &self.quantum {
+            q.validate(self)?;
+        }
+        if self.tone_frequency_hz > 0.0 && self.heterodyne.is_none() && self.quantum.is_none() {
             below_nyquist("tone_frequency_hz", self.tone_frequency_hz, fs)?;
         }
         if self.mains_harmonics > 0 {
@@ -722,6 +826,9 @@ impl ScenarioConfig {
     /// # Errors
     /// Invalid configuration ([`ScenarioConfig::validate`]).
     pub fn build(&self) -> Result<Box<dyn Generator>> {
+        if self.quantum.is_some() {
+            return Ok(Box::new(quantum::QuantumStream::new(self, false)?));
+        }
         Ok(Box::new(stream::Stream::new(self, false)?))
     }
 
@@ -730,6 +837,9 @@ impl ScenarioConfig {
     /// # Errors
     /// Invalid configuration.
     pub fn build_live(&self) -> Result<Box<dyn Generator>> {
+        if self.quantum.is_some() {
+            return Ok(Box::new(quantum::QuantumStream::new(self, true)?));
+        }
         Ok(Box::new(stream::Stream::new(self, true)?))
     }
 
@@ -774,7 +884,7 @@ impl ScenarioConfig {
     /// The mode's true parameters at time `t_secs` of the record (constant except in
     /// `cooldown`); `None` for `heterodyne`, whose mode is seen only through its sidebands.
     pub fn mode_at(&self, t_secs: f64, live: bool) -> Option<ModeTruth> {
-        if self.heterodyne.is_some() {
+        if self.heterodyne.is_some() || self.quantum.is_some() {
             return None;
         }
         let (t, f, q) = self.schedule_at(t_secs, live);
@@ -800,6 +910,9 @@ impl ScenarioConfig {
     /// Invalid configuration.
     pub fn truth(&self) -> Result<Truth> {
         self.validate()?;
+        if let Some(q) = &self.quantum {
+            return Ok(quantum::truth(self, q));
+        }
         Ok(stream::truth(self))
     }
 }
@@ -1099,6 +1212,9 @@ pub struct Truth {
     pub sidebands: Option<SidebandTruth>,
     /// Cooldown schedule.
     pub schedule: Option<ScheduleTruth>,
+    /// The `quantum` scenario's cycle (cryostat, bath, laser cooling, few phonons).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub quantum: Option<quantum::QuantumTruth>,
     /// The configuration that made the record (every parameter verbatim).
     pub config: ScenarioConfig,
     /// Conventions and caveats.

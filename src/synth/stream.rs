@@ -541,6 +541,7 @@ pub(crate) fn truth(config: &ScenarioConfig) -> Truth {
         peaks,
         sidebands,
         schedule,
+        quantum: None,
         config: config.clone(),
         notes,
     }

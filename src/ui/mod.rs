@@ -12,6 +12,7 @@ mod figure_export;
 mod files;
 mod panels;
 mod plot;
+mod sideband_view;
 mod theme;
 
 use std::path::PathBuf;
@@ -49,29 +50,18 @@ pub struct MonitorOptions {
 }
 
 impl MonitorOptions {
-    /// The embedded demo: the invented cooldown (seed 1) with a calibration that fits it (a
-    /// tone of known equivalent displacement, the effective mass and a band around the mode,
-    /// all from the synthesiser's scenario definition).
+    /// The embedded demo: the invented `quantum` scenario (seed 1): a cryostat cooldown to
+    /// 4 K, then sideband laser cooling to a few phonons, read out in heterodyne
+    /// ([`crate::synth::quantum`]). Calibrated like a real heterodyne set-up: the carrier, the
+    /// side of the local oscillator and the phase-modulation tone (pair of lines at carrier ±
+    /// f_mod of known equivalent displacement) are the scenario's own settings, as are the
+    /// effective mass, the bath temperature and a band of f_m.
     pub fn demo() -> Self {
-        let mut analysis = AnalysisOptions::default();
-        let mut welch = None;
-        if let Ok(s) = crate::synth::ScenarioConfig::defaults("cooldown") {
-            analysis.tone_frequency_hz = Some(s.tone_frequency_hz);
-            analysis.tone_rms_m = Some(s.tone_rms_m);
-            analysis.mass_kg = Some(s.mass_kg);
-            let f0 = s.frequency_hz;
-            analysis.mode_band_hz = Some((f0 - 700.0, f0 + 700.0));
-            // ~2 Hz bins, 0.5 s segments: quick to follow the cooldown (the report notes when the
-            // cold mode's linewidth nears the resolution).
-            let mut w = WelchConfig::new(s.sample_rate_hz, 131_072);
-            w.averaging = crate::dsp::Averaging::Exponential {
-                time_constant_segments: 8.0,
-            };
-            welch = Some(WelchSettings::from_config(&w));
-        }
+        let (welch, analysis) = sideband_view::demo_settings();
+        let welch = welch.as_ref().map(WelchSettings::from_config);
         Self {
             source: SourceConfig::new(SourceSpec::Demo {
-                scenario: "cooldown".into(),
+                scenario: sideband_view::DEMO_SCENARIO.into(),
                 seed: 1,
             }),
             welch,
@@ -223,6 +213,7 @@ pub struct StillpointApp {
     ui: panels::PanelState,
     plot: plot::PlotState,
     cooldown: cooldown::CooldownState,
+    sidebands: sideband_view::SidebandViewState,
     files: files::FileState,
     snapshots: Vec<LoadedSnapshot>,
     reference: Option<usize>,
@@ -305,6 +296,7 @@ impl StillpointApp {
             ui: panels::PanelState::new(&options.source),
             plot: plot::PlotState::default(),
             cooldown: cooldown::CooldownState::default(),
+            sidebands: sideband_view::SidebandViewState::default(),
             files: files::FileState::new(),
             snapshots: Vec::new(),
             reference: None,
@@ -388,6 +380,12 @@ impl StillpointApp {
     }
 
     /// Messages kept, oldest first (tests read them).
+    /// The sideband view's trend (tests read it).
+    pub fn sideband_history(&self) -> &[sideband_view::SidebandPoint] {
+        self.sidebands.history()
+    }
+
+    /// Messages shown (tests read them).
     pub fn messages(&self) -> &[UiMessage] {
         &self.messages
     }
@@ -472,6 +470,7 @@ impl StillpointApp {
         let frames = engine.drain_frames();
         let notices = engine.drain_notices();
         for f in frames {
+            self.sidebands.observe(&f);
             self.live.apply(f);
         }
         for n in notices {
@@ -549,11 +548,8 @@ impl StillpointApp {
         if pressed(Key::B) {
             self.plot.band_mode = !self.plot.band_mode;
         }
-        if pressed(Key::M)
-            && let Some((lo, hi)) = self.state.analysis.mode_band_hz
-        {
-            let w = hi - lo;
-            self.commands.push(UiCommand::ZoomTo(lo - w, hi + w));
+        if pressed(Key::M) {
+            self.zoom_mode_region();
         }
         if pressed(Key::A) {
             self.commands.push(UiCommand::ZoomAll);
@@ -626,8 +622,21 @@ impl StillpointApp {
                 Err(e) => self.error(MessageKind::Source, e),
             },
             UiCommand::OpenDemo => {
+                // The demo comes with its calibration and Welch settings (as at start-up).
                 let demo = MonitorOptions::demo();
                 self.pending_source = Some(demo.source.clone());
+                if let Some(w) = &demo.welch {
+                    self.state.welch = w.clone();
+                    self.send(EngineCommand::SetWelch(self.state.welch.clone()));
+                }
+                if let Some(a) = &demo.analysis {
+                    self.state.analysis = a.clone();
+                    self.ui.sync_from(&self.state);
+                    self.send_analysis();
+                }
+                self.cooldown = cooldown::CooldownState::default();
+                self.sidebands = sideband_view::SidebandViewState::default();
+                self.plot.reset_view = true;
                 self.send(EngineCommand::OpenSource(demo.source));
             }
             UiCommand::SetSpeed(s) => {
@@ -668,6 +677,21 @@ impl StillpointApp {
                 );
             }
             UiCommand::DismissMessages => self.messages.clear(),
+        }
+    }
+
+    /// Zooms to the mode's band; in heterodyne (the band is of f_m itself) to both sidebands
+    /// at carrier ± band, where the mode's lines are.
+    fn zoom_mode_region(&mut self) {
+        let Some((lo, hi)) = self.state.analysis.mode_band_hz else {
+            return;
+        };
+        let w = hi - lo;
+        match self.state.analysis.carrier_hz {
+            Some(fc) => self
+                .commands
+                .push(UiCommand::ZoomTo((fc - hi - w).max(1.0), fc + hi + w)),
+            None => self.commands.push(UiCommand::ZoomTo(lo - w, hi + w)),
         }
     }
 
@@ -741,11 +765,8 @@ impl StillpointApp {
             if ui.button("Whole span").on_hover_text("A").clicked() {
                 self.commands.push(UiCommand::ZoomAll);
             }
-            if ui.button("Mode region").on_hover_text("M").clicked()
-                && let Some((lo, hi)) = self.state.analysis.mode_band_hz
-            {
-                let w = hi - lo;
-                self.commands.push(UiCommand::ZoomTo(lo - w, hi + w));
+            if ui.button("Mode region").on_hover_text("M").clicked() {
+                self.zoom_mode_region();
             }
             ui.checkbox(&mut self.state.show_cooldown, "Cooldown view");
             ui.separator();
@@ -986,15 +1007,27 @@ impl eframe::App for StillpointApp {
             .show(ui, |ui| {
                 self.messages_ui(ui);
                 let avail = ui.available_height();
-                let plot_h = if self.state.show_cooldown {
-                    (avail * 0.6).max(260.0)
+                let heterodyne = self.state.analysis.carrier_hz.is_some();
+                let sideband_h = if heterodyne {
+                    (avail * 0.45).max(240.0)
                 } else {
-                    avail
+                    0.0
+                };
+                let rest = (avail - sideband_h).max(200.0);
+                let plot_h = if self.state.show_cooldown {
+                    (rest * 0.6).max(220.0)
+                } else {
+                    rest
                 };
                 let cmds =
                     self.plot
                         .spectrum_ui(ui, plot_h, &self.live, &self.state, &self.snapshots);
                 self.commands.extend(cmds);
+                if heterodyne {
+                    ui.add_space(4.0);
+                    self.sidebands
+                        .ui(ui, sideband_h, &self.live, &self.state, &self.source);
+                }
                 if self.state.show_cooldown {
                     ui.add_space(4.0);
                     self.cooldown.ui(ui, &self.live);

@@ -46,7 +46,7 @@ pub struct PanelState {
     band_hi: String,
     follow_mode: bool,
     carrier: String,
-    lo_above: bool,
+    lo_above: Option<bool>,
     threshold: String,
     sloped_background: bool,
     imbalance: String,
@@ -138,7 +138,7 @@ impl PanelState {
             band_hi: String::new(),
             follow_mode: true,
             carrier: String::new(),
-            lo_above: true,
+            lo_above: None,
             threshold: String::new(),
             sloped_background: false,
             imbalance: String::new(),
@@ -639,10 +639,17 @@ impl PanelState {
         if !self.carrier.trim().is_empty() {
             ui.horizontal(|ui| {
                 ui.label("LO is");
-                ui.selectable_value(&mut self.lo_above, true, "above");
-                ui.selectable_value(&mut self.lo_above, false, "below");
+                ui.selectable_value(&mut self.lo_above, Some(true), "above");
+                ui.selectable_value(&mut self.lo_above, Some(false), "below");
                 ui.label("the laser");
             });
+            if self.lo_above.is_none() {
+                ui.label(
+                    RichText::new(super::sideband_view::LO_SIDE_PROMPT)
+                        .small()
+                        .color(theme::WARN),
+                );
+            }
         }
         if ui.button("Apply calibration").clicked() {
             out.push(UiCommand::ApplyAnalysis);
@@ -693,7 +700,24 @@ pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
                 pm(m.linewidth_hz, m.linewidth_hz_uncertainty),
             );
             row(ui, "Q", pm(m.quality_factor, m.quality_factor_uncertainty));
-            row(ui, "occupancy n", pm(q.occupancy, q.occupancy_uncertainty));
+            // Heterodyne without a calibration: the sideband asymmetry's n̄ (never "—" while
+            // the Sidebands panel shows one).
+            let sb = report.as_ref().and_then(|r| r.sidebands.clone());
+            match (q.occupancy, sb.as_ref().and_then(|s| s.occupancy)) {
+                (None, Some(n)) => row(
+                    ui,
+                    "occupancy n (R)",
+                    pm(
+                        Some(n),
+                        sb.as_ref().and_then(|s| s.occupancy_uncertainty),
+                    ),
+                ),
+                _ => row(
+                    ui,
+                    "occupancy n",
+                    pm(q.occupancy, q.occupancy_uncertainty),
+                ),
+            }
             row(
                 ui,
                 "T_eff (K)",

@@ -137,16 +137,23 @@ impl PlotState {
             (
                 "red sideband (Stokes, n+1)",
                 sb.as_ref().and_then(|s| s.red.frequency_hz),
-                theme::FIT,
+                theme::SIDEBAND_RED,
             ),
             (
                 "blue sideband (anti-Stokes, n)",
                 sb.as_ref().and_then(|s| s.blue.frequency_hz),
-                theme::TRACE,
+                theme::SIDEBAND_BLUE,
             ),
         ];
         // In heterodyne the mode's lines sit at carrier ± f_m, not at f_m: no mode curves.
         let heterodyne = state.analysis.carrier_hz.is_some() || sb.is_some();
+        // In heterodyne the band is of f_m itself; its lines sit at carrier ± band.
+        let carrier = state.analysis.carrier_hz.filter(|c| *c > 0.0);
+        let band_spans: Vec<(f64, f64)> = match (band, carrier) {
+            (Some((lo, hi)), Some(fc)) => vec![(fc - hi, fc - lo), (fc + lo, fc + hi)],
+            (Some(b), None) => vec![b],
+            _ => Vec::new(),
+        };
         let band_mode = self.band_mode;
         let quiet = self.quiet;
         let mut request_bounds: Option<PlotBounds> = None;
@@ -154,7 +161,11 @@ impl PlotState {
             // Start on the mode region when a band is known (the physics is there), else on
             // the whole span.
             self.view_initialised = true;
-            self.request_x = Some(band.map_or(full_x, |(lo, hi)| {
+            let first = match (band, carrier) {
+                (Some((_, hi)), Some(fc)) => Some(((fc - hi).max(1.0), fc + hi)),
+                _ => band,
+            };
+            self.request_x = Some(first.map_or(full_x, |(lo, hi)| {
                 let w = hi - lo;
                 (
                     (lo - 2.5 * w).max(10f64.powf(full_x.0)).log10(),
@@ -252,7 +263,13 @@ impl PlotState {
             let (x0, x1) = (bounds.min()[0], bounds.max()[0]);
             let view_hz = (10f64.powf(x0), 10f64.powf(x1));
             self.view_hz = Some(view_hz);
-            if reset_y && let Some((y0, y1)) = with_refs(y_range_in(freqs, logs, view_hz, (ya, yb)))
+            // Follow the data when the whole trace has left the y range (a cooling mode
+            // falls by decades): re-fit as if asked to.
+            let (by0, by1) = (bounds.min()[1], bounds.max()[1]);
+            let lost = y_range_in(freqs, logs, view_hz, (ya, yb))
+                .is_some_and(|(d0, d1)| d1 < by0 + 0.15 * (by1 - by0) || d0 > by1);
+            if (reset_y || lost)
+                && let Some((y0, y1)) = with_refs(y_range_in(freqs, logs, view_hz, (ya, yb)))
             {
                 let pad = if db { 3.0 } else { 0.3 };
                 pui.set_plot_bounds_y(y0 - pad..=y1 + pad);
@@ -260,14 +277,14 @@ impl PlotState {
             let columns = pui.response().rect.width().max(100.0) as usize;
 
             // Fit band (shaded) first, so the traces draw over it.
-            if overlays.band
-                && let Some((lo, hi)) = band
-            {
-                pui.add(
-                    Span::new("fit band", lo.log10()..=hi.log10())
-                        .fill(theme::BAND)
-                        .border_width(0.0),
-                );
+            if overlays.band {
+                for &(lo, hi) in band_spans.iter().filter(|(lo, hi)| *lo > 0.0 && hi > lo) {
+                    pui.add(
+                        Span::new("fit band", lo.log10()..=hi.log10())
+                            .fill(theme::BAND)
+                            .border_width(0.0),
+                    );
+                }
             }
             // Snapshots.
             if overlays.snapshots {
@@ -370,8 +387,16 @@ impl PlotState {
                         );
                         let peak = shape.zero_point_m2_per_hz(shape.frequency_hz, m);
                         if let Some(y) = plot_y_from_m2(peak, unit, m_per_v) {
-                            let label =
-                                format!("zero-point peak {} {}", format_power_short(peak), "m²/Hz");
+                            // The level in the unit of the axis.
+                            let label = if db {
+                                format!("zero-point peak {y:.1} {}", unit_short(unit))
+                            } else {
+                                format!(
+                                    "zero-point peak {} {}",
+                                    format_power_short(10f64.powf(y)),
+                                    unit_short(unit)
+                                )
+                            };
                             pui.add(
                                 HLine::new(label, y)
                                     .color(theme::ZERO_POINT)

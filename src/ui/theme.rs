@@ -35,13 +35,29 @@ pub const PEAK: Color32 = Color32::from_rgb(150, 60, 90);
 /// Calibration tone marker.
 pub const TONE: Color32 = Color32::from_rgb(40, 120, 130);
 
-/// Colours for overlaid snapshots, in turn.
+/// The optical red (Stokes, n̄+1) motional sideband: raspberry, far from the live trace's
+/// slate blue and from the fitted mode's terracotta.
+pub const SIDEBAND_RED: Color32 = Color32::from_rgb(206, 40, 90);
+/// The optical blue (anti-Stokes, n̄) motional sideband: azure, brighter and greener than the
+/// live trace.
+pub const SIDEBAND_BLUE: Color32 = Color32::from_rgb(24, 138, 214);
+/// Fit of the red sideband (darker, long dashes).
+pub const SIDEBAND_RED_FIT: Color32 = Color32::from_rgb(110, 16, 50);
+/// Fit of the blue sideband (darker, short dashes).
+pub const SIDEBAND_BLUE_FIT: Color32 = Color32::from_rgb(10, 70, 120);
+/// Occupancy from the calibrated areas (trend).
+pub const OCCUPANCY_AREA: Color32 = Color32::from_rgb(96, 124, 52);
+/// Occupancy from the sideband asymmetry (trend).
+pub const OCCUPANCY_RATIO: Color32 = Color32::from_rgb(206, 40, 90);
+
+/// Colours for overlaid snapshots, in turn (none near the tone's teal, the zero-point olive
+/// or the sideband colours).
 pub const SNAPSHOT_COLOURS: [Color32; 5] = [
-    Color32::from_rgb(70, 140, 140),
-    Color32::from_rgb(150, 110, 70),
-    Color32::from_rgb(110, 110, 160),
-    Color32::from_rgb(160, 90, 120),
-    Color32::from_rgb(100, 130, 60),
+    Color32::from_rgb(96, 96, 96),
+    Color32::from_rgb(160, 112, 60),
+    Color32::from_rgb(112, 104, 176),
+    Color32::from_rgb(200, 150, 170),
+    Color32::from_rgb(150, 150, 90),
 ];
 
 /// Installs the theme on a context.

@@ -1,0 +1,215 @@
+//! The sideband view and the LO side in the real window under egui_kittest (no display):
+//! the built-in demo is heterodyne and calibrated, its sideband view appears with both lines
+//! and their numbers; a heterodyne source whose LO side is not given gets none assumed (the
+//! analysis waits and says so), and typing a carrier does not pick a side either.
+
+#![cfg(feature = "gui")]
+
+use std::time::{Duration, Instant};
+
+use eframe::egui;
+use egui_kittest::Harness;
+use egui_kittest::kittest::Queryable;
+use stillpoint::acquire::{SourceConfig, SourceSpec};
+use stillpoint::model::CalibrationMethod;
+use stillpoint::report::AnalysisOptions;
+use stillpoint::ui::{MonitorOptions, StillpointApp};
+
+fn quick(mut o: MonitorOptions) -> MonitorOptions {
+    o.fresh_settings = true;
+    // A short segment keeps the test quick (0.13 s of stream per segment at 500 kHz; the
+    // PM calibration lines stand clear of the 295 K sidebands' Lorentzian tails at this
+    // resolution).
+    if let Some(w) = o.welch.as_mut() {
+        w.segment = 65_536;
+    } else {
+        let mut w = stillpoint::dsp::WelchConfig::new(500_000.0, 16_384);
+        w.averaging = stillpoint::dsp::Averaging::Exponential {
+            time_constant_segments: 4.0,
+        };
+        o.welch = Some(w);
+    }
+    o
+}
+
+fn harness(o: MonitorOptions) -> Harness<'static, StillpointApp> {
+    Harness::builder()
+        .with_size(egui::vec2(1360.0, 900.0))
+        .build_eframe(move |cc| StillpointApp::new(cc, o))
+}
+
+fn step_until(
+    h: &mut Harness<'static, StillpointApp>,
+    timeout: Duration,
+    done: impl Fn(&StillpointApp) -> bool,
+) -> bool {
+    let t0 = Instant::now();
+    while t0.elapsed() < timeout {
+        h.step();
+        if done(h.state()) {
+            return true;
+        }
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    false
+}
+
+#[test]
+fn demo_shows_the_sideband_view_calibrated() {
+    let mut h = harness(quick(MonitorOptions::demo()));
+    let cal = &h.state().state().calibration;
+    assert!(cal.carrier_hz.is_some(), "the demo is heterodyne");
+    assert_eq!(cal.lo_above, Some(true), "the demo's own set-up");
+    assert_ne!(
+        cal.method,
+        CalibrationMethod::None,
+        "the demo is calibrated"
+    );
+    assert!(
+        step_until(&mut h, Duration::from_secs(240), |app| app
+            .live()
+            .frame
+            .as_ref()
+            .and_then(|f| f.report.as_ref())
+            .is_some_and(|r| r
+                .sidebands
+                .as_ref()
+                .is_some_and(|s| s.ratio.is_some()))),
+        "no sideband analysis; messages: {:?}; analysis error: {:?}; notes: {:?}",
+        h.state().messages(),
+        h.state()
+            .live()
+            .frame
+            .as_ref()
+            .map(|f| f.analysis_error.clone()),
+        h.state()
+            .live()
+            .frame
+            .as_ref()
+            .and_then(|f| f.report.as_ref())
+            .map(|r| r.notes.clone())
+    );
+    h.run_steps(3);
+    // The view, its set-up line, both lines' rows and the two n̄ estimates.
+    assert!(
+        h.query_all_by_label_contains("both sidebands vs offset from the carrier")
+            .count()
+            >= 1
+    );
+    assert!(h.query_all_by_label_contains("LO above the laser").count() >= 1);
+    assert!(h.query_all_by_label_contains("red area (n+1)").count() >= 1);
+    assert!(h.query_all_by_label_contains("blue area (n)").count() >= 1);
+    assert!(h.query_all_by_label_contains("n from areas").count() >= 1);
+    assert!(
+        h.query_all_by_label_contains("Demo (invented device)")
+            .count()
+            >= 1
+    );
+    // Calibrated by the PM lines: m/V is in the report, occupancy from areas too.
+    let report = h
+        .state()
+        .live()
+        .frame
+        .as_ref()
+        .unwrap()
+        .report
+        .clone()
+        .unwrap();
+    assert!(report.calibration.m_per_v.is_some(), "{:?}", report.notes);
+    assert!(report.quantum.occupancy.is_some(), "{:?}", report.notes);
+    // The trend of the view fills.
+    assert!(
+        step_until(&mut h, Duration::from_secs(240), |app| !app
+            .sideband_history()
+            .is_empty()),
+        "no sideband trend point"
+    );
+    // The "Demo" button reopens it calibrated (it used to open it uncalibrated).
+    h.get_by_label("Demo").click();
+    h.run_steps(3);
+    let cal = &h.state().state().calibration;
+    assert_ne!(cal.method, CalibrationMethod::None);
+    assert_eq!(cal.lo_above, Some(true));
+}
+
+#[test]
+fn no_lo_side_is_assumed() {
+    // A heterodyne source with a carrier but no LO side.
+    let analysis = AnalysisOptions {
+        carrier_hz: Some(125_000.0),
+        mode_band_hz: Some((78_400.0, 94_400.0)),
+        ..AnalysisOptions::default()
+    };
+    let mut o = MonitorOptions::for_source(SourceConfig::new(SourceSpec::Demo {
+        scenario: "quantum".into(),
+        seed: 3,
+    }));
+    o.analysis = Some(analysis);
+    let mut h = harness(quick(o));
+    assert_eq!(h.state().state().calibration.lo_above, None);
+    assert!(
+        step_until(&mut h, Duration::from_secs(240), |app| app
+            .live()
+            .frame
+            .as_ref()
+            .is_some_and(|f| f.spectrum.is_some())),
+        "no spectrum; messages: {:?}",
+        h.state().messages()
+    );
+    h.run_steps(3);
+    assert_eq!(h.state().state().calibration.lo_above, None);
+    // No sideband result was made up, and the window says what it waits for.
+    let frame = h.state().live().frame.clone().unwrap();
+    assert!(
+        frame.report.as_ref().is_none_or(|r| r.sidebands.is_none()),
+        "sidebands analysed without an LO side"
+    );
+    assert!(
+        h.query_all_by_label_contains("Choose the side of the local oscillator")
+            .count()
+            >= 1
+    );
+    assert!(h.query_all_by_label_contains("LO side not chosen").count() >= 1);
+    // Choosing a side starts the analysis.
+    h.get_by_label("above").click();
+    h.run_steps(2);
+    h.get_by_label("Apply calibration").click();
+    h.run_steps(2);
+    assert_eq!(h.state().state().calibration.lo_above, Some(true));
+    assert!(
+        step_until(&mut h, Duration::from_secs(240), |app| app
+            .live()
+            .frame
+            .as_ref()
+            .and_then(|f| f.report.as_ref())
+            .is_some_and(|r| r.sidebands.is_some())),
+        "no sideband analysis after choosing; messages: {:?}",
+        h.state().messages()
+    );
+}
+
+#[test]
+fn typing_a_carrier_does_not_pick_a_side() {
+    let mut o = MonitorOptions::for_source(SourceConfig::new(SourceSpec::Demo {
+        scenario: "thermal".into(),
+        seed: 1,
+    }));
+    o.analysis = Some(AnalysisOptions::default());
+    let mut h = harness(quick(o));
+    h.run_steps(2);
+    let field = h.get_by_label("carrier (Hz)");
+    field.focus();
+    field.type_text("125000");
+    h.run_steps(2);
+    // The side selector appears with neither side selected, with the prompt.
+    assert!(
+        h.query_all_by_label_contains("Choose the side of the local oscillator")
+            .count()
+            >= 1
+    );
+    h.get_by_label("Apply calibration").click();
+    h.run_steps(2);
+    let cal = &h.state().state().calibration;
+    assert_eq!(cal.carrier_hz, Some(125_000.0));
+    assert_eq!(cal.lo_above, None, "an LO side was assumed");
+}
