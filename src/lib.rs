@@ -16,6 +16,7 @@ pub mod acquire;
 pub mod cli;
 pub mod dsp;
 pub mod model;
+pub mod npy_writer;
 pub mod physics;
 pub mod report;
 pub mod snapshot;

@@ -202,7 +202,7 @@ fn stream_into(
 /// 65536: the same time as whole spans, 28 instead of 34 MiB peak RSS). Eight blocks in the
 /// channel rather than four let the reader run ahead while the workers are busy: 0.12–0.13 s
 /// instead of 0.14–0.16 s (medians of 7, three rounds), for 3 MiB more.
-fn headless_options(segment: usize, hop: usize, threads: usize) -> AcqOptions {
+pub(super) fn headless_options(segment: usize, hop: usize, threads: usize) -> AcqOptions {
     let wanted = segment.saturating_add(hop.saturating_mul(2 * threads)) / 4;
     AcqOptions {
         block_samples: wanted.clamp(MIN_BLOCK_SAMPLES, MAX_BLOCK_SAMPLES),
@@ -284,7 +284,7 @@ fn feed(
 }
 
 /// Seconds for a message: 4 decimals below 10 s, 1 above, trailing zeros dropped.
-fn format_seconds(seconds: f64) -> String {
+pub(super) fn format_seconds(seconds: f64) -> String {
     let text = if seconds < 10.0 {
         format!("{seconds:.4}")
     } else {
@@ -294,7 +294,7 @@ fn format_seconds(seconds: f64) -> String {
 }
 
 /// "record has L samples, shorter than one segment of N".
-fn too_short(samples: u64, segment: usize) -> InputError {
+pub(super) fn too_short(samples: u64, segment: usize) -> InputError {
     InputError(format!(
         "record has {samples} samples, shorter than one segment of {segment} (give a smaller \
          --segment)"
@@ -302,7 +302,7 @@ fn too_short(samples: u64, segment: usize) -> InputError {
 }
 
 /// How the source is named in messages.
-fn source_label(spec: &SourceSpec) -> String {
+pub(super) fn source_label(spec: &SourceSpec) -> String {
     match spec {
         SourceSpec::Path(p) => p.display().to_string(),
         SourceSpec::Stdin => "stdin".to_string(),
@@ -313,7 +313,7 @@ fn source_label(spec: &SourceSpec) -> String {
 
 /// Samples of the selected channel in a recording whose length is known before reading
 /// (a WAV or raw file that is not followed); `None` for streams.
-fn known_length(config: &SourceConfig) -> Option<u64> {
+pub(super) fn known_length(config: &SourceConfig) -> Option<u64> {
     let SourceSpec::Path(path) = &config.spec else {
         return None;
     };
@@ -341,7 +341,7 @@ fn wav_length(path: &Path) -> Option<u64> {
 }
 
 /// One warning per problem the reader or the averager met.
-fn reader_warnings(stats: &ReaderStats, skipped_segments: usize) -> Vec<String> {
+pub(super) fn reader_warnings(stats: &ReaderStats, skipped_segments: usize) -> Vec<String> {
     let mut warnings = Vec::new();
     if stats.truncated {
         warnings.push(format!(
