@@ -17,6 +17,7 @@ pub mod cli;
 pub mod dsp;
 pub mod figure;
 pub mod model;
+pub mod npy_writer;
 pub mod physics;
 pub mod report;
 pub mod snapshot;

@@ -35,6 +35,8 @@ Examples:
   stillpoint analyze run.wav --mode-band 0.99e6:1.01e6 --mass 1e-13 --bath-temperature 4 -o run.json
   stillpoint analyze het.wav --carrier 5e6 --lo-side above --mode-band 0.99e6:1.01e6 \\
       --tone-freq 1.05e6 --pm-depth 1e-3 --freq-pull 1e18 --mass 1e-13 -o het.json
+  stillpoint track cooldown.wav --every 0.5 --mode-band 85.5e3:86.7e3 --m-per-v 2e-9 \\
+      --mass 2e-12 -o trend.csv --waterfall wf.npy
   stillpoint synth cooldown --duration 10 -o demo.wav
   stillpoint bench --rate 10e6 --segment 1048576
 
@@ -106,6 +108,21 @@ pub enum Command {
         after_long_help = EXAMPLES
     )]
     Bench(BenchArgs),
+    /// Time-resolved analysis: one row of fits per interval of --every seconds, as CSV.
+    #[command(
+        long_about = "Cuts SOURCE into consecutive intervals of --every seconds of samples \
+                      and analyses each one on its own exactly as `analyze` would analyse that \
+                      stretch (its own Welch average, calibration and mode fit), writing one \
+                      CSV row per interval (columns in the order of the contract; an empty cell \
+                      is a value that could not be computed, `status` says why). The mode band \
+                      follows the fitted mode from interval to interval unless --fixed-band. \
+                      A recording is written atomically at the end; a live source (stdin, TCP, \
+                      --follow) writes and flushes each row as its interval completes. \
+                      --waterfall writes each interval's PSD as a float32 .npy plus a .json of \
+                      its axes.",
+        after_long_help = EXAMPLES
+    )]
+    Track(TrackArgs),
 }
 
 /// Raw sample layout (`--sample-format`).
@@ -568,6 +585,43 @@ pub enum FigureSizeArg {
     Column,
     /// 10 in × 5.625 in, 16 pt text (PNG 1920 × 1080 px)
     Slide,
+}
+
+/// `stillpoint track`.
+#[derive(Debug, Clone, Args)]
+pub struct TrackArgs {
+    /// Source options.
+    #[command(flatten)]
+    pub source: SourceArgs,
+    /// Welch options (per interval; the default segment is chosen for one interval).
+    #[command(flatten)]
+    pub welch: WelchArgs,
+    /// Calibration options.
+    #[command(flatten)]
+    pub calibration: CalibrationArgs,
+    /// Heterodyne options.
+    #[command(flatten)]
+    pub heterodyne: HeterodyneArgs,
+    /// Length of each interval in seconds of samples (round(SECS × rate) samples).
+    #[arg(long, value_name = "SECS", value_parser = parse_positive, help_heading = "Intervals")]
+    pub every: f64,
+    /// Stop after this many seconds of samples.
+    #[arg(long, value_name = "SECS", value_parser = parse_positive, help_heading = "Intervals")]
+    pub duration: Option<f64>,
+    /// Keep --mode-band where it is (default: the band follows the fitted mode, same width).
+    #[arg(long, help_heading = "Intervals")]
+    pub fixed_band: bool,
+    /// Waterfall of the interval PSDs as a NumPy .npy (float32, [intervals, bins]), with
+    /// OUT.json (frequency_hz, t_start_s, t_end_s, unit) beside it.
+    #[arg(long, value_name = "OUT.npy", help_heading = "Output")]
+    pub waterfall: Option<PathBuf>,
+    /// Band of the waterfall in Hz, LO:HI (default: DC to Nyquist).
+    #[arg(long, value_name = "LO:HI", value_parser = parse_band, requires = "waterfall",
+          help_heading = "Output")]
+    pub waterfall_band: Option<(f64, f64)>,
+    /// Output CSV file, one row per interval.
+    #[arg(short, long, value_name = "OUT.csv", help_heading = "Output")]
+    pub output: PathBuf,
 }
 
 /// `stillpoint synth`.

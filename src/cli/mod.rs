@@ -1,6 +1,6 @@
 //! The command-line interface (BRIEF.md contract): argument parsing ([`args`]), validated
 //! configuration shared with the window ([`config`]), and the commands `monitor`,
-//! `spectrum`, `analyze`, `synth` and `bench`.
+//! `spectrum`, `analyze`, `synth`, `bench` and `track`.
 //!
 //! Errors are `anyhow` chains printed as one line, `stillpoint: error: …`. Exit status:
 //! 0 success (also when stdout is a closed pipe), 1 a runtime failure, 2 bad options or
@@ -18,6 +18,7 @@ mod output;
 mod pipeline;
 mod spectrum;
 mod synth;
+mod track;
 
 use std::io::{self, Write};
 use std::process::ExitCode;
@@ -76,6 +77,7 @@ pub fn run(cli: Cli, matches: Option<&clap::ArgMatches>) -> anyhow::Result<ExitC
         Some(Command::Analyze(args)) => analyze::run(&args),
         Some(Command::Synth(args)) => synth::run(&args),
         Some(Command::Bench(args)) => bench::run(&args),
+        Some(Command::Track(args)) => track::run(&args),
     }
 }
 

@@ -11,8 +11,10 @@ pub mod decimate;
 pub mod engine;
 pub mod format;
 pub mod history;
+pub mod journal;
 pub mod snapshots;
 pub mod state;
+pub mod trend;
 
 pub use decimate::{bench_plot_prep, decimate_minmax, log_columns_max};
 pub use engine::{
