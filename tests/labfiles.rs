@@ -5,6 +5,8 @@
 //! `tests/reference/make_labfiles.py` → `tests/data/labfiles/`. Agreement: 1e-9 relative
 //! (plus 1e-15 of the peak for bins near zero), as the Welch reference tests.
 
+#![allow(clippy::unwrap_used)] // test helpers outside #[test] functions
+
 mod util;
 
 use std::fs;
@@ -528,10 +530,19 @@ fn svg_figure_has_axes_series_and_the_reports_numbers() {
             (sigma - two_digits(want_sigma)).abs() <= 1e-9 * want_sigma,
             "{line}: σ {sigma} vs report {want_sigma}"
         );
-        let half_unit = 0.5 * 10_f64.powi(-decimals);
+        // The value is rounded at σ's second significant digit, no finer and no coarser.
+        let step = 10_f64.powi(two_digits(want_sigma).log10().floor() as i32 - 1);
         assert!(
-            (value - want).abs() <= half_unit * (1.0 + 1e-9),
+            decimals <= (-step.log10().round() as i32).max(0),
+            "{line}: more digits than σ supports"
+        );
+        assert!(
+            (value - want).abs() <= 0.5 * step * (1.0 + 1e-9),
             "{line}: {value} vs report {want}"
+        );
+        assert!(
+            ((value / step).round() - value / step).abs() < 1e-6,
+            "{line}: {value} is not rounded at σ's second digit ({step})"
         );
     }
 }

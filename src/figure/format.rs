@@ -92,7 +92,9 @@ pub fn with_uncertainty(value: f64, sigma: Option<f64>) -> String {
     let unit = 10_f64.powi(shift);
     #[allow(clippy::cast_sign_loss)] // clamped at 0
     let decimals = (shift - place).max(0) as usize;
-    let v = value / unit;
+    // The value rounded at σ's second significant digit (83412.7 ± 1234 → 83400 ± 1200).
+    let step = 10_f64.powi(place);
+    let v = (value / step).round() * step / unit;
     let s = rounded_sigma / unit;
     let body = format!("{v:.decimals$} ± {s:.decimals$}");
     if scaled {
@@ -117,7 +119,7 @@ pub fn frequency_unit(max_hz: f64) -> (f64, &'static str) {
 
 /// Ticks of a logarithmic axis over `[lo, hi]` (both > 0): `(value, label)`.
 ///
-/// Spanning a decade or more: powers of ten (every k-th so at most ~6 are labelled),
+/// Spanning a decade or more: powers of ten (every k-th so at most 7 are labelled),
 /// labelled `10ᵏ` (`as_power`) or plainly after dividing by `divisor`. Less than a decade:
 /// 1-2-5 steps chosen like a linear axis, labelled plainly.
 pub fn log_ticks(lo: f64, hi: f64, divisor: f64, as_power: bool) -> Vec<(f64, String)> {
@@ -129,7 +131,7 @@ pub fn log_ticks(lo: f64, hi: f64, divisor: f64, as_power: bool) -> Vec<(f64, St
     let (first, last) = (a.ceil() as i32, b.floor() as i32);
     if last - first >= 1 {
         let count = last - first + 1;
-        let every = (count + 5) / 6;
+        let every = (count + 6) / 7;
         return (first..=last)
             .filter(|k| k.rem_euclid(every) == 0)
             .map(|k| {

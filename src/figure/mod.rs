@@ -571,8 +571,8 @@ fn caption(report: &Report) -> Vec<String> {
     lines
 }
 
-/// PSD range: the measured data and the curves' values at the mode, padded; the data fill
-/// the lower ~60 % so the legend and caption sit above them.
+/// PSD range: the measured data and the curves' values at the mode, padded and widened to
+/// whole decades; the data fill the lower part so the legend and caption sit above them.
 fn y_range(series: &[Series], mode: Option<(f64, f64)>) -> (f64, f64) {
     let mut lo = f64::INFINITY;
     let mut hi = 0.0_f64;
@@ -600,7 +600,12 @@ fn y_range(series: &[Series], mode: Option<(f64, f64)>) -> (f64, f64) {
     }
     let lo = lo / 2.0;
     let decades = (hi / lo).log10().max(1.0);
-    (lo, hi * 10_f64.powf(0.65 * decades))
+    let top = hi * 10_f64.powf(0.65 * decades);
+    // Whole decades at both ends, so the axis always carries at least two labelled powers.
+    (
+        10_f64.powf(lo.log10().floor()),
+        10_f64.powf(top.log10().ceil()),
+    )
 }
 
 /// Points mapped to the canvas, at most ~`columns` of them: where several fall in one
