@@ -154,6 +154,54 @@ pub fn utc_file_stamp(unix_s: u64) -> String {
     format!("{year:04}-{month:02}-{day:02}_{h:02}-{m:02}-{s:02}")
 }
 
+/// Lower layers (the analysis, the readers) word their notes and errors for the command
+/// line; the window shows them in the names of its own controls. Longest names first, so
+/// `--bath-temperature-uncertainty` is not read as `--bath-temperature`.
+const WINDOW_WORDS: [(&str, &str); 24] = [
+    ("--bath-temperature-uncertainty (K)", "bath T 1σ (K)"),
+    ("--bath-temperature-uncertainty", "bath T 1σ"),
+    ("--mass-uncertainty (kg)", "mass 1σ (kg)"),
+    ("--mass-uncertainty", "mass 1σ"),
+    ("--bath-temperature (K)", "bath T (K)"),
+    ("--bath-temperature", "bath T"),
+    ("--mode-band LO:HI", "a fit band (band low, band high)"),
+    ("--mode-band", "the fit band"),
+    ("--lo-side above|below", "LO above/below the laser"),
+    ("--lo-side", "LO above/below"),
+    ("--tone-rms-m", "tone rms"),
+    ("--tone-freq", "tone frequency"),
+    ("--pm-depth (rad)", "depth β (rad)"),
+    ("--pm-depth", "depth β"),
+    ("--freq-pull", "pull G/2π"),
+    ("--m-per-v", "m/V"),
+    ("--mass (kg)", "effective mass (kg)"),
+    ("--mass", "the effective mass"),
+    ("--carrier", "carrier"),
+    ("--sample-format", "sample format"),
+    ("--volts-per-unit", "volts per unit"),
+    ("--channels", "channels"),
+    ("--channel", "channel"),
+    ("--rate", "rate (Hz)"),
+];
+
+/// `text` in the window's words: command-line option names become the labels of the
+/// window's controls, and JSON wording ("keys are null") becomes what the window shows.
+pub fn window_words(text: &str) -> String {
+    let mut out = text.to_string();
+    for (flag, label) in WINDOW_WORDS {
+        if out.contains(flag) {
+            out = out.replace(flag, label);
+        }
+    }
+    out.replace("calibrated keys are null", "nothing is shown in metres")
+        .replace(
+            "mode and quantum keys are null",
+            "no mode fit and no quantum values",
+        )
+        .replace("quantum keys are null", "no quantum values")
+        .replace("keys are null", "values are not shown")
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -187,6 +235,27 @@ mod tests {
         );
         assert_eq!(format_uncertain(f64::NAN, Some(1.0)), "—");
         assert_eq!(format_uncertain(-12.346, Some(0.25)), "-12.35 ± 0.25");
+    }
+
+    #[test]
+    fn window_words_name_the_controls_not_the_flags() {
+        assert_eq!(
+            window_words(
+                "calibration: none (give --m-per-v, a tone, or --bath-temperature with --mass); calibrated keys are null"
+            ),
+            "calibration: none (give m/V, a tone, or bath T with the effective mass); nothing is shown in metres"
+        );
+        assert_eq!(
+            window_words("--bath-temperature-uncertainty (K) must be ≥ 0"),
+            "bath T 1σ (K) must be ≥ 0"
+        );
+        assert_eq!(
+            window_words("--carrier needs --lo-side above|below"),
+            "carrier needs LO above/below the laser"
+        );
+        assert!(
+            !window_words("no --mode-band given; mode and quantum keys are null").contains("--")
+        );
     }
 
     #[test]

@@ -7,7 +7,7 @@ use eframe::egui::{
 };
 use egui_plot::{Line, Plot, PlotPoints};
 
-use super::axes::{format_hz, format_power, frequency_tick, log_spacer};
+use super::axes::{format_hz, frequency_tick, log_spacer};
 use super::theme;
 use crate::model::LiveState;
 
@@ -23,6 +23,8 @@ pub struct CooldownState {
     head: usize,
     columns: usize,
     rows: usize,
+    /// Display unit and calibration for the colour bar (set by the app each frame).
+    pub colour_unit: Option<(crate::dsp::units::DensityUnit, Option<f64>)>,
 }
 
 impl std::fmt::Debug for CooldownState {
@@ -211,15 +213,7 @@ impl CooldownState {
                 .small(),
             );
             if let Some((a, b)) = self.range {
-                ui.label(
-                    RichText::new(format!(
-                        "colour: {} … {} V²/Hz",
-                        format_power(10f64.powf(f64::from(a))),
-                        format_power(10f64.powf(f64::from(b)))
-                    ))
-                    .small()
-                    .color(theme::PENCIL),
-                );
+                super::plot::colour_bar(ui, (f64::from(a), f64::from(b)), self.colour_unit);
             }
         });
         if let Some(p) = resp.hover_pos() {

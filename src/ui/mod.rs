@@ -430,7 +430,8 @@ impl StillpointApp {
         self.messages.retain(|m| !(m.error && m.kind == kind));
     }
 
-    fn push(&mut self, message: UiMessage) {
+    fn push(&mut self, mut message: UiMessage) {
+        message.text = crate::model::format::window_words(&message.text);
         if let Some(m) = self.messages.iter_mut().find(|m| m.text == message.text) {
             m.expires_at = message.expires_at;
             return;
@@ -1030,6 +1031,13 @@ impl eframe::App for StillpointApp {
                 }
                 if self.state.show_cooldown {
                     ui.add_space(4.0);
+                    let m_per_v = self
+                        .live
+                        .frame
+                        .as_ref()
+                        .and_then(|f| f.report.as_ref())
+                        .and_then(|r| r.calibration.m_per_v);
+                    self.cooldown.colour_unit = Some((self.state.unit, m_per_v));
                     self.cooldown.ui(ui, &self.live);
                 }
             });

@@ -9,7 +9,7 @@ use super::files::FileState;
 use super::theme;
 use crate::acquire::{Endian, SampleFormat, SourceConfig, SourceSpec};
 use crate::dsp::{Detrend, WindowKind};
-use crate::model::format::{format_rate, format_significant, format_uncertain};
+use crate::model::format::{format_rate, format_significant, format_uncertain, window_words};
 use crate::model::state::unit_short;
 use crate::model::{
     AppState, AveragingChoice, CalibrationMethod, LiveState, LoadedSnapshot, WelchSettings,
@@ -786,14 +786,14 @@ pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
     }
     if let Some(frame) = &live.frame {
         if let Some(e) = &frame.analysis_error {
-            note(ui, &format!("analysis: {e}"), theme::ERROR);
+            note(ui, &window_words(&format!("analysis: {e}")), theme::ERROR);
         }
         if let Some(r) = &frame.report {
             for n in r.notes.iter().take(4) {
-                note(ui, n, theme::INK);
+                note(ui, &window_words(n), theme::INK);
             }
             for w in r.warnings.iter().take(4) {
-                note(ui, w, theme::WARN);
+                note(ui, &window_words(w), theme::WARN);
             }
         }
     }
@@ -967,7 +967,7 @@ pub fn status_line(
         }
         if let Some(e) = &s.ended {
             let text = if s.failed {
-                e.clone()
+                window_words(e)
             } else if s.recording {
                 format!(
                     "{e}: showing the result of the whole record ({} segments); Replay plays it again",

@@ -541,3 +541,42 @@ pub fn session_marks(pui: &mut egui_plot::PlotUi<'_>, live: &LiveState) {
         );
     }
 }
+
+/// A small colour bar for the waterfall: the colour scale from `range_log_v2` (log10 of
+/// V²/Hz at the two ends) with its ends labelled in the display unit (V²/Hz when the unit
+/// needs a calibration that is not there).
+pub fn colour_bar(
+    ui: &mut Ui,
+    range_log_v2: (f64, f64),
+    unit: Option<(crate::dsp::units::DensityUnit, Option<f64>)>,
+) {
+    use crate::dsp::units::DensityUnit;
+    let (unit, m_per_v) = unit.unwrap_or((DensityUnit::V2PerHz, None));
+    let (unit, (a, b)) = match unit_affine(unit, m_per_v) {
+        Some(ab) => (unit, ab),
+        None => (DensityUnit::V2PerHz, (1.0, 0.0)),
+    };
+    let label = |log_v2: f64| {
+        let y = a * log_v2 + b;
+        if unit_is_db(unit) {
+            format!("{y:.0}")
+        } else {
+            format_power_short(10f64.powf(y))
+        }
+    };
+    ui.label(egui::RichText::new(label(range_log_v2.0)).size(12.0));
+    let (rect, _) = ui.allocate_exact_size(egui::vec2(120.0, 12.0), egui::Sense::hover());
+    let steps = 40;
+    let w = rect.width() / steps as f32;
+    for i in 0..steps {
+        let u = (i as f32 + 0.5) / steps as f32;
+        let r = egui::Rect::from_min_size(
+            egui::pos2(rect.min.x + i as f32 * w, rect.min.y),
+            egui::vec2(w + 0.5, rect.height()),
+        );
+        ui.painter().rect_filled(r, 0.0, theme::waterfall_colour(u));
+    }
+    ui.label(
+        egui::RichText::new(format!("{} {}", label(range_log_v2.1), unit_short(unit))).size(12.0),
+    );
+}
