@@ -58,7 +58,7 @@ impl MonitorOptions {
         let (welch, analysis) = sideband_view::demo_settings();
         Self {
             source: SourceConfig::new(SourceSpec::Demo {
-                scenario: sideband_view::DEMO_SCENARIO.into(),
+                scenario: sideband_view::demo_scenario_name(),
                 seed: 1,
             }),
             welch,
