@@ -88,8 +88,20 @@ pub const LIVE_CYCLE_SECS: f64 = 150.0;
 /// A live generator for `scenario` with `seed`, or `None` for an unknown scenario.
 /// Used by the acquisition layer for [`crate::acquire::SourceSpec::Demo`]; `cooldown` runs
 /// its [`LIVE_CYCLE_SECS`] cycle unless configured otherwise.
+/// `quantum@SECS` starts the `quantum` cycle SECS seconds in.
 pub fn generator(scenario: &str, seed: u64) -> Option<Box<dyn Generator>> {
-    let mut config = ScenarioConfig::defaults(scenario).ok()?;
+    let (name, start) = match scenario.split_once('@') {
+        Some((n, t)) => (n, Some(t.trim().parse::<f64>().ok()?)),
+        None => (scenario, None),
+    };
+    let mut config = ScenarioConfig::defaults(name).ok()?;
+    if let Some(t) = start {
+        let q = config.quantum.as_mut()?;
+        if !(t.is_finite() && t >= 0.0) {
+            return None;
+        }
+        q.live_start_secs = t;
+    }
     config.seed = seed;
     config.build_live().ok()
 }

@@ -71,6 +71,10 @@ pub struct QuantumParams {
     pub cryostat_lab_hours: f64,
     /// Where in the cycle a file starts (s); `None`: at the few-phonon hold.
     pub file_start_secs: Option<f64>,
+    /// Where in the cycle the live stream starts (s; the demo source `quantum@SECS`, used
+    /// for screenshots of the later stages). Not part of a file's configuration.
+    #[serde(skip)]
+    pub live_start_secs: f64,
 }
 
 impl Default for QuantumParams {
@@ -87,6 +91,7 @@ impl Default for QuantumParams {
             stage_secs: [60.0, 20.0, 60.0, 60.0],
             cryostat_lab_hours: 10.0,
             file_start_secs: None,
+            live_start_secs: 0.0,
         }
     }
 }
@@ -234,7 +239,11 @@ impl QuantumParams {
     /// The true state at `t_secs` after the start of the record (`live`: the cycle starts
     /// at 0; a file starts at [`QuantumParams::file_start`]).
     pub fn state_at(&self, config: &ScenarioConfig, t_secs: f64, live: bool) -> QuantumPoint {
-        let offset = if live { 0.0 } else { self.file_start() };
+        let offset = if live {
+            self.live_start_secs
+        } else {
+            self.file_start()
+        };
         let mut p = self.cycle_state(config, (t_secs + offset).rem_euclid(self.cycle_secs()));
         p.time_secs = t_secs;
         p

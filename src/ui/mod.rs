@@ -61,7 +61,7 @@ impl MonitorOptions {
         let welch = welch.as_ref().map(WelchSettings::from_config);
         Self {
             source: SourceConfig::new(SourceSpec::Demo {
-                scenario: sideband_view::DEMO_SCENARIO.into(),
+                scenario: sideband_view::demo_scenario_name(),
                 seed: 1,
             }),
             welch,

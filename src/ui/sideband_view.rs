@@ -60,11 +60,34 @@ pub fn demo_settings() -> (Option<WelchConfig>, AnalysisOptions) {
     (Some(w), a)
 }
 
-/// The demo's true state at `t_secs` of its stream (for the on-screen comparison).
-pub fn demo_truth_at(t_secs: f64) -> Option<(QuantumPoint, ScenarioConfig)> {
+/// The demo's source name: `quantum`, or `quantum@SECS` when the environment variable
+/// `STILLPOINT_DEMO_AT` asks to start SECS seconds into the cycle (screenshots of the later
+/// stages; the screen says where in the cycle it is).
+pub fn demo_scenario_name() -> String {
+    match std::env::var("STILLPOINT_DEMO_AT")
+        .ok()
+        .and_then(|v| v.trim().parse::<f64>().ok())
+        .filter(|t| t.is_finite() && *t > 0.0)
+    {
+        Some(t) => format!("{DEMO_SCENARIO}@{t}"),
+        None => DEMO_SCENARIO.to_string(),
+    }
+}
+
+/// The demo's true state at `t_secs` of its stream (for the on-screen comparison), for a
+/// source named `quantum` or `quantum@START`.
+pub fn demo_truth_at(scenario: &str, t_secs: f64) -> Option<(QuantumPoint, ScenarioConfig)> {
+    let start = match scenario.split_once('@') {
+        Some((DEMO_SCENARIO, t)) => t.trim().parse::<f64>().ok()?,
+        None if scenario == DEMO_SCENARIO => 0.0,
+        _ => return None,
+    };
     let s = ScenarioConfig::defaults(DEMO_SCENARIO).ok()?;
-    let q = s.quantum.clone()?;
-    Some((q.state_at(&s, t_secs, true), s))
+    let mut q = s.quantum.clone()?;
+    q.live_start_secs = start;
+    let mut p = q.state_at(&s, t_secs, true);
+    p.time_secs = t_secs + start;
+    Some((p, s))
 }
 
 /// One point of the sideband trend.
@@ -255,21 +278,18 @@ fn demo_stage_text(source: &SourceConfig, frame: Option<&Frame>) -> Option<Strin
     let SourceSpec::Demo { scenario, .. } = &source.spec else {
         return None;
     };
-    if scenario != DEMO_SCENARIO {
-        return None;
-    }
     let status = &frame?.status;
     if !(status.sample_rate_hz > 0.0) {
         return None;
     }
     let t = status.samples as f64 / status.sample_rate_hz;
-    let (p, s) = demo_truth_at(t)?;
+    let (p, s) = demo_truth_at(scenario, t)?;
     let q = s.quantum?;
     Some(format!(
         "Demo (invented device), {:.0} s into a {:.0} s cycle: {}. Truth: bath {} K, f_m {}, \
          γ_eff {} Hz (γ_m {} Hz + γ_opt {} Hz), n = {}. The cryostat stage is a time-lapse: \
          its {:.0} s stand for {} h of lab time.",
-        t.rem_euclid(q.cycle_secs()),
+        p.time_secs.rem_euclid(q.cycle_secs()),
         q.cycle_secs(),
         p.stage.describe(),
         format_sig(p.bath_temperature_k, 3),
