@@ -116,6 +116,11 @@ fn exercise(cli: &Cli, record: Option<u64>, echo: bool) -> Result<(), TestCaseEr
             &a.heterodyne,
             a.peak_threshold,
         ),
+        Command::Track(a) => {
+            prop_assert!(a.every.is_finite() && a.every > 0.0);
+            prop_assert!(a.duration.is_none_or(|d| d.is_finite() && d > 0.0));
+            (&a.source, &a.welch, &a.calibration, &a.heterodyne, None)
+        }
         Command::Bench(b) => {
             prop_assert!(b.rate.is_finite() && b.rate > 0.0);
             let welch = WelchArgs {

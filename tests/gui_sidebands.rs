@@ -27,7 +27,7 @@ fn quick(mut o: MonitorOptions) -> MonitorOptions {
         w.averaging = stillpoint::dsp::Averaging::Exponential {
             time_constant_segments: 4.0,
         };
-        o.welch = Some(w);
+        o.welch = Some(stillpoint::model::WelchSettings::from_config(&w));
     }
     o
 }
@@ -57,11 +57,11 @@ fn step_until(
 #[test]
 fn demo_shows_the_sideband_view_calibrated() {
     let mut h = harness(quick(MonitorOptions::demo()));
-    let cal = &h.state().state().calibration;
+    let cal = &h.state().state().analysis;
     assert!(cal.carrier_hz.is_some(), "the demo is heterodyne");
     assert_eq!(cal.lo_above, Some(true), "the demo's own set-up");
     assert_ne!(
-        cal.method,
+        CalibrationMethod::of(cal),
         CalibrationMethod::None,
         "the demo is calibrated"
     );
@@ -127,8 +127,8 @@ fn demo_shows_the_sideband_view_calibrated() {
     // The "Demo" button reopens it calibrated (it used to open it uncalibrated).
     h.get_by_label("Demo").click();
     h.run_steps(3);
-    let cal = &h.state().state().calibration;
-    assert_ne!(cal.method, CalibrationMethod::None);
+    let cal = &h.state().state().analysis;
+    assert_ne!(CalibrationMethod::of(cal), CalibrationMethod::None);
     assert_eq!(cal.lo_above, Some(true));
 }
 
@@ -146,7 +146,7 @@ fn no_lo_side_is_assumed() {
     }));
     o.analysis = Some(analysis);
     let mut h = harness(quick(o));
-    assert_eq!(h.state().state().calibration.lo_above, None);
+    assert_eq!(h.state().state().analysis.lo_above, None);
     assert!(
         step_until(&mut h, Duration::from_secs(240), |app| app
             .live()
@@ -157,7 +157,7 @@ fn no_lo_side_is_assumed() {
         h.state().messages()
     );
     h.run_steps(3);
-    assert_eq!(h.state().state().calibration.lo_above, None);
+    assert_eq!(h.state().state().analysis.lo_above, None);
     // No sideband result was made up, and the window says what it waits for.
     let frame = h.state().live().frame.clone().unwrap();
     assert!(
@@ -175,7 +175,7 @@ fn no_lo_side_is_assumed() {
     h.run_steps(2);
     h.get_by_label("Apply calibration").click();
     h.run_steps(2);
-    assert_eq!(h.state().state().calibration.lo_above, Some(true));
+    assert_eq!(h.state().state().analysis.lo_above, Some(true));
     assert!(
         step_until(&mut h, Duration::from_secs(240), |app| app
             .live()
@@ -209,7 +209,7 @@ fn typing_a_carrier_does_not_pick_a_side() {
     );
     h.get_by_label("Apply calibration").click();
     h.run_steps(2);
-    let cal = &h.state().state().calibration;
+    let cal = &h.state().state().analysis;
     assert_eq!(cal.carrier_hz, Some(125_000.0));
     assert_eq!(cal.lo_above, None, "an LO side was assumed");
 }

@@ -1014,8 +1014,11 @@ pub fn fit_mode_given_variance(
         bins: values.len(),
         band_hz,
         error_inflation: inflation,
-        resolution_limited: w < 5.0 * data.enbw_hz,
+        resolution_limited: w < data.enbw_hz,
         slope_reference_hz: f_ref,
+        linewidth_upper_bound_hz: None,
+        kernel_convolved: false,
+        line_scatter_relative: 0.0,
     };
     let all_finite = [
         fit.frequency_hz,

@@ -77,6 +77,8 @@ pub const SCENARIO_HELP: &[(&str, &str)] = &[
     (
         "two-detector",
         "one mode read by two detectors (2-channel WAV), 6 dB below each detector's floor",
+    ),
+    (
         "quantum",
         "heterodyne: cryostat 295 K -> 4 K, then sideband laser cooling to n ~ 2 (the demo; files: the few-phonon end)",
     ),

@@ -9,15 +9,24 @@ impl super::StillpointApp {
     pub(super) fn export_figure(&mut self) {
         let typed = self.files.png_path.trim();
         if typed.is_empty() {
-            return self.error("type a path ending in .svg or .png for the figure first");
+            return self.error(
+                super::MessageKind::Export,
+                "type a path ending in .svg or .png for the figure first",
+            );
         }
         let path = std::path::PathBuf::from(typed);
         let Some(frame) = self.live.frame.clone() else {
-            return self.error("nothing to draw yet: no spectrum has arrived");
+            return self.error(
+                super::MessageKind::Export,
+                "nothing to draw yet: no spectrum has arrived",
+            );
         };
         let (Some(spectrum), Some(report)) = (frame.spectrum.as_ref(), frame.report.as_ref())
         else {
-            return self.error("nothing to draw yet: no analysed spectrum");
+            return self.error(
+                super::MessageKind::Export,
+                "nothing to draw yet: no analysed spectrum",
+            );
         };
         let o = &self.state.overlays;
         let view = FigureView {
@@ -30,21 +39,27 @@ impl super::StillpointApp {
         };
         let bytes = match figure::render_for_path(&path, spectrum, report, &view) {
             Ok(b) => b,
-            Err(e) => return self.error(e.to_string()),
+            Err(e) => return self.error(super::MessageKind::Export, e.to_string()),
         };
         let written = crate::snapshot::write_atomic(&path, false, |out| {
             std::io::Write::write_all(out, &bytes)
         });
         match written {
-            Ok(()) => self.info(format!("figure written to {}", path.display())),
-            Err(e) => self.error(format!(
-                "cannot write {} ({}); an existing file is never replaced here",
-                path.display(),
-                match e {
-                    crate::snapshot::AtomicError::Io(e)
-                    | crate::snapshot::AtomicError::Inner(e) => e,
-                }
-            )),
+            Ok(()) => self.info(
+                super::MessageKind::Export,
+                format!("figure written to {}", path.display()),
+            ),
+            Err(e) => self.error(
+                super::MessageKind::Export,
+                format!(
+                    "cannot write {} ({}); an existing file is never replaced here",
+                    path.display(),
+                    match e {
+                        crate::snapshot::AtomicError::Io(e)
+                        | crate::snapshot::AtomicError::Inner(e) => e,
+                    }
+                ),
+            ),
         }
     }
 }

@@ -21,7 +21,6 @@ use std::time::{Duration, Instant};
 use eframe::egui::{self, Key, RichText};
 
 use crate::acquire::{SourceConfig, SourceSpec};
-use crate::dsp::WelchConfig;
 use crate::dsp::units::DensityUnit;
 use crate::model::{
     self, AppState, Engine, EngineCommand, EngineConfig, EngineNotice, LiveState, LoadedSnapshot,

@@ -176,7 +176,7 @@ impl PanelState {
         self.band_hi = opt_text(c.mode_band_hz.map(|b| b.1));
         self.follow_mode = state.follow_mode;
         self.carrier = opt_text(c.carrier_hz);
-        self.lo_above = c.lo_above.unwrap_or(true);
+        self.lo_above = c.lo_above;
         self.threshold = num_text(c.peak_threshold_db.unwrap_or(10.0));
         self.sloped_background = c.sloped_background;
         self.imbalance = opt_text(c.sideband_imbalance);
@@ -283,7 +283,7 @@ impl PanelState {
             _ => return Err("fit band: give band low and band high, or neither".into()),
         };
         c.carrier_hz = parse_opt_pos(&self.carrier, "carrier")?;
-        c.lo_above = c.carrier_hz.map(|_| self.lo_above);
+        c.lo_above = c.carrier_hz.and(self.lo_above);
         c.sideband_imbalance = if c.carrier_hz.is_some() {
             parse_opt_pos(&self.imbalance, "imbalance η_r/η_b")?
         } else {
@@ -707,16 +707,9 @@ pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
                 (None, Some(n)) => row(
                     ui,
                     "occupancy n (R)",
-                    pm(
-                        Some(n),
-                        sb.as_ref().and_then(|s| s.occupancy_uncertainty),
-                    ),
+                    pm(Some(n), sb.as_ref().and_then(|s| s.occupancy_uncertainty)),
                 ),
-                _ => row(
-                    ui,
-                    "occupancy n",
-                    pm(q.occupancy, q.occupancy_uncertainty),
-                ),
+                _ => row(ui, "occupancy n", pm(q.occupancy, q.occupancy_uncertainty)),
             }
             row(
                 ui,
