@@ -9,7 +9,7 @@ pub mod cross;
 
 use serde::{Deserialize, Serialize};
 
-use crate::dsp::{Spectrum, units};
+use crate::dsp::Spectrum;
 use crate::physics::calibration::{self, Calibration, CalibrationMethod, ToneOptions, ToneReading};
 use crate::physics::fit::{self, FitOptions, ModeFit};
 use crate::physics::oscillator::Oscillator;
@@ -57,21 +57,6 @@ pub struct AnalysisOptions {
     pub reference_peaks_hz: Vec<f64>,
     /// Fit a linear slope of the background under the mode.
     pub sloped_background: bool,
-    /// `--rms-band LO:HI` (Hz): report the rms over this band (`band_rms.*`).
-    pub rms_band_hz: Option<(f64, f64)>,
-}
-
-/// Rms over a chosen band, √(Σ_{LO ≤ f_k ≤ HI} PSD_k Δf) (`--rms-band`).
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
-pub struct BandRmsReport {
-    /// Lower edge (Hz).
-    pub low_hz: f64,
-    /// Upper edge (Hz).
-    pub high_hz: f64,
-    /// Rms of the detector voltage over the band (V).
-    pub rms_v: f64,
-    /// Rms displacement over the band (m) when calibrated.
-    pub rms_m: Option<f64>,
 }
 
 /// Welch settings as reported.
@@ -166,20 +151,8 @@ pub struct ModeReport {
     pub damping_rad_s: Option<f64>,
     /// Line shape fitted (`oscillator` or `lorentzian`).
     pub line_shape: Option<String>,
-    /// True when the line is narrower than the resolution (γ < ENBW, or γ only bounded):
-    /// the line was fitted convolved with the window's kernel (METHODS.md §2c); when γ could
-    /// not be told from zero, `linewidth_hz` is an upper bound (`linewidth_upper_bound_hz`),
-    /// `quality_factor` a lower bound.
+    /// True when γ < 5·ENBW: linewidth and peak are broadened by the resolution.
     pub resolution_limited: Option<bool>,
-    /// Upper bound on γ (Hz, Δχ² = 4) when the data cannot tell γ from zero; else null.
-    pub linewidth_upper_bound_hz: Option<f64>,
-    /// Relative 1σ of the area from the line's own energy fluctuations over the record,
-    /// √(2(x − 1 + e^{−x}))/x, x = Γ T (METHODS.md §11); included in the area's uncertainty.
-    pub line_scatter_relative: Option<f64>,
-    /// Rms over the fit band, √(Σ PSD Δf) of the calibrated PSD (m), background included.
-    pub band_rms_m: Option<f64>,
-    /// The same in volts.
-    pub band_rms_v: Option<f64>,
     /// √(1 + 2Σρ_bin) applied to the 1σ values for the window's bin correlation.
     pub error_inflation: Option<f64>,
     /// Bins used in the fit.
@@ -205,9 +178,7 @@ pub struct QuantumReport {
     pub sql_psd_at_resonance_m2_per_hz: Option<f64>,
     /// Bose–Einstein occupancy of the bath at `--bath-temperature`.
     pub bath_occupancy: Option<f64>,
-    /// Thermal expectation at the peak at the bath temperature, symmetrised quantum form
-    /// 2ħ coth(ħΩ_m/2k_BT) Im χ(Ω_m) = 4 x_zpf²(2n̄+1)/Γ_m, m²/Hz (METHODS.md §2b; tends to
-    /// the classical 4k_BTQ/(mΩ_m³) when k_BT ≫ ħΩ_m).
+    /// Classical thermal peak 4k_BTQ/(mΩ_m³) at the bath temperature, m²/Hz.
     pub thermal_peak_psd_at_bath_m2_per_hz: Option<f64>,
     /// The effective mass used (`--mass`), kg.
     pub mass_kg: Option<f64>,
@@ -294,9 +265,6 @@ pub struct Report {
     pub sidebands: Option<SidebandReport>,
     /// Stray resonances.
     pub peaks: Vec<PeakReport>,
-    /// Rms over `--rms-band` (null without it).
-    #[serde(default)]
-    pub band_rms: Option<BandRmsReport>,
     /// Why keys are null, and caveats (classical laser noise, resolution, …).
     pub notes: Vec<String>,
     /// Problems with the input (skipped segments, non-finite samples, truncation).
@@ -465,36 +433,13 @@ pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report,
     // --- Mode report ---
     if let Some(m) = &mode_fit {
         fill_mode(&mut report.mode, m, cal.as_ref());
-        if let Some(ub) = m.linewidth_upper_bound_hz {
+        if m.resolution_limited {
             report.notes.push(format!(
-                "mode: the line is narrower than the resolution (ENBW {:.4} Hz): fitted convolved with the window's kernel; the linewidth is resolution-limited, γ ≤ {ub:.4} Hz (Δχ² = 4), so linewidth_hz is an upper bound, quality_factor and peak_psd lower bounds; frequency, area, occupancy and temperature are measured. The area's uncertainty includes the line's own scatter √(2/(ΓT)) at this bound, a lower limit if the line is narrower",
-                spectrum.enbw_hz
-            ));
-        } else if m.resolution_limited {
-            report.notes.push(format!(
-                "mode: linewidth {:.4} Hz is below the ENBW {:.4} Hz: measured by fitting the line convolved with the window's kernel (METHODS §2c)",
-                m.linewidth_hz.value, spectrum.enbw_hz
+                "mode: linewidth {:.4} Hz is below 5·ENBW = {:.4} Hz; linewidth and peak are broadened by the resolution (the area is not)",
+                m.linewidth_hz.value,
+                5.0 * spectrum.enbw_hz
             ));
         }
-    }
-
-    // --- Band rms (fit band, --rms-band) ---
-    let c_m_per_v = cal.as_ref().map(|c| c.m_per_v.value);
-    if let Some(m) = &mode_fit
-        && let Ok(v) = units::band_rms(spectrum, m.band_hz.0, m.band_hz.1)
-    {
-        report.mode.band_rms_v = Some(v);
-        report.mode.band_rms_m = c_m_per_v.map(|c| c * v);
-    }
-    if let Some((lo, hi)) = options.rms_band_hz {
-        let v = units::band_rms(spectrum, lo, hi)
-            .map_err(|e| AnalysisError::Input(format!("--rms-band {lo}:{hi}: {e}")))?;
-        report.band_rms = Some(BandRmsReport {
-            low_hz: lo,
-            high_hz: hi,
-            rms_v: v,
-            rms_m: c_m_per_v.map(|c| c * v),
-        });
     }
 
     // --- Quantum references ---
@@ -736,8 +681,6 @@ pub(crate) fn fill_mode(r: &mut ModeReport, m: &ModeFit, cal: Option<&Calibratio
         .to_string(),
     );
     r.resolution_limited = Some(m.resolution_limited);
-    r.linewidth_upper_bound_hz = m.linewidth_upper_bound_hz;
-    r.line_scatter_relative = Some(m.line_scatter_relative);
     r.error_inflation = Some(m.error_inflation);
     r.bins = Some(m.bins);
     if let Some(c) = cal {
@@ -857,7 +800,7 @@ fn fill_quantum_levels(
     q.sql_psd_at_resonance_m2_per_hz = Some(quantum::sql_psd_at_resonance(&osc));
     if let Some(t) = bath_k {
         q.bath_occupancy = Some(occupancy::bose_einstein(f_m, t));
-        q.thermal_peak_psd_at_bath_m2_per_hz = Some(quantum::quantum_thermal_peak_psd(&osc, t));
+        q.thermal_peak_psd_at_bath_m2_per_hz = Some(quantum::thermal_peak_psd(&osc, t));
     }
 }
 
@@ -1090,18 +1033,6 @@ pub(crate) fn sanitize(report: &mut Report) {
     fix(&mut bad, "mode.reduced_chi2", &mut m.reduced_chi2);
     fix(&mut bad, "mode.damping_rad_s", &mut m.damping_rad_s);
     fix(&mut bad, "mode.error_inflation", &mut m.error_inflation);
-    fix(
-        &mut bad,
-        "mode.linewidth_upper_bound_hz",
-        &mut m.linewidth_upper_bound_hz,
-    );
-    fix(
-        &mut bad,
-        "mode.line_scatter_relative",
-        &mut m.line_scatter_relative,
-    );
-    fix(&mut bad, "mode.band_rms_m", &mut m.band_rms_m);
-    fix(&mut bad, "mode.band_rms_v", &mut m.band_rms_v);
     if m.fit_band_hz
         .is_some_and(|(a, b)| !(a.is_finite() && b.is_finite()))
     {
@@ -1196,14 +1127,6 @@ pub(crate) fn sanitize(report: &mut Report) {
             "sidebands.imbalance_correction_uncertainty",
             &mut s.imbalance_correction_uncertainty,
         );
-    }
-    if report
-        .band_rms
-        .as_ref()
-        .is_some_and(|b| !(b.rms_v.is_finite() && b.rms_m.is_none_or(f64::is_finite)))
-    {
-        report.band_rms = None;
-        bad.push("band_rms");
     }
     let before = report.peaks.len();
     report.peaks.retain(|p| {

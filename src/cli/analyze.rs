@@ -23,7 +23,6 @@ pub fn run(args: &AnalyzeArgs) -> Result<ExitCode> {
     let mut options =
         config::analysis_options(&args.calibration, &args.heterodyne, args.peak_threshold)?;
     options.reference_peaks_hz = args.reference_peaks.clone();
-    options.rms_band_hz = args.rms_band;
     if let Some(path) = &args.reference {
         options.reference_peaks_hz.extend(reference_peaks(path)?);
     }

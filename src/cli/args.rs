@@ -398,10 +398,9 @@ pub struct CalibrationArgs {
           requires_all = ["tone_freq", "freq_pull"])]
     pub pm_depth: Option<f64>,
 
-    /// Frequency pull G/2π of the cavity in Hz per metre (with --pm-depth). May be given
-    /// signed (e.g. -1e18): only its magnitude |G| enters the calibration.
-    #[arg(long, value_name = "HZ_PER_M", value_parser = parse_nonzero_finite,
-          allow_negative_numbers = true, requires_all = ["tone_freq", "pm_depth"])]
+    /// Frequency pull G/2π of the cavity in Hz per metre (with --pm-depth).
+    #[arg(long, value_name = "HZ_PER_M", value_parser = parse_positive,
+          requires_all = ["tone_freq", "pm_depth"])]
     pub freq_pull: Option<f64>,
 
     /// Bath temperature in kelvin: calibrates by equipartition on the mode (needs
@@ -511,10 +510,6 @@ pub struct SpectrumArgs {
     /// Calibration options (adds the psd_m2_per_hz column).
     #[command(flatten)]
     pub calibration: CalibrationArgs,
-    /// Add a `cumulative_rms_v` column (and `cumulative_rms_m` when calibrated): the rms
-    /// of everything from DC up to and including each bin, √(Σ_{j ≤ k} PSD_j Δf).
-    #[arg(long, help_heading = "Output")]
-    pub cumulative_rms: bool,
     /// Output CSV file (`-` for stdout). Written atomically: an existing file is replaced
     /// only by a complete, successful result.
     #[arg(short, long, value_name = "OUT.csv", help_heading = "Output")]
@@ -547,10 +542,6 @@ pub struct AnalyzeArgs {
     /// An earlier `analyze` report (JSON) whose peaks[] are the reference list.
     #[arg(long, value_name = "OLD.json", help_heading = "Stray peaks")]
     pub reference: Option<PathBuf>,
-    /// Also report the rms over this band in Hz, LO:HI (band_rms.rms_v, and band_rms.rms_m
-    /// when calibrated): √(Σ PSD Δf) over the bins whose centre lies in the band.
-    #[arg(long, value_name = "LO:HI", value_parser = parse_band, help_heading = "Output")]
-    pub rms_band: Option<(f64, f64)>,
     /// Do not print the summary on stdout.
     #[arg(short, long, help_heading = "Output")]
     pub quiet: bool,

@@ -5,7 +5,6 @@ use std::process::ExitCode;
 
 use anyhow::Result;
 
-use crate::dsp::units;
 use crate::report::{self, AnalysisOptions};
 use crate::snapshot;
 
@@ -45,11 +44,7 @@ pub fn run(args: &SpectrumArgs) -> Result<ExitCode> {
         .into());
     }
     output::write_atomically(&args.output, |out| {
-        if args.cumulative_rms {
-            write_with_cumulative_rms(out, &run.spectrum, m_per_v)
-        } else {
-            snapshot::write_spectrum_csv(out, &run.spectrum, m_per_v)
-        }
+        snapshot::write_spectrum_csv(out, &run.spectrum, m_per_v)
     })?;
     Ok(ExitCode::SUCCESS)
 }
@@ -78,32 +73,4 @@ fn calibrate(
             }
         }
     }
-}
-
-/// The spectrum CSV plus `cumulative_rms_v` (and `cumulative_rms_m` when calibrated): the rms
-/// from DC up to and including each bin, √(Σ_{j ≤ k} PSD_j Δf) ([`units::cumulative_rms`]).
-fn write_with_cumulative_rms<W: std::io::Write>(
-    mut out: W,
-    spectrum: &crate::dsp::Spectrum,
-    m_per_v: Option<f64>,
-) -> std::io::Result<()> {
-    let bad = |what: String| std::io::Error::new(std::io::ErrorKind::InvalidData, what);
-    let cum = units::cumulative_rms(spectrum, units::Cumulation::FromLowFrequency);
-    let c = m_per_v.filter(|c| c.is_finite() && *c > 0.0);
-    out.write_all(if c.is_some() {
-        b"frequency_hz,psd_v2_per_hz,psd_m2_per_hz,cumulative_rms_v,cumulative_rms_m\n"
-    } else {
-        b"frequency_hz,psd_v2_per_hz,cumulative_rms_v\n"
-    })?;
-    for (k, (&p, &r)) in spectrum.psd_v2_per_hz.iter().zip(&cum).enumerate() {
-        let f = spectrum.frequency_hz(k);
-        if !(f.is_finite() && p.is_finite() && r.is_finite()) {
-            return Err(bad(format!("bin {k} is not finite (f = {f}, psd = {p})")));
-        }
-        match c {
-            Some(c) => writeln!(out, "{f:?},{p:?},{:?},{r:?},{:?}", p * c * c, r * c)?,
-            None => writeln!(out, "{f:?},{p:?},{r:?}")?,
-        }
-    }
-    out.flush()
 }

@@ -1,6 +1,5 @@
 //! Reference curves drawn over the live spectrum, evaluated on a log-spaced frequency grid
-//! from a fitted mode (METHODS.md §2–§3, all single-sided in f). The physics is
-//! `physics::quantum` / `physics::oscillator`; this module only adapts it for drawing:
+//! from a fitted mode (METHODS.md §2–§3, all single-sided in f):
 //! fitted model B + A·(2/π) f_m² γ / [(f_m² − f²)² + γ² f²] (V²/Hz),
 //! zero-point spectrum 2ħ Im χ(Ω), SQL of the added noise 2ħ|χ(Ω)|, and the thermal
 //! expectation at bath temperature T, 2ħ coth(ħΩ/2k_BT) Im χ(Ω) (m²/Hz), with
@@ -8,8 +7,7 @@
 
 use std::f64::consts::PI;
 
-use crate::physics::oscillator::{Oscillator, oscillator_psd};
-use crate::physics::quantum;
+use crate::physics::constants::{BOLTZMANN_J_PER_K, HBAR_J_S};
 
 /// A mechanical mode as fitted, for drawing.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -21,49 +19,54 @@ pub struct ModeShape {
 }
 
 impl ModeShape {
-    /// The oscillator of this mode with effective mass `mass_kg`; `None` for a non-positive
-    /// or non-finite mass, frequency or linewidth.
-    fn oscillator(self, mass_kg: f64) -> Option<Oscillator> {
-        Oscillator::new(mass_kg, self.frequency_hz, self.linewidth_hz).ok()
+    /// (Ω_m² − Ω²)² + Γ²Ω² at frequency f.
+    fn denominator(self, f_hz: f64) -> f64 {
+        let om = 2.0 * PI * self.frequency_hz;
+        let o = 2.0 * PI * f_hz;
+        let g = 2.0 * PI * self.linewidth_hz;
+        (om * om - o * o).powi(2) + g * g * o * o
     }
 
-    /// Im χ(Ω) = Γ Ω / (m [(Ω_m² − Ω²)² + Γ²Ω²]), m/N (NaN for an invalid mode).
+    /// Im χ(Ω) = Γ Ω / (m [(Ω_m² − Ω²)² + Γ²Ω²]), m/N.
     pub fn im_chi(self, f_hz: f64, mass_kg: f64) -> f64 {
-        self.oscillator(mass_kg).map_or(f64::NAN, |o| {
-            2.0 * PI * f_hz * o.im_susceptibility_over_omega(f_hz)
-        })
+        let o = 2.0 * PI * f_hz;
+        let g = 2.0 * PI * self.linewidth_hz;
+        g * o / (mass_kg * self.denominator(f_hz))
     }
 
-    /// |χ(Ω)| = 1 / (m √[(Ω_m² − Ω²)² + Γ²Ω²]), m/N (NaN for an invalid mode).
+    /// |χ(Ω)| = 1 / (m √[(Ω_m² − Ω²)² + Γ²Ω²]), m/N.
     pub fn abs_chi(self, f_hz: f64, mass_kg: f64) -> f64 {
-        self.oscillator(mass_kg)
-            .map_or(f64::NAN, |o| o.susceptibility_abs2(f_hz).sqrt())
+        1.0 / (mass_kg * self.denominator(f_hz).sqrt())
     }
 
     /// The oscillator line of area `area` (any unit²) at f: A (2/π) f_m² γ / [(f_m² − f²)² +
     /// γ² f²] (per Hz).
     pub fn line(self, f_hz: f64, area: f64) -> f64 {
-        oscillator_psd(f_hz, area, self.frequency_hz, self.linewidth_hz)
+        let fm = self.frequency_hz;
+        let g = self.linewidth_hz;
+        area * (2.0 / PI) * fm * fm * g / ((fm * fm - f_hz * f_hz).powi(2) + g * g * f_hz * f_hz)
     }
 
-    /// Zero-point displacement spectrum 2ħ Im χ, m²/Hz ([`quantum::zero_point_psd_at`]).
+    /// Zero-point displacement spectrum 2ħ Im χ, m²/Hz.
     pub fn zero_point_m2_per_hz(self, f_hz: f64, mass_kg: f64) -> f64 {
-        self.oscillator(mass_kg)
-            .map_or(f64::NAN, |o| quantum::zero_point_psd_at(&o, f_hz))
+        2.0 * HBAR_J_S * self.im_chi(f_hz, mass_kg)
     }
 
-    /// SQL of the added noise 2ħ|χ|, m²/Hz ([`quantum::sql_psd_at`]).
+    /// SQL of the added noise 2ħ|χ|, m²/Hz.
     pub fn sql_m2_per_hz(self, f_hz: f64, mass_kg: f64) -> f64 {
-        self.oscillator(mass_kg)
-            .map_or(f64::NAN, |o| quantum::sql_psd_at(&o, f_hz))
+        2.0 * HBAR_J_S * self.abs_chi(f_hz, mass_kg)
     }
 
-    /// Thermal (symmetrised, quantum) expectation 2ħ coth(ħΩ/2k_BT) Im χ at bath T, m²/Hz
-    /// ([`quantum::quantum_thermal_psd_at`], METHODS.md §2b).
+    /// Thermal (symmetrised, quantum) expectation 2ħ coth(ħΩ/2k_BT) Im χ at bath T, m²/Hz.
     pub fn thermal_m2_per_hz(self, f_hz: f64, mass_kg: f64, temperature_k: f64) -> f64 {
-        self.oscillator(mass_kg).map_or(f64::NAN, |o| {
-            quantum::quantum_thermal_psd_at(&o, temperature_k, f_hz)
-        })
+        let o = 2.0 * PI * f_hz;
+        let x = HBAR_J_S * o / (2.0 * BOLTZMANN_J_PER_K * temperature_k);
+        let coth = if x < 1e-6 {
+            1.0 / x + x / 3.0
+        } else {
+            1.0 / x.tanh()
+        };
+        2.0 * HBAR_J_S * coth * self.im_chi(f_hz, mass_kg)
     }
 }
 
@@ -105,7 +108,6 @@ pub fn grid_around_mode(range_hz: (f64, f64), points: usize, mode: ModeShape) ->
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::physics::constants::HBAR_J_S;
 
     // METHODS.md §7 invented example (values computed there with numpy, [N]):
     // m = 1e-13 kg, f_m = 1 MHz, Q = 1e5 (γ = 10 Hz), T = 4 K.

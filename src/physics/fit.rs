@@ -9,8 +9,6 @@
 
 use std::f64::consts::PI;
 
-use super::kernel::ConvolvedLine;
-use super::linefit::{self, line_energy_relative_variance};
 use super::lsq::{self, Model, SolveFailure};
 use super::oscillator::{lorentzian_psd, oscillator_psd};
 use super::{Estimate, PhysicsError, Result, window_stats};
@@ -78,24 +76,11 @@ pub struct ModeFit {
     pub band_hz: (f64, f64),
     /// Factor √(1+2Σρ_bin) applied to every 1σ for the window's bin correlation.
     pub error_inflation: f64,
-    /// True when γ < ENBW: the line is narrower than the resolution (METHODS.md §2c); γ is
-    /// then measured only through the kernel-convolved fit, or bounded from above.
+    /// True when γ < 5·NENBW·Δf: the linewidth and peak are broadened by the resolution
+    /// (METHODS.md §2 "Resolution"); the area is still good.
     pub resolution_limited: bool,
     /// Reference frequency of the slope term (Hz).
     pub slope_reference_hz: f64,
-    /// When the data cannot tell γ from zero: the upper bound on γ (Hz; Δχ² = 4, ≈ 95 %),
-    /// which is then also the value of `linewidth_hz` (METHODS.md §2c).
-    #[serde(default)]
-    pub linewidth_upper_bound_hz: Option<f64>,
-    /// True when the line model was convolved with the window's kernel (lines narrower than
-    /// ~10 ENBW); false for the plain model.
-    #[serde(default)]
-    pub kernel_convolved: bool,
-    /// Relative 1σ of the area from the line's own energy fluctuations over the record,
-    /// √(2(x − 1 + e^{−x}))/x with x = Γ T (METHODS.md §11), included in `area.sigma` where
-    /// it exceeds what the fit's bin statistics already hold.
-    #[serde(default)]
-    pub line_scatter_relative: f64,
 }
 
 impl ModeFit {
@@ -338,273 +323,16 @@ pub fn fit_mode_with(
     };
     let inflation = window_stats::error_inflation(spectrum.window);
     let nenbw = if df > 0.0 { spectrum.enbw_hz / df } else { 1.0 };
-    let enbw = nenbw * df;
-    let record_secs = record_secs(spectrum);
-    let guess = initial_guess(&freqs, &data, df);
-    let broad_guess = guess.is_some_and(|g| g.3 >= NARROW_ENBW * enbw);
-    let mut plain_err = None;
-    let mut start = guess;
-    if broad_guess {
-        match fit_bins(&freqs, &data, k_eff, inflation, enbw, df, band_hz, options) {
-            Ok(f) if f.linewidth_hz.value >= NARROW_ENBW * enbw => {
-                return Ok(with_line_scatter(f, record_secs, k_eff));
-            }
-            Ok(f) => {
-                start = Some((
-                    f.background_psd.value.max(1e-300),
-                    f.area.value,
-                    f.frequency_hz.value,
-                    f.linewidth_hz.value,
-                ));
-            }
-            Err(e) => plain_err = Some(e),
-        }
-    }
-    let Some(start) = start else {
-        return Err(
-            plain_err.unwrap_or_else(|| PhysicsError::NoMode("no peak above the floor".into()))
-        );
-    };
-    let line = ConvolvedLine::new(spectrum.window, spectrum.segment, df, options.line_shape);
-    let narrow = NarrowInputs {
-        freqs: &freqs,
-        data: &data,
+    fit_bins(
+        &freqs,
+        &data,
         k_eff,
         inflation,
-        enbw_hz: enbw,
+        nenbw * df,
         df,
         band_hz,
-        record_secs,
-        line: &line,
-    };
-    match fit_narrow(&narrow, start, options) {
-        Ok(f) => Ok(f),
-        Err(e) => Err(plain_err.unwrap_or(e)),
-    }
-}
-
-/// Lines whose FWHM is below this many ENBW are fitted with the kernel-convolved model
-/// (below it the plain model's peak is ≳ 6 % low for Hann and the width as much too high;
-/// above it the plain model is kept, as before, for speed).
-const NARROW_ENBW: f64 = 3.0;
-
-/// Duration (s) of the record behind a spectrum: N + (K − 1)·hop samples.
-fn record_secs(spectrum: &Spectrum) -> f64 {
-    let n = spectrum.segment as f64;
-    let hop = (n - (spectrum.overlap * n).round()).max(1.0);
-    let k = spectrum.averages.max(1) as f64;
-    (n + (k - 1.0) * hop) / spectrum.sample_rate_hz
-}
-
-/// Adds the line's own energy scatter (METHODS.md §11) to the area's σ where it exceeds the
-/// 1/K_eff per-look scatter the bin statistics already assume.
-fn with_line_scatter(mut fit: ModeFit, record_secs: f64, k_eff: f64) -> ModeFit {
-    let gamma_t = 2.0 * PI * fit.linewidth_hz.value * record_secs;
-    let v = line_energy_relative_variance(gamma_t);
-    fit.line_scatter_relative = v.sqrt();
-    let extra = (v - 1.0 / k_eff.max(1.0)).max(0.0);
-    if extra > 0.0 {
-        let a = fit.area.value;
-        fit.area = Estimate::new(a, fit.area.sigma.hypot(a * extra.sqrt()));
-    }
-    fit
-}
-
-struct NarrowInputs<'a> {
-    freqs: &'a [f64],
-    data: &'a [f64],
-    k_eff: f64,
-    inflation: f64,
-    enbw_hz: f64,
-    df: f64,
-    band_hz: (f64, f64),
-    record_secs: f64,
-    line: &'a ConvolvedLine,
-}
-
-fn solve_failure(e: SolveFailure) -> PhysicsError {
-    PhysicsError::NoMode(match e {
-        SolveFailure::BadStart => "the fit could not start from the data".to_string(),
-        SolveFailure::NotConverged => "the fit did not converge".to_string(),
-        SolveFailure::Singular => "the fit is degenerate (line not constrained)".to_string(),
-    })
-}
-
-/// The kernel-convolved fit (METHODS.md §2c): first the line as narrow as nothing (γ fixed
-/// at 10⁻⁴ ENBW), then γ free (as ln γ); γ is reported when it is resolved at 2σ, otherwise
-/// bounded from above by the χ² profile.
-fn fit_narrow(
-    inp: &NarrowInputs<'_>,
-    start: (f64, f64, f64, f64),
-    options: &FitOptions,
-) -> Result<ModeFit> {
-    let f_ref = 0.5 * (inp.band_hz.0 + inp.band_hz.1);
-    let sloped = options.sloped_background;
-    let tiny = 1e-4 * inp.enbw_hz;
-    let run = |st: (f64, f64, f64, f64), fixed: Option<f64>| {
-        linefit::fit(
-            inp.freqs, inp.data, inp.k_eff, inp.line, inp.df, sloped, f_ref, st, fixed, false,
-        )
-    };
-    let delta = run(start, Some(tiny));
-    let mut free: Option<linefit::ConvFit> = None;
-    let mut last_err = SolveFailure::BadStart;
-    let (b0, a0, c0) = match &delta {
-        Ok(d) => (d.background, d.area, d.center_hz),
-        Err(_) => (start.0, start.1, start.2),
-    };
-    for w in [
-        start.3.clamp(0.05 * inp.enbw_hz, 1e3 * inp.enbw_hz),
-        0.3 * inp.enbw_hz,
-    ] {
-        match run((b0, a0, c0, w), None) {
-            Ok(f) if free.as_ref().is_none_or(|g| f.chi2 < g.chi2) => free = Some(f),
-            Ok(_) => {}
-            Err(e) => last_err = e,
-        }
-    }
-    let delta = match (delta, &free) {
-        (Ok(d), _) => d,
-        // γ fixed near zero does not describe the data: the free fit must.
-        (Err(_), Some(f)) => f.clone(),
-        (Err(e), None) => {
-            return Err(solve_failure(if last_err == SolveFailure::BadStart {
-                e
-            } else {
-                last_err
-            }));
-        }
-    };
-    let chi2_red = |f: &linefit::ConvFit| f.chi2 / f.dof.max(1) as f64;
-    let var_scale = |f: &linefit::ConvFit| chi2_red(f) * inp.inflation * inp.inflation;
-    let cov = |f: &linefit::ConvFit, a: usize, b: usize| {
-        f.covariance.get(a * f.n_params + b).copied().unwrap_or(0.0) * var_scale(f)
-    };
-    let resolved = free.as_ref().filter(|f| {
-        let su = cov(f, 3, 3).max(0.0).sqrt();
-        su.is_finite() && su < 0.5 && f.chi2 <= delta.chi2 + 1e-9 * delta.chi2.abs()
-    });
-    if resolved.is_none() && delta.width_free {
-        // Only the free fit converged, and it cannot tell γ: nothing to bound from.
-        return Err(PhysicsError::NoMode(
-            "the linewidth is not constrained and a line narrower than the resolution does not fit"
-                .into(),
-        ));
-    }
-    let (chosen, width, width_sigma, upper) = match resolved {
-        Some(f) => {
-            let su = cov(f, 3, 3).max(0.0).sqrt();
-            (f.clone(), f.width_hz, f.width_hz * su, None)
-        }
-        None => {
-            let ub = width_upper_bound(inp, &delta, sloped, f_ref, &run);
-            (delta.clone(), ub, ub, Some(ub))
-        }
-    };
-    let f = &chosen;
-    let sd = |k: usize| cov(f, k, k).max(0.0).sqrt();
-    let (b, a, c) = (f.background, f.area, f.center_hz);
-    let q = c / width;
-    let peak = 2.0 * a / (PI * width);
-    let mut bg = b;
-    let mut bg_sigma = sd(0);
-    let mut slope = None;
-    if let Some(s) = f.slope {
-        let i = f.n_params - 1;
-        let x = c - f_ref;
-        bg = b + s * x;
-        bg_sigma = (cov(f, 0, 0) + x * x * cov(f, i, i) + 2.0 * x * cov(f, 0, i))
-            .max(0.0)
-            .sqrt();
-        slope = Some(Estimate::new(s, sd(i)));
-    }
-    let rel_w = width_sigma / width;
-    let fit = ModeFit {
-        frequency_hz: Estimate::new(c, sd(2)),
-        linewidth_hz: Estimate::new(width, width_sigma),
-        quality_factor: Estimate::new(q, q * rel_w),
-        area: Estimate::new(a, sd(1)),
-        peak_psd: Estimate::new(peak, peak * (sd(1) / a).hypot(rel_w)),
-        background_psd: Estimate::new(bg, bg_sigma),
-        background_slope_per_hz: slope,
-        line_shape: options.line_shape,
-        reduced_chi2: chi2_red(f),
-        bins: inp.data.len(),
-        band_hz: inp.band_hz,
-        error_inflation: inp.inflation,
-        resolution_limited: upper.is_some() || width < inp.enbw_hz,
-        slope_reference_hz: f_ref,
-        linewidth_upper_bound_hz: upper,
-        kernel_convolved: true,
-        line_scatter_relative: 0.0,
-    };
-    let all_finite = [
-        fit.frequency_hz,
-        fit.linewidth_hz,
-        fit.quality_factor,
-        fit.area,
-        fit.peak_psd,
-        fit.background_psd,
-    ]
-    .iter()
-    .all(Estimate::is_finite)
-        && fit.reduced_chi2.is_finite();
-    if !all_finite {
-        return Err(PhysicsError::NoMode(
-            "the fit gave non-finite values".into(),
-        ));
-    }
-    if c < inp.band_hz.0 || c > inp.band_hz.1 {
-        return Err(PhysicsError::NoMode(format!(
-            "the fitted centre {c:.6} Hz lies outside the band"
-        )));
-    }
-    if upper.is_none() && width > inp.band_hz.1 - inp.band_hz.0 {
-        return Err(PhysicsError::NoMode(format!(
-            "the fitted linewidth {width:.4} Hz is wider than the band"
-        )));
-    }
-    if a < options.min_significance * fit.area.sigma {
-        return Err(PhysicsError::NoMode(format!(
-            "no significant peak (area {:.2}σ above zero, need {})",
-            a / fit.area.sigma,
-            options.min_significance
-        )));
-    }
-    Ok(with_line_scatter(fit, inp.record_secs, inp.k_eff))
-}
-
-/// Upper bound on γ: the smallest γ on a 2×-spaced grid from 1/128 ENBW whose best fit
-/// (B, A, f_m free) is worse than the narrow fit by Δχ² = 4·χ²_red·inflation²,
-/// interpolated in ln γ; at most 16 ENBW.
-fn width_upper_bound(
-    inp: &NarrowInputs<'_>,
-    delta: &linefit::ConvFit,
-    _sloped: bool,
-    _f_ref: f64,
-    run: &dyn Fn(
-        (f64, f64, f64, f64),
-        Option<f64>,
-    ) -> std::result::Result<linefit::ConvFit, SolveFailure>,
-) -> f64 {
-    let chi2_red = delta.chi2 / delta.dof.max(1) as f64;
-    let limit = delta.chi2 + 4.0 * chi2_red * inp.inflation * inp.inflation;
-    let mut prev = (inp.enbw_hz / 256.0, delta.chi2);
-    let mut st = (delta.background, delta.area, delta.center_hz, 0.0);
-    for j in -7..=4 {
-        let w = inp.enbw_hz * 2f64.powf(j as f64);
-        let Ok(f) = run(st, Some(w)) else {
-            continue;
-        };
-        if f.chi2 > limit {
-            let (w0, c0) = prev;
-            let t = ((limit - c0) / (f.chi2 - c0)).clamp(0.0, 1.0);
-            return (w0.ln() + t * (w.ln() - w0.ln())).exp();
-        }
-        st = (f.background, f.area, f.center_hz, 0.0);
-        prev = (w, f.chi2);
-    }
-    16.0 * inp.enbw_hz
+        options,
+    )
 }
 
 /// Initial guesses from the data: (B, A, f_m, γ).
@@ -692,7 +420,13 @@ fn fit_bins(
             Err(e) => last_err = e,
         }
     }
-    let sol = best.ok_or_else(|| solve_failure(last_err))?;
+    let sol = best.ok_or_else(|| {
+        PhysicsError::NoMode(match last_err {
+            SolveFailure::BadStart => "the fit could not start from the data".to_string(),
+            SolveFailure::NotConverged => "the fit did not converge".to_string(),
+            SolveFailure::Singular => "the fit is degenerate (line not constrained)".to_string(),
+        })
+    })?;
     let n = model.n_params();
     let chi2_red = sol.chi2 / sol.dof.max(1) as f64;
     let var_scale = chi2_red * inflation * inflation;
@@ -738,11 +472,8 @@ fn fit_bins(
         bins: data.len(),
         band_hz,
         error_inflation: inflation,
-        resolution_limited: w < enbw_hz,
+        resolution_limited: w < 5.0 * enbw_hz,
         slope_reference_hz: f_ref,
-        linewidth_upper_bound_hz: None,
-        kernel_convolved: false,
-        line_scatter_relative: 0.0,
     };
     let all_finite = [
         fit.frequency_hz,
@@ -1014,11 +745,8 @@ pub fn fit_mode_given_variance(
         bins: values.len(),
         band_hz,
         error_inflation: inflation,
-        resolution_limited: w < data.enbw_hz,
+        resolution_limited: w < 5.0 * data.enbw_hz,
         slope_reference_hz: f_ref,
-        linewidth_upper_bound_hz: None,
-        kernel_convolved: false,
-        line_scatter_relative: 0.0,
     };
     let all_finite = [
         fit.frequency_hz,

@@ -10,8 +10,6 @@ pub mod calibration;
 pub mod constants;
 mod error;
 pub mod fit;
-pub mod kernel;
-mod linefit;
 mod lsq;
 pub mod occupancy;
 pub mod oscillator;
@@ -19,8 +17,6 @@ pub mod peaks;
 pub mod quantum;
 pub mod sideband;
 pub mod window_stats;
-
-pub use linefit::line_energy_relative_variance;
 
 pub use error::{PhysicsError, Result};
 

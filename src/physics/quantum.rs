@@ -56,18 +56,9 @@ pub fn sql_psd_at_resonance(osc: &Oscillator) -> f64 {
     sql_psd_at(osc, osc.frequency_hz)
 }
 
-/// Classical thermal peak 4 k_B T Q/(m Ω_m³) (m²/Hz): the high-temperature limit only; the
-/// thermal expectation the program reports and draws is [`quantum_thermal_peak_psd`]
-/// (METHODS.md §2b).
+/// Classical thermal peak 4 k_B T Q/(m Ω_m³) (m²/Hz).
 pub fn thermal_peak_psd(osc: &Oscillator, temperature_k: f64) -> f64 {
     classical_thermal_psd_at(osc, temperature_k, osc.frequency_hz)
-}
-
-/// Thermal expectation at the peak, symmetrised quantum form 2ħ coth(ħΩ_m/2k_BT) Im χ(Ω_m)
-/// = 4 x_zpf²(2n̄+1)/Γ_m (m²/Hz) (METHODS.md §2b; Clerk et al. 2010, doubled to one side).
-/// Equals [`thermal_peak_psd`] × (x coth x), x = ħΩ_m/2k_BT: 7.6 % above it at ħΩ = k_BT.
-pub fn quantum_thermal_peak_psd(osc: &Oscillator, temperature_k: f64) -> f64 {
-    quantum_thermal_psd_at(osc, temperature_k, osc.frequency_hz)
 }
 
 /// [`zero_point_psd_at`] on a grid.
