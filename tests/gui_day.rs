@@ -10,6 +10,7 @@
 //! thread runs on the wall clock, so the tests poll for conditions with a generous deadline
 //! and never assert on elapsed time.
 
+#![allow(clippy::unwrap_used, clippy::field_reassign_with_default)]
 #![cfg(feature = "gui")]
 
 use std::io::Write;
@@ -204,10 +205,14 @@ fn letter_shortcuts_never_act_on_typed_text() {
 #[test]
 fn setting_the_band_keeps_the_history_and_the_fields_show_the_band_in_use() {
     let mut o = demo_options();
-    // No band: the engine picks one around the strongest line and the fields show it.
-    if let Some(a) = o.analysis.as_mut() {
-        a.mode_band_hz = None;
-    }
+    // Direct detection (the cooldown scenario; the built-in demo is heterodyne, whose band
+    // is of f_m about the carrier) and no band: the engine picks one around the strongest
+    // line and the fields show it.
+    o.source = SourceConfig::new(SourceSpec::Demo {
+        scenario: "cooldown".into(),
+        seed: 1,
+    });
+    o.analysis = Some(AnalysisOptions::default());
     let mut h = harness(o);
     step_until(&mut h, "an automatic band and history", |a| {
         a.live().frame.as_ref().is_some_and(|f| f.band_hz.is_some())

@@ -3,6 +3,7 @@
 //! and their numbers; a heterodyne source whose LO side is not given gets none assumed (the
 //! analysis waits and says so), and typing a carrier does not pick a side either.
 
+#![allow(clippy::unwrap_used)]
 #![cfg(feature = "gui")]
 
 use std::time::{Duration, Instant};

@@ -7,10 +7,10 @@
 //! power, early against late, within their statistical error from K_eff), (c) dropped blocks
 //! and frames are counted, not silently lost, and zero when the consumer keeps up.
 //!
-//! `STILLPOINT_SOAK_SECS` sets the wall time of the engine soak (default 10 s, short enough
-//! for every `cargo test`; set 60 or more for a real soak; the cooldown soak runs a sixth of
-//! it, at least 5 s; the lossless run processes 20× it in stream time, i.e. 200 s by
-//! default); see tests/perf/SOAK.md.
+//! `STILLPOINT_SOAK_SECS` sets the wall time of the engine soak (default 30 s: 10 s was
+//! too short for the history rings to wrap on a loaded machine; the cooldown soak runs a
+//! sixth of it, at least 5 s; the lossless run processes 20× it in stream time, i.e.
+//! 10 minutes by default); see tests/perf/SOAK.md.
 
 #![allow(clippy::unwrap_used)]
 
@@ -35,13 +35,13 @@ fn serial() -> std::sync::MutexGuard<'static, ()> {
         .unwrap_or_else(std::sync::PoisonError::into_inner)
 }
 
-/// Wall time of the engine soak, s (`STILLPOINT_SOAK_SECS`, default 10).
+/// Wall time of the engine soak, s (`STILLPOINT_SOAK_SECS`, default 30).
 fn soak_secs() -> f64 {
     std::env::var("STILLPOINT_SOAK_SECS")
         .ok()
         .and_then(|v| v.parse::<f64>().ok())
         .filter(|v| v.is_finite() && *v > 0.0)
-        .unwrap_or(10.0)
+        .unwrap_or(30.0)
 }
 
 /// Resident set size of this process, bytes (Linux /proc; `None` elsewhere).

@@ -6,6 +6,8 @@
 //! the AR(2) covariance recursion; the realised variance) and scipy.signal.welch of each
 //! 1 s interval as reference rows for the waterfall.
 
+#![allow(clippy::unwrap_used, clippy::needless_range_loop)]
+
 mod util;
 
 use std::fs;

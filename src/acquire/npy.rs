@@ -600,7 +600,7 @@ mod tests {
     /// A version-1.0 file image as `np.save` lays it out (header padded to 64 bytes).
     fn npy_v1(dict: &str, data: &[u8]) -> Vec<u8> {
         let mut header = dict.to_string();
-        while (10 + header.len() + 1) % 64 != 0 {
+        while !(10 + header.len() + 1).is_multiple_of(64) {
             header.push(' ');
         }
         header.push('\n');

@@ -494,11 +494,11 @@ impl Sink {
             let file = file.into_inner().map_err(io::IntoInnerError::into_error)?;
             file.sync_all()?;
         }
-        if let Some(temp) = self.temp.take() {
-            if let Err(e) = std::fs::rename(&temp, &self.target) {
-                let _ = std::fs::remove_file(&temp);
-                return Err(e);
-            }
+        if let Some(temp) = self.temp.take()
+            && let Err(e) = std::fs::rename(&temp, &self.target)
+        {
+            let _ = std::fs::remove_file(&temp);
+            return Err(e);
         }
         Ok(())
     }

@@ -285,6 +285,7 @@ impl Sums {
 /// let b: Vec<f64> = a.iter().map(|x| 2.0 * x).collect();
 /// let mut cross = CrossWelch::new(WelchConfig::new(1000.0, 256))?;
 /// cross.push(&a, &b);
+/// cross.flush();
 /// let s = cross.spectrum().expect("segments");
 /// assert!((s.coherence_at(10) - 1.0).abs() < 1e-12);
 /// # Ok::<(), stillpoint::dsp::DspError>(())

@@ -308,7 +308,7 @@ fn convention_text(lo_above: bool, red_hz: f64) -> String {
 
 /// One line narrower than the resolution read by a band sum (METHODS §2c): the strongest
 /// bin of the window, the area Σ(S_k − B)Δf over ±M bins (M = the window's tone half-width
-/// + 2, which holds ≥ 99.99 % of the kernel, METHODS §1), B the mean of the window's bins
+/// plus 2, which holds ≥ 99.99 % of the kernel, METHODS §1), B the mean of the window's bins
 /// farther than 2M from the peak. σ from the χ² scatter of the summed bins (1/√K_eff each,
 /// neighbours correlated: × the window's error inflation) and of the background mean.
 fn band_sum_line(
@@ -346,7 +346,7 @@ fn band_sum_line(
         .sum::<f64>()
         * window_stats::error_inflation(spectrum.window).powi(2);
     let sigma = (var_bins + (nbins * df * sigma_b).powi(2)).sqrt();
-    if !(area > 3.0 * sigma) {
+    if area.partial_cmp(&(3.0 * sigma)) != Some(std::cmp::Ordering::Greater) {
         return Err(PhysicsError::Sideband(format!(
             "the line in the {what} is not significant"
         )));

@@ -279,7 +279,7 @@ fn demo_stage_text(source: &SourceConfig, frame: Option<&Frame>) -> Option<Strin
         return None;
     };
     let status = &frame?.status;
-    if !(status.sample_rate_hz > 0.0) {
+    if status.sample_rate_hz.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) {
         return None;
     }
     let t = status.samples as f64 / status.sample_rate_hz;

@@ -164,6 +164,8 @@ pub const VALUES: &[&str] = &[
     "below",
     "thermal",
     "cooldown",
+    "quantum",
+    "two-detector",
     "heterodyne",
     "strays",
     "pipe",
