@@ -151,8 +151,16 @@ pub struct ModeReport {
     pub damping_rad_s: Option<f64>,
     /// Line shape fitted (`oscillator` or `lorentzian`).
     pub line_shape: Option<String>,
-    /// True when γ < 5·ENBW: linewidth and peak are broadened by the resolution.
+    /// True when the line is narrower than the resolution: it was fitted convolved with the
+    /// window's kernel (METHODS.md §2c), `linewidth_hz` is the upper bound γ + 2σ and
+    /// `quality_factor` the matching lower bound; area, frequency, n̄ and T_eff are measured.
     pub resolution_limited: Option<bool>,
+    /// The kernel-convolved fit's own linewidth (Hz) for a resolution-limited line.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub linewidth_kernel_fit_hz: Option<f64>,
+    /// Its 1σ.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub linewidth_kernel_fit_hz_uncertainty: Option<f64>,
     /// √(1 + 2Σρ_bin) applied to the 1σ values for the window's bin correlation.
     pub error_inflation: Option<f64>,
     /// Bins used in the fit.
@@ -434,11 +442,16 @@ pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report,
     if let Some(m) = &mode_fit {
         fill_mode(&mut report.mode, m, cal.as_ref());
         if m.resolution_limited {
-            report.notes.push(format!(
-                "mode: linewidth {:.4} Hz is below 5·ENBW = {:.4} Hz; linewidth and peak are broadened by the resolution (the area is not)",
-                m.linewidth_hz.value,
-                5.0 * spectrum.enbw_hz
-            ));
+            report.notes.push(match m.linewidth_fit_hz {
+                Some(g) => format!(
+                    "mode: the line is narrower than the resolution (ENBW {:.4} Hz): fitted convolved with the window's kernel, γ = {:.4} ± {:.4} Hz; linewidth_hz is the upper bound γ + 2σ = {:.4} Hz and Q its lower bound; area, frequency, occupancy and temperature are measured, their σ include the line's own scatter over the record",
+                    spectrum.enbw_hz, g.value, g.sigma, m.linewidth_hz.value
+                ),
+                None => format!(
+                    "mode: the line is narrower than the resolution and its width is not measurable: linewidth_hz is the ENBW {:.4} Hz as an upper bound and Q a lower bound; the area's σ is 100 % (a line narrower than 1/T is one draw of its thermal energy)",
+                    spectrum.enbw_hz
+                ),
+            });
         }
     }
 
@@ -681,6 +694,10 @@ pub(crate) fn fill_mode(r: &mut ModeReport, m: &ModeFit, cal: Option<&Calibratio
         .to_string(),
     );
     r.resolution_limited = Some(m.resolution_limited);
+    if m.resolution_limited {
+        r.linewidth_kernel_fit_hz = m.linewidth_fit_hz.map(|e| e.value);
+        r.linewidth_kernel_fit_hz_uncertainty = m.linewidth_fit_hz.map(|e| e.sigma);
+    }
     r.error_inflation = Some(m.error_inflation);
     r.bins = Some(m.bins);
     if let Some(c) = cal {

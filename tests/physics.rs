@@ -466,7 +466,9 @@ fn bin_correlation_matches_numpy() {
 /// coverage of the reported 1σ over 240 seeds.
 #[test]
 fn mode_fit_recovery_and_coverage_independent_bins() {
-    let (fs, n, k_eff) = (20_000.0, 4096, 20.0);
+    // γ = 6.8 ENBW: resolved, so independent bins of S(f_k) itself are a fair model of the
+    // estimate (a narrower line's bins would hold S convolved with the kernel, METHODS §2c).
+    let (fs, n, k_eff) = (20_000.0, 8192, 20.0);
     let (fm, g, area, bg) = (3_000.37, 25.0, 2.0e-3, 1.0e-7);
     let mut hits = [0usize; 4];
     let seeds = 240;
@@ -596,10 +598,14 @@ fn t7_calibration_round_trip() {
     let o = example();
     let n_be = occupancy::bose_einstein(1e6, 4.0);
     let area_v = gain * gain * o.x_zpf_m().powi(2) * (2.0 * n_be + 1.0);
-    let df = 2.0;
-    let n = 1usize << 21;
+    // Bins fine enough that the line is resolved (γ ≥ 5 ENBW, METHODS §2 "Resolution"): the
+    // noise-free PSD below is the line itself, not its convolution with the window's kernel,
+    // which is what a Welch estimate of a narrower line would show (§2c).
+    let df = 0.5;
+    let n = 1usize << 23;
     let fs = df * n as f64;
     let enbw = 1.5 * df;
+    assert!(o.linewidth_hz >= 5.0 * enbw);
     let floor = 1e-14;
     let tone_power = num(&c, "t7.tone_power_v2");
     let k_tone = (f_mod / df).round() as usize;

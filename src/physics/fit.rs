@@ -9,7 +9,9 @@
 
 use std::f64::consts::PI;
 
+use super::kernel::Kernel;
 use super::lsq::{self, Model, SolveFailure};
+use super::narrow;
 use super::oscillator::{lorentzian_psd, oscillator_psd};
 use super::{Estimate, PhysicsError, Result, window_stats};
 use crate::dsp::Spectrum;
@@ -81,6 +83,11 @@ pub struct ModeFit {
     pub resolution_limited: bool,
     /// Reference frequency of the slope term (Hz).
     pub slope_reference_hz: f64,
+    /// For a line narrower than the resolution (METHODS.md §2c): the linewidth from the fit
+    /// of the line convolved with the window's kernel, value ± 1σ (`None` when the width
+    /// could not be fitted at all). `linewidth_hz` then holds the upper bound γ + 2σ.
+    #[serde(default)]
+    pub linewidth_fit_hz: Option<Estimate>,
 }
 
 impl ModeFit {
@@ -295,6 +302,7 @@ pub fn fit_mode_with(
     let df = spectrum.resolution_hz;
     let mut freqs = Vec::with_capacity(k_hi.saturating_sub(k_lo) + 1);
     let mut data = Vec::with_capacity(freqs.capacity());
+    let mut bins = Vec::with_capacity(freqs.capacity());
     for k in k_lo..=k_hi {
         let f = k as f64 * df;
         if options.exclude_hz.iter().any(|&(a, b)| f >= a && f <= b) {
@@ -306,6 +314,7 @@ pub fn fit_mode_with(
         if d.is_finite() && d >= 0.0 {
             freqs.push(f);
             data.push(d);
+            bins.push(k);
         }
     }
     let n_par = if options.sloped_background { 5 } else { 4 };
@@ -323,7 +332,7 @@ pub fn fit_mode_with(
     };
     let inflation = window_stats::error_inflation(spectrum.window);
     let nenbw = if df > 0.0 { spectrum.enbw_hz / df } else { 1.0 };
-    fit_bins(
+    let plain = fit_bins(
         &freqs,
         &data,
         k_eff,
@@ -332,7 +341,196 @@ pub fn fit_mode_with(
         df,
         band_hz,
         options,
+    );
+    // A line wider than 5·ENBW is resolved: the plain model is exact enough.
+    if let Ok(fit) = &plain
+        && fit.linewidth_hz.value >= 5.0 * spectrum.enbw_hz
+    {
+        return plain;
+    }
+    let samples = LineSamples {
+        freqs: &freqs,
+        bins: &bins,
+        data: &data,
+    };
+    match fit_narrow_line(
+        spectrum,
+        &samples,
+        k_eff,
+        inflation,
+        band_hz,
+        options,
+        plain.as_ref().ok(),
+    ) {
+        Ok(fit) => Ok(fit),
+        Err(e) => plain.or(Err(e)),
+    }
+}
+
+/// The bins of a band that enter a fit.
+struct LineSamples<'a> {
+    freqs: &'a [f64],
+    bins: &'a [usize],
+    data: &'a [f64],
+}
+
+/// The fit of a line at or below the resolution: the model convolved with the window's
+/// kernel (METHODS.md §2c), with the uncertainty floors of a line holding few degrees of
+/// freedom ([`super::narrow`]).
+fn fit_narrow_line(
+    spectrum: &Spectrum,
+    samples: &LineSamples<'_>,
+    k_eff: f64,
+    inflation: f64,
+    band_hz: (f64, f64),
+    options: &FitOptions,
+    plain: Option<&ModeFit>,
+) -> Result<ModeFit> {
+    let df = spectrum.resolution_hz;
+    let enbw = spectrum.enbw_hz;
+    let kernel = Kernel::new(spectrum.window, spectrum.segment.max(2));
+    let start = match plain {
+        Some(p) => (
+            p.background_psd.value.max(1e-300),
+            p.area.value,
+            p.frequency_hz.value,
+        ),
+        None => narrow::narrow_guess(samples.freqs, samples.data, df, spectrum.window.terms() + 1)
+            .ok_or_else(|| PhysicsError::NoMode("no peak above the floor".into()))?,
+    };
+    let hint = plain.map(|p| (p.linewidth_hz.value - enbw).max(0.1 * enbw));
+    let f_ref = 0.5 * (band_hz.0 + band_hz.1);
+    let outcome = narrow::fit_convolved(
+        samples.freqs,
+        samples.bins,
+        samples.data,
+        k_eff,
+        df,
+        enbw,
+        &kernel,
+        options.line_shape,
+        options.sloped_background,
+        f_ref,
+        start,
+        hint,
     )
+    .map_err(|e| {
+        PhysicsError::NoMode(match e {
+            SolveFailure::BadStart => "the fit could not start from the data".to_string(),
+            SolveFailure::NotConverged => "the fit did not converge".to_string(),
+            SolveFailure::Singular => "the fit is degenerate (line not constrained)".to_string(),
+        })
+    })?;
+    let sol = &outcome.solution;
+    let n = sol.params.len();
+    let chi2_red = sol.chi2 / sol.dof.max(1) as f64;
+    let var_scale = chi2_red * inflation * inflation;
+    let cov =
+        |a: usize, b: usize| sol.covariance.get(a * n + b).copied().unwrap_or(0.0) * var_scale;
+    let sd = |k: usize| cov(k, k).max(0.0).sqrt();
+    let p = &sol.params;
+    let (b, a, c) = (p[0], p[1], p[2]);
+    let slope_index = if outcome.fixed_width.is_some() { 3 } else { 4 };
+    // The width: fitted with its σ, or unmeasurable (held at the delta-line limit).
+    // The wings fix A_ensemble·γ while the core reads the realised area, so the fitted γ
+    // inherits the realised area's scatter (super::narrow): add it in quadrature.
+    let span = narrow::record_span_s(spectrum);
+    let width_fit = match outcome.fixed_width {
+        // Only below the resolution: a resolved line's wings and core are both in the fit.
+        None if p[3] < enbw => {
+            let own = p[3] * narrow::line_area_scatter(p[3], span);
+            Some(Estimate::new(p[3], sd(3).hypot(own)))
+        }
+        None => Some(Estimate::new(p[3], sd(3))),
+        Some(_) => None,
+    };
+    let resolution_limited = width_fit.is_none_or(|w| w.value < enbw);
+    let (width, width_sigma) = match width_fit {
+        Some(w) if !resolution_limited => (w.value, w.sigma),
+        // Upper bound γ + 2σ (one-sided ≈ 98 %); ENBW when the width is not fitted at all.
+        Some(w) => (w.value + 2.0 * w.sigma, w.sigma),
+        None => (enbw, enbw),
+    };
+    // Floors for a line holding few degrees of freedom (super::narrow).
+    // The width that sets the line's own scatter: the fitted one when it is measured (> 2σ);
+    // otherwise nothing excludes a line narrower than 1/T, whose area is a single draw of a
+    // thermal energy (100 %).
+    let width_for_scatter = match width_fit {
+        Some(w) if w.value > 2.0 * w.sigma => w.value,
+        _ => 0.0,
+    };
+    let area_fit_sigma = sd(1);
+    let area_sigma = area_fit_sigma.max(a * narrow::line_area_scatter(width_for_scatter, span));
+    let freq_sigma = sd(2).max(narrow::line_centre_scatter_hz(width_for_scatter, span));
+    let q = c / width;
+    let q_sigma = q * ((freq_sigma / c).powi(2) + (width_sigma / width).powi(2)).sqrt();
+    let peak = 2.0 * a / (PI * width);
+    let peak_sigma = peak * ((area_sigma / a).powi(2) + (width_sigma / width).powi(2)).sqrt();
+    let (bg, bg_sigma, slope) = if options.sloped_background {
+        let x = c - f_ref;
+        let si = slope_index;
+        (
+            b + p[si] * x,
+            (cov(0, 0) + x * x * cov(si, si) + 2.0 * x * cov(0, si))
+                .max(0.0)
+                .sqrt(),
+            Some(Estimate::new(p[si], sd(si))),
+        )
+    } else {
+        (b, sd(0), None)
+    };
+    let fit = ModeFit {
+        frequency_hz: Estimate::new(c, freq_sigma),
+        linewidth_hz: Estimate::new(width, width_sigma),
+        quality_factor: Estimate::new(q, q_sigma),
+        area: Estimate::new(a, area_sigma),
+        peak_psd: Estimate::new(peak, peak_sigma),
+        background_psd: Estimate::new(bg, bg_sigma),
+        background_slope_per_hz: slope,
+        line_shape: options.line_shape,
+        reduced_chi2: chi2_red,
+        bins: samples.data.len(),
+        band_hz,
+        error_inflation: inflation,
+        resolution_limited,
+        slope_reference_hz: f_ref,
+        linewidth_fit_hz: width_fit,
+    };
+    let all_finite = [
+        fit.frequency_hz,
+        fit.linewidth_hz,
+        fit.quality_factor,
+        fit.area,
+        fit.peak_psd,
+        fit.background_psd,
+    ]
+    .iter()
+    .all(Estimate::is_finite)
+        && chi2_red.is_finite();
+    if !all_finite {
+        return Err(PhysicsError::NoMode(
+            "the fit gave non-finite values".into(),
+        ));
+    }
+    if c < band_hz.0 || c > band_hz.1 {
+        return Err(PhysicsError::NoMode(format!(
+            "the fitted centre {c:.6} Hz lies outside the band"
+        )));
+    }
+    if width > band_hz.1 - band_hz.0 {
+        return Err(PhysicsError::NoMode(format!(
+            "the fitted linewidth {width:.4} Hz is wider than the band"
+        )));
+    }
+    // Detection: the area against the fit's own (noise) uncertainty.
+    if a < options.min_significance * area_fit_sigma {
+        return Err(PhysicsError::NoMode(format!(
+            "no significant peak (area {:.2}σ above zero, need {})",
+            a / area_fit_sigma,
+            options.min_significance
+        )));
+    }
+    Ok(fit)
 }
 
 /// Initial guesses from the data: (B, A, f_m, γ).
@@ -474,6 +672,7 @@ fn fit_bins(
         error_inflation: inflation,
         resolution_limited: w < 5.0 * enbw_hz,
         slope_reference_hz: f_ref,
+        linewidth_fit_hz: None,
     };
     let all_finite = [
         fit.frequency_hz,
@@ -747,6 +946,7 @@ pub fn fit_mode_given_variance(
         error_inflation: inflation,
         resolution_limited: w < 5.0 * data.enbw_hz,
         slope_reference_hz: f_ref,
+        linewidth_fit_hz: None,
     };
     let all_finite = [
         fit.frequency_hz,
