@@ -83,6 +83,7 @@ impl Kernel {
         self.half_bins
     }
 
+    #[cfg(test)]
     /// Kernel value at an offset of `u` bins (1/bin units, unit area), linearly interpolated
     /// between nodes; zero beyond the tabulated half-width.
     pub(crate) fn at(&self, u: f64) -> f64 {

@@ -160,6 +160,15 @@ impl<'a> ConvolvedModel<'a> {
     }
 }
 
+impl ConvolvedModel<'_> {
+    /// The line alone (model minus background) at data point `i`.
+    pub(crate) fn eval_line(&self, p: &[f64], i: usize, grad: &mut [f64]) -> f64 {
+        let total = self.eval(p, i, grad);
+        let (b, _, _, _, s) = self.unpack(p);
+        total - b - s * (self.freqs.get(i).copied().unwrap_or(self.f_ref) - self.f_ref)
+    }
+}
+
 impl Model for ConvolvedModel<'_> {
     fn n_params(&self) -> usize {
         3 + usize::from(self.fixed_width.is_none()) + usize::from(self.sloped)

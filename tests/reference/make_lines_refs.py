@@ -21,7 +21,7 @@ Writes into tests/data/lines/:
                (Q = 10001), variance VAR_NARROW, on FLOOR; at --segment 1024 (8 Hz bins,
                ENBW 12 Hz) the line is 1/48 of the ENBW wide and its smeared peak stands
                about 26 dB above the floor;
-  strays.f32   FS = 65536 Hz, 2^18 samples (4 s): FLOOR plus the lines of STRAYS
+  strays.f32   FS = 262144 Hz, 2^19 samples (2 s): FLOOR plus the lines of strays
                (frequency, FWHM, height of the true peak over the floor in dB), from 60 Hz
                (a near-DC line) to 2000 Hz wide;
   expected_welch.csv
@@ -115,17 +115,17 @@ def main():
         "gamma_t": 2 * np.pi * gamma * n / fs,
     }
 
-    # --- strays: five resolved lines (60 Hz near DC to 2000 Hz wide) on a flat floor ---
+    # --- strays: six lines (60 Hz near DC to 2000 Hz wide) spread over the span ---
     rng = np.random.default_rng(7)
-    fs, n = 65536.0, 2**18
+    fs, n = 262144.0, 2**19
     strays = [
         # f (Hz), FWHM (Hz), true peak over floor (dB, line alone)
         (60.0, 4.0, 20.0),
-        (3100.0, 350.0, 14.0),
-        (9000.0, 2000.0, 22.0),
-        (14500.0, 600.0, 32.0),
-        (21000.0, 1200.0, 18.0),
-        (26000.0, 80.0, 26.0),
+        (15000.0, 350.0, 14.0),
+        (40000.0, 2000.0, 22.0),
+        (70000.0, 600.0, 32.0),
+        (100000.0, 1200.0, 18.0),
+        (120000.0, 80.0, 26.0),
     ]
     v = floor_noise(rng, n, fs)
     lines = []
