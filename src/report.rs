@@ -178,7 +178,9 @@ pub struct QuantumReport {
     pub sql_psd_at_resonance_m2_per_hz: Option<f64>,
     /// Bose–Einstein occupancy of the bath at `--bath-temperature`.
     pub bath_occupancy: Option<f64>,
-    /// Classical thermal peak 4k_BTQ/(mΩ_m³) at the bath temperature, m²/Hz.
+    /// Thermal peak at the bath temperature, symmetrised quantum form (METHODS.md §2b):
+    /// 2ħ coth(ħΩ_m/2k_BT) Im χ(Ω_m) = 4 x_zpf²(2n̄+1)/Γ_m, m²/Hz (the classical
+    /// 4k_BTQ/(mΩ_m³) is its k_BT ≫ ħΩ_m limit).
     pub thermal_peak_psd_at_bath_m2_per_hz: Option<f64>,
     /// The effective mass used (`--mass`), kg.
     pub mass_kg: Option<f64>,
