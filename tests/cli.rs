@@ -1562,3 +1562,51 @@ fn a_source_that_ends_before_k_averages_says_so() {
     assert_eq!(stderr.lines().count(), 2, "{stderr}");
     assert_eq!(read_csv(&out).rows.len(), 1025);
 }
+
+/// Issue 10: G is often quoted signed. `--freq-pull -G` (both `--freq-pull -1e18` and
+/// `--freq-pull=-1e18`) calibrates exactly as `+G`, because x_cal,pk = β f_mod/|G/2π|
+/// (METHODS.md §5b; Gorodetsky et al., Opt. Express 18, 23236 (2010)); 0 and non-finite
+/// values stay one-line errors with exit status 2.
+#[test]
+fn a_negative_freq_pull_calibrates_as_its_absolute_value() {
+    let dir = tempfile::tempdir().unwrap();
+    let wav = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-streams/thermal.wav");
+    let out = dir.path().join("pull.json");
+    let common = [
+        "analyze",
+        s(&wav),
+        "--segment",
+        "16384",
+        "--mode-band",
+        "85000:87200",
+        "--tone-freq",
+        "89000",
+        "--pm-depth",
+        "1e-3",
+    ];
+    let m_per_v = |pull: &[&str]| -> f64 {
+        let mut args = common.to_vec();
+        args.extend_from_slice(pull);
+        args.extend_from_slice(&["-q", "-o", s(&out)]);
+        let output = run(&args);
+        assert_success(&output, &format!("{pull:?}"));
+        let v = read_json(&out);
+        assert_eq!(v["calibration"]["method"], "tone", "{v}");
+        v["calibration"]["m_per_v"].as_f64().unwrap()
+    };
+    let plus = m_per_v(&["--freq-pull", "1e18"]);
+    assert!(plus.is_finite() && plus > 0.0);
+    assert_eq!(m_per_v(&["--freq-pull", "-1e18"]), plus);
+    assert_eq!(m_per_v(&["--freq-pull=-1e18"]), plus);
+    // The help says how a signed G is read.
+    let help = stdout(&run(&["analyze", "--help"]));
+    assert!(help.contains("|G|"), "{help}");
+    for bad in ["0", "-0", "nan", "inf", "-inf", "fast"] {
+        fs::write(&out, PRECIOUS).unwrap();
+        let mut args = common.to_vec();
+        let flag = format!("--freq-pull={bad}");
+        args.extend_from_slice(&[&flag, "-o", s(&out)]);
+        let output = run(&args);
+        assert_clean_failure(&output, 2, &flag, Some((&out, PRECIOUS)));
+    }
+}

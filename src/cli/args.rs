@@ -398,9 +398,10 @@ pub struct CalibrationArgs {
           requires_all = ["tone_freq", "freq_pull"])]
     pub pm_depth: Option<f64>,
 
-    /// Frequency pull G/2π of the cavity in Hz per metre (with --pm-depth).
-    #[arg(long, value_name = "HZ_PER_M", value_parser = parse_positive,
-          requires_all = ["tone_freq", "pm_depth"])]
+    /// Frequency pull G/2π of the cavity in Hz per metre (with --pm-depth). A signed G
+    /// (often quoted negative) is accepted: only |G| enters the calibration; 0 is refused.
+    #[arg(long, value_name = "HZ_PER_M", value_parser = parse_nonzero_finite,
+          allow_negative_numbers = true, requires_all = ["tone_freq", "pm_depth"])]
     pub freq_pull: Option<f64>,
 
     /// Bath temperature in kelvin: calibrates by equipartition on the mode (needs
@@ -758,7 +759,8 @@ fn parse_at_least_one(text: &str) -> Result<f64, String> {
     parse_where(text, |v| v >= 1.0, "must be at least 1")
 }
 
-/// A finite number ≠ 0 (volts per unit may be negative: an inverting amplifier).
+/// A finite number ≠ 0 (volts per unit may be negative: an inverting amplifier; the
+/// frequency pull G may be quoted signed).
 fn parse_nonzero_finite(text: &str) -> Result<f64, String> {
     parse_number(text).and_then(|v| {
         if v != 0.0 {
