@@ -740,6 +740,14 @@ pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
                 pm(m.variance_m2, m.variance_m2_uncertainty),
             );
             row(ui, "x_zpf (m)", pm(q.x_zpf_m, None));
+            // Integrated rms over the fit band (report.rms), in m when the axis is.
+            if let Some(r) = report.as_ref().and_then(|r| r.rms.as_ref()) {
+                let (label, value) = crate::model::format::band_rms_readout(
+                    r,
+                    crate::model::state::unit_is_displacement(state.unit),
+                );
+                row(ui, &label, value);
+            }
             row(
                 ui,
                 "χ²_red",
