@@ -1632,9 +1632,9 @@ fn rms_case_args(case: &serde_json::Value) -> Vec<String> {
         "--overlap".into(),
         case["overlap"].to_string(),
         "--window".into(),
-        case["window"].as_str().unwrap().into(),
+        case["window"].as_str().expect("window name").into(),
         "--detrend".into(),
-        case["detrend"].as_str().unwrap().into(),
+        case["detrend"].as_str().expect("detrend name").into(),
     ]
 }
 
