@@ -9,7 +9,7 @@ pub mod cross;
 
 use serde::{Deserialize, Serialize};
 
-use crate::dsp::Spectrum;
+use crate::dsp::{Spectrum, units};
 use crate::physics::calibration::{self, Calibration, CalibrationMethod, ToneOptions, ToneReading};
 use crate::physics::fit::{self, FitOptions, ModeFit};
 use crate::physics::oscillator::Oscillator;
@@ -57,6 +57,9 @@ pub struct AnalysisOptions {
     pub reference_peaks_hz: Vec<f64>,
     /// Fit a linear slope of the background under the mode.
     pub sloped_background: bool,
+    /// `--rms-band LO:HI` (Hz): band of the integrated rms (`rms.*`). `None`: the rms over
+    /// `mode_band_hz` (with a carrier: over both sideband bands, carrier ± the band).
+    pub rms_band_hz: Option<(f64, f64)>,
 }
 
 /// Welch settings as reported.
@@ -186,7 +189,9 @@ pub struct QuantumReport {
     pub sql_psd_at_resonance_m2_per_hz: Option<f64>,
     /// Bose–Einstein occupancy of the bath at `--bath-temperature`.
     pub bath_occupancy: Option<f64>,
-    /// Classical thermal peak 4k_BTQ/(mΩ_m³) at the bath temperature, m²/Hz.
+    /// Thermal peak at the bath temperature, symmetrised quantum form (METHODS.md §2b):
+    /// 2ħ coth(ħΩ_m/2k_BT) Im χ(Ω_m) = 4 x_zpf²(2n̄+1)/Γ_m, m²/Hz (the classical
+    /// 4k_BTQ/(mΩ_m³) is its k_BT ≫ ħΩ_m limit).
     pub thermal_peak_psd_at_bath_m2_per_hz: Option<f64>,
     /// The effective mass used (`--mass`), kg.
     pub mass_kg: Option<f64>,
@@ -256,6 +261,24 @@ pub struct PeakReport {
     pub new_since_reference: Option<bool>,
 }
 
+/// Integrated rms over a band (BRIEF.md "units"): `√(Σ_{lo ≤ f_k ≤ hi} PSD_k Δf)`, every bin
+/// whose centre lies in the closed band, the DC and Nyquist bins with their one-sided factor 1
+/// (so the whole span gives the record's variance; [`crate::dsp::units::band_rms`]).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct RmsReport {
+    /// The band [lo, hi] in Hz: `--rms-band`, else the mode band (with `--carrier`: offsets
+    /// from the carrier, the rms then being over carrier ± [lo, hi]).
+    pub band_hz: [f64; 2],
+    /// Where the band came from: `"rms-band"`, `"mode-band"` or `"sideband-bands"`.
+    pub source: String,
+    /// Number of bins summed.
+    pub bins: usize,
+    /// Rms voltage in the band, V.
+    pub v: f64,
+    /// Rms displacement in the band, m (`calibration.m_per_v` × `v`); null uncalibrated.
+    pub m: Option<f64>,
+}
+
 /// The whole `analyze` output.
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
 pub struct Report {
@@ -273,6 +296,9 @@ pub struct Report {
     pub sidebands: Option<SidebandReport>,
     /// Stray resonances.
     pub peaks: Vec<PeakReport>,
+    /// Integrated rms over `--rms-band` or the mode band; absent without either.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub rms: Option<RmsReport>,
     /// Why keys are null, and caveats (classical laser noise, resolution, …).
     pub notes: Vec<String>,
     /// Problems with the input (skipped segments, non-finite samples, truncation).
@@ -455,6 +481,9 @@ pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report,
         }
     }
 
+    // --- Band rms ---
+    report.rms = band_rms(spectrum, options, cal.as_ref());
+
     // --- Quantum references ---
     fill_quantum(&mut report, mode_fit.as_ref(), cal.as_ref(), options);
 
@@ -510,6 +539,61 @@ pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report,
 
     sanitize(&mut report);
     Ok(report)
+}
+
+/// The `rms.*` section: over `--rms-band`, else over the mode band. With `--carrier` the mode
+/// band holds offsets from the carrier, so the rms is over both sideband bands,
+/// carrier ± [lo, hi] (bins counted once; `source` = `sideband-bands`).
+fn band_rms(
+    spectrum: &Spectrum,
+    options: &AnalysisOptions,
+    cal: Option<&Calibration>,
+) -> Option<RmsReport> {
+    let (band, source, ranges) = match (options.rms_band_hz, options.mode_band_hz) {
+        (Some(b), _) => (
+            b,
+            "rms-band",
+            vec![units::band_bins(spectrum, b.0, b.1).ok()?],
+        ),
+        (None, Some(b)) => match options.carrier_hz {
+            None => (
+                b,
+                "mode-band",
+                vec![units::band_bins(spectrum, b.0, b.1).ok()?],
+            ),
+            Some(fc) => {
+                let lower = units::band_bins(spectrum, (fc - b.1).max(0.0), fc - b.0).ok();
+                let upper = units::band_bins(spectrum, fc + b.0, fc + b.1).ok();
+                match (lower, upper) {
+                    (Some(l), Some(u)) if l.1 >= u.0 => (b, "sideband-bands", vec![(l.0, u.1)]),
+                    (l, u) => (
+                        b,
+                        "sideband-bands",
+                        l.into_iter().chain(u).collect::<Vec<_>>(),
+                    ),
+                }
+            }
+        },
+        _ => return None,
+    };
+    if ranges.is_empty() {
+        return None;
+    }
+    let mut sum = 0.0;
+    let mut bins = 0;
+    for (first, last) in ranges {
+        let part = spectrum.psd_v2_per_hz.get(first..=last)?;
+        sum += part.iter().sum::<f64>();
+        bins += part.len();
+    }
+    let v = (sum * spectrum.resolution_hz).max(0.0).sqrt();
+    Some(RmsReport {
+        band_hz: [band.0, band.1],
+        source: source.to_string(),
+        bins,
+        v,
+        m: cal.map(|c| c.m_per_v.value * v).filter(|m| m.is_finite()),
+    })
 }
 
 pub(crate) fn input(e: PhysicsError) -> AnalysisError {
@@ -636,6 +720,24 @@ pub(crate) fn validate(
         }
     } else if options.lo_above.is_some() {
         // Harmless, but say nothing: --lo-side alone has no effect.
+    }
+    if let Some((lo, hi)) = options.rms_band_hz {
+        if !(lo.is_finite() && hi.is_finite() && lo >= 0.0 && lo < hi) {
+            return Err(AnalysisError::Input(format!(
+                "--rms-band must be LO:HI in Hz with 0 <= LO < HI, got {lo}:{hi}"
+            )));
+        }
+        let half_rate = 0.5 * spectrum.sample_rate_hz;
+        if hi > half_rate {
+            return Err(AnalysisError::Input(format!(
+                "--rms-band {}:{} Hz reaches above the Nyquist frequency {} Hz",
+                crate::acquire::compact_number(lo),
+                crate::acquire::compact_number(hi),
+                crate::acquire::compact_number(half_rate)
+            )));
+        }
+        units::band_rms(spectrum, lo, hi)
+            .map_err(|e| AnalysisError::Input(format!("--rms-band: {e}")))?;
     }
     if let Some((lo, hi)) = options.mode_band_hz {
         if !(lo.is_finite() && hi.is_finite() && lo < hi) {
@@ -1144,6 +1246,13 @@ pub(crate) fn sanitize(report: &mut Report) {
             "sidebands.imbalance_correction_uncertainty",
             &mut s.imbalance_correction_uncertainty,
         );
+    }
+    if report.rms.as_ref().is_some_and(|r| !r.v.is_finite()) {
+        report.rms = None;
+        bad.push("rms.v");
+    }
+    if let Some(r) = &mut report.rms {
+        fix(&mut bad, "rms.m", &mut r.m);
     }
     let before = report.peaks.len();
     report.peaks.retain(|p| {

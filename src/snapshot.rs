@@ -298,36 +298,79 @@ pub fn iso8601_utc(time: SystemTime) -> String {
 /// An I/O error, or [`io::ErrorKind::InvalidData`] for a non-finite value or calibration
 /// (never written).
 pub fn write_spectrum_csv<W: Write>(
-    mut writer: W,
+    writer: W,
     spectrum: &Spectrum,
     m_per_v: Option<f64>,
 ) -> io::Result<()> {
+    write_spectrum_csv_with(writer, spectrum, m_per_v, false)
+}
+
+/// [`write_spectrum_csv`], with `cumulative_rms` also the columns `cumulative_rms_v` (and
+/// `cumulative_rms_m` = `m_per_v × cumulative_rms_v` when calibrated) after the others:
+/// `√(Σ_{j ≤ k} PSD_j Δf)`, the rms of everything at and below f_k, DC bin included, rising
+/// to the total rms at Nyquist ([`crate::dsp::units::cumulative_rms`], from low frequency).
+///
+/// # Errors
+/// As [`write_spectrum_csv`].
+pub fn write_spectrum_csv_with<W: Write>(
+    mut writer: W,
+    spectrum: &Spectrum,
+    m_per_v: Option<f64>,
+    cumulative_rms: bool,
+) -> io::Result<()> {
     let bad = |what: String| io::Error::new(io::ErrorKind::InvalidData, what);
     let scale = match m_per_v {
-        Some(c) if c.is_finite() && c > 0.0 => Some(c * c),
+        Some(c) if c.is_finite() && c > 0.0 => Some(c),
         Some(c) => return Err(bad(format!("calibration {c} m/V is not a positive number"))),
         None => None,
     };
-    writer.write_all(if scale.is_some() {
-        b"frequency_hz,psd_v2_per_hz,psd_m2_per_hz\n"
-    } else {
-        b"frequency_hz,psd_v2_per_hz\n"
-    })?;
+    let cumulative = cumulative_rms.then(|| {
+        crate::dsp::units::cumulative_rms(spectrum, crate::dsp::units::Cumulation::FromLowFrequency)
+    });
+    let mut header = String::from("frequency_hz,psd_v2_per_hz");
+    if scale.is_some() {
+        header.push_str(",psd_m2_per_hz");
+    }
+    if cumulative.is_some() {
+        header.push_str(",cumulative_rms_v");
+        if scale.is_some() {
+            header.push_str(",cumulative_rms_m");
+        }
+    }
+    header.push('\n');
+    writer.write_all(header.as_bytes())?;
+    let mut line = String::new();
     for (k, &p) in spectrum.psd_v2_per_hz.iter().enumerate() {
+        use std::fmt::Write as _;
         let f = spectrum.frequency_hz(k);
         if !(f.is_finite() && p.is_finite()) {
             return Err(bad(format!("bin {k} is not finite (f = {f}, psd = {p})")));
         }
-        match scale {
-            Some(c2) => {
-                let m = p * c2;
-                if !m.is_finite() {
-                    return Err(bad(format!("bin {k}: calibrated value overflows")));
-                }
-                writeln!(writer, "{f:?},{p:?},{m:?}")?;
+        line.clear();
+        let _ = write!(line, "{f:?},{p:?}");
+        if let Some(c) = scale {
+            let m = p * (c * c);
+            if !m.is_finite() {
+                return Err(bad(format!("bin {k}: calibrated value overflows")));
             }
-            None => writeln!(writer, "{f:?},{p:?}")?,
+            let _ = write!(line, ",{m:?}");
         }
+        if let Some(rms) = &cumulative {
+            let v = rms.get(k).copied().unwrap_or(f64::NAN);
+            if !v.is_finite() {
+                return Err(bad(format!("bin {k}: cumulative rms is not finite")));
+            }
+            let _ = write!(line, ",{v:?}");
+            if let Some(c) = scale {
+                let m = v * c;
+                if !m.is_finite() {
+                    return Err(bad(format!("bin {k}: calibrated cumulative rms overflows")));
+                }
+                let _ = write!(line, ",{m:?}");
+            }
+        }
+        line.push('\n');
+        writer.write_all(line.as_bytes())?;
     }
     writer.flush()
 }

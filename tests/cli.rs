@@ -1562,3 +1562,291 @@ fn a_source_that_ends_before_k_averages_says_so() {
     assert_eq!(stderr.lines().count(), 2, "{stderr}");
     assert_eq!(read_csv(&out).rows.len(), 1025);
 }
+
+/// Issue 10: G is often quoted signed. `--freq-pull -G` (both `--freq-pull -1e18` and
+/// `--freq-pull=-1e18`) calibrates exactly as `+G`, because x_cal,pk = β f_mod/|G/2π|
+/// (METHODS.md §5b; Gorodetsky et al., Opt. Express 18, 23236 (2010)); 0 and non-finite
+/// values stay one-line errors with exit status 2.
+#[test]
+fn a_negative_freq_pull_calibrates_as_its_absolute_value() {
+    let dir = tempfile::tempdir().unwrap();
+    let wav = Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-streams/thermal.wav");
+    let out = dir.path().join("pull.json");
+    let common = [
+        "analyze",
+        s(&wav),
+        "--segment",
+        "16384",
+        "--mode-band",
+        "85000:87200",
+        "--tone-freq",
+        "89000",
+        "--pm-depth",
+        "1e-3",
+    ];
+    let m_per_v = |pull: &[&str]| -> f64 {
+        let mut args = common.to_vec();
+        args.extend_from_slice(pull);
+        args.extend_from_slice(&["-q", "-o", s(&out)]);
+        let output = run(&args);
+        assert_success(&output, &format!("{pull:?}"));
+        let v = read_json(&out);
+        assert_eq!(v["calibration"]["method"], "tone", "{v}");
+        v["calibration"]["m_per_v"].as_f64().unwrap()
+    };
+    let plus = m_per_v(&["--freq-pull", "1e18"]);
+    assert!(plus.is_finite() && plus > 0.0);
+    assert_eq!(m_per_v(&["--freq-pull", "-1e18"]), plus);
+    assert_eq!(m_per_v(&["--freq-pull=-1e18"]), plus);
+    // The help says how a signed G is read.
+    let help = stdout(&run(&["analyze", "--help"]));
+    assert!(help.contains("|G|"), "{help}");
+    for bad in ["0", "-0", "nan", "inf", "-inf", "fast"] {
+        fs::write(&out, PRECIOUS).unwrap();
+        let mut args = common.to_vec();
+        let flag = format!("--freq-pull={bad}");
+        args.extend_from_slice(&[&flag, "-o", s(&out)]);
+        let output = run(&args);
+        assert_clean_failure(&output, 2, &flag, Some((&out, PRECIOUS)));
+    }
+}
+
+// ---------------------------------------------------------------- band and cumulative rms
+
+/// tests/data/rms/rms_refs.json (tests/reference/make_rms_refs.py, numpy 2.4.6, scipy 1.17.1).
+fn rms_refs() -> serde_json::Value {
+    read_json(&Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/rms/rms_refs.json"))
+}
+
+/// The Welch test record, with the Welch options of one reference case.
+fn rms_case_args(case: &serde_json::Value) -> Vec<String> {
+    let input = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/welch/input.f64");
+    vec![
+        s(&input).to_string(),
+        "--sample-format".into(),
+        "f64".into(),
+        "--rate".into(),
+        "2000".into(),
+        "--segment".into(),
+        case["segment"].to_string(),
+        "--overlap".into(),
+        case["overlap"].to_string(),
+        "--window".into(),
+        case["window"].as_str().expect("window name").into(),
+        "--detrend".into(),
+        case["detrend"].as_str().expect("detrend name").into(),
+    ]
+}
+
+fn assert_rel(a: f64, b: f64, rel: f64, what: &str) {
+    assert!(
+        (a - b).abs() <= rel * b.abs(),
+        "{what}: {a:e} vs {b:e} (rel {:.2e})",
+        ((a - b) / b).abs()
+    );
+}
+
+/// Issue 10 / BRIEF "units": `spectrum --cumulative-rms` adds cumulative_rms_v (and, when
+/// calibrated, cumulative_rms_m) after the contract's columns, √(Σ_{j≤k} PSD_j Δf) rising from
+/// DC; checked against numpy's sqrt(cumsum(psd)·df) on scipy.signal.welch of the committed
+/// Welch record to ≤ 1e-9 relative. The last value is the total rms (Parseval, METHODS §1).
+#[test]
+fn rms_cumulative_column_matches_numpy() {
+    let dir = tempfile::tempdir().unwrap();
+    let refs = rms_refs();
+    for case in refs["cases"].as_array().unwrap() {
+        let out = dir.path().join("cum.csv");
+        let mut args: Vec<String> = vec!["spectrum".into()];
+        args.extend(rms_case_args(case));
+        args.extend(["--cumulative-rms".into(), "-o".into(), s(&out).into()]);
+        let argv: Vec<&str> = args.iter().map(String::as_str).collect();
+        assert_success(&run(&argv), "spectrum --cumulative-rms");
+        let csv = read_csv(&out);
+        assert_eq!(
+            csv.headers,
+            ["frequency_hz", "psd_v2_per_hz", "cumulative_rms_v"]
+        );
+        let want: Vec<f64> = case["cumulative_rms_v"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_f64().unwrap())
+            .collect();
+        let got = csv.column("cumulative_rms_v");
+        assert_eq!(got.len(), want.len());
+        for (k, (a, b)) in got.iter().zip(&want).enumerate() {
+            assert_rel(*a, *b, 1e-9, &format!("{} bin {k}", case["window"]));
+        }
+        assert!(got.windows(2).all(|w| w[1] >= w[0]), "rising");
+        // Calibrated: the contract columns keep their names and order; the rms in metres
+        // is m/V × the rms in volts.
+        let c = 2.5e-9;
+        let mut cal = argv.clone();
+        cal.extend(["--m-per-v", "2.5e-9"]);
+        assert_success(&run(&cal), "spectrum --cumulative-rms --m-per-v");
+        let csv = read_csv(&out);
+        assert_eq!(
+            csv.headers,
+            [
+                "frequency_hz",
+                "psd_v2_per_hz",
+                "psd_m2_per_hz",
+                "cumulative_rms_v",
+                "cumulative_rms_m"
+            ]
+        );
+        for (m, b) in csv.column("cumulative_rms_m").iter().zip(&want) {
+            assert_rel(*m, c * b, 1e-9, "cumulative_rms_m");
+        }
+    }
+}
+
+/// `analyze --rms-band LO:HI`: rms.v = √(Σ PSD_k Δf) over the bins with LO ≤ f_k ≤ HI against
+/// numpy on scipy's Welch PSD (≤ 1e-9 relative), the bin count, rms.m = m/V × rms.v; without
+/// the option the rms is over --mode-band (rms.source = "mode-band"). The 100–150 Hz band
+/// holds the record's tone of amplitude 2 (rms √2) over unit-variance white noise
+/// (2 × 50 Hz / 2000 Hz of it): 1.43 V, as Parseval says (common practice).
+#[test]
+fn rms_band_matches_numpy() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("rms.json");
+    let refs = rms_refs();
+    for case in refs["cases"].as_array().unwrap() {
+        for band in case["bands"].as_array().unwrap() {
+            let lo = band["band_hz"][0].as_f64().unwrap();
+            let hi = band["band_hz"][1].as_f64().unwrap();
+            let want = band["rms_v"].as_f64().unwrap();
+            let text = format!("{lo:?}:{hi:?}");
+            let mut args: Vec<String> = vec!["analyze".into()];
+            args.extend(rms_case_args(case));
+            args.extend([
+                "--rms-band".into(),
+                text.clone(),
+                "--m-per-v".into(),
+                "2.5e-9".into(),
+                "-q".into(),
+                "-o".into(),
+                s(&out).into(),
+            ]);
+            let argv: Vec<&str> = args.iter().map(String::as_str).collect();
+            assert_success(&run(&argv), &text);
+            let v = read_json(&out);
+            let r = &v["rms"];
+            assert_rel(r["v"].as_f64().unwrap(), want, 1e-9, &text);
+            assert_rel(r["m"].as_f64().unwrap(), 2.5e-9 * want, 1e-9, &text);
+            assert_eq!(r["bins"], band["bins"], "{text}");
+            assert_eq!(r["band_hz"][0].as_f64(), Some(lo));
+            assert_eq!(r["band_hz"][1].as_f64(), Some(hi));
+            assert_eq!(r["source"], "rms-band");
+        }
+    }
+    let case = &refs["cases"][0];
+    let want = case["bands"][0]["rms_v"].as_f64().unwrap();
+    assert!((want - 2.05f64.sqrt()).abs() < 0.02, "{want}");
+    // Uncalibrated, over the mode band.
+    let mut args: Vec<String> = vec!["analyze".into()];
+    args.extend(rms_case_args(case));
+    args.extend(["--mode-band".into(), "100:150".into()]);
+    args.extend(["-q".into(), "-o".into(), s(&out).into()]);
+    let argv: Vec<&str> = args.iter().map(String::as_str).collect();
+    assert_success(&run(&argv), "mode band rms");
+    let v = read_json(&out);
+    assert_eq!(v["rms"]["source"], "mode-band", "{v}");
+    assert_rel(v["rms"]["v"].as_f64().unwrap(), want, 1e-9, "mode band");
+    assert!(v["rms"]["m"].is_null(), "{v}");
+    // Heterodyne: the mode band holds offsets, so the rms is over both sideband bands,
+    // carrier ± [100, 150] = 350–400 Hz and 600–650 Hz (numpy: the two band sums added).
+    let band_v = |lo: f64| {
+        case["bands"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|b| b["band_hz"][0].as_f64() == Some(lo))
+            .unwrap()["rms_v"]
+            .as_f64()
+            .unwrap()
+    };
+    let both = band_v(350.0).hypot(band_v(600.0));
+    let mut het = argv.clone();
+    het.extend(["--carrier", "500", "--lo-side", "above"]);
+    assert_success(&run(&het), "heterodyne band rms");
+    let v = read_json(&out);
+    assert_eq!(v["rms"]["source"], "sideband-bands", "{v}");
+    assert_eq!(v["rms"]["bins"], 52, "{v}");
+    assert_rel(
+        v["rms"]["v"].as_f64().unwrap(),
+        both,
+        1e-9,
+        "sideband bands",
+    );
+    // Neither band: no rms section.
+    let argv: Vec<&str> = argv
+        .iter()
+        .copied()
+        .filter(|a| *a != "--mode-band" && *a != "100:150")
+        .collect();
+    assert_success(&run(&argv), "no band");
+    assert!(read_json(&out).get("rms").is_none());
+}
+
+/// Bad bands and unsupported combinations: one error line, exit 2, the output kept.
+#[test]
+fn rms_bad_input_fails_cleanly() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("rms.json");
+    let refs = rms_refs();
+    let base = rms_case_args(&refs["cases"][0]);
+    let bad = [
+        "150:100",
+        "100:100",
+        "-1:10",
+        "100:2000",
+        "abc:10",
+        "10",
+        "100:150:200",
+        "nan:10",
+        "0.1:0.2",
+        ":",
+    ];
+    for band in bad {
+        fs::write(&out, PRECIOUS).unwrap();
+        let mut args: Vec<String> = vec!["analyze".into()];
+        args.extend(base.iter().cloned());
+        args.extend([format!("--rms-band={band}"), "-o".into(), s(&out).into()]);
+        let argv: Vec<&str> = args.iter().map(String::as_str).collect();
+        assert_clean_failure(&run(&argv), 2, band, Some((&out, PRECIOUS)));
+    }
+    let mut args: Vec<&str> = vec!["analyze"];
+    args.extend(base.iter().map(String::as_str));
+    args.extend([
+        "--channels",
+        "2",
+        "--cross-channel",
+        "1",
+        "--rms-band",
+        "100:150",
+        "-o",
+        s(&out),
+    ]);
+    fs::write(&out, PRECIOUS).unwrap();
+    assert_clean_failure(&run(&args), 2, "rms with cross", Some((&out, PRECIOUS)));
+    let csv = dir.path().join("cum.csv");
+    fs::write(&csv, PRECIOUS).unwrap();
+    let mut args: Vec<&str> = vec!["spectrum"];
+    args.extend(base.iter().map(String::as_str));
+    args.extend([
+        "--channels",
+        "2",
+        "--cross-channel",
+        "1",
+        "--cumulative-rms",
+        "-o",
+        s(&csv),
+    ]);
+    assert_clean_failure(
+        &run(&args),
+        2,
+        "cumulative with cross",
+        Some((&csv, PRECIOUS)),
+    );
+}

@@ -162,4 +162,23 @@ fn demo_window_end_to_end() {
     );
     assert!(h.get_all_by_label_contains("cannot load").count() >= 1);
     assert_eq!(h.state().snapshots().len(), 2);
+
+    // Issue 10: the Mode panel reads the integrated rms over the fit band (report.rms), in
+    // volts on a voltage axis and in metres on a displacement axis once calibrated.
+    assert!(
+        step_until(&mut h, Duration::from_secs(60), |a| a
+            .live()
+            .frame
+            .as_ref()
+            .and_then(|f| f.report.as_ref())
+            .is_some_and(|r| r.rms.as_ref().is_some_and(|x| x.m.is_some()))),
+        "no calibrated band rms in the demo's report"
+    );
+    h.run_steps(2);
+    assert_eq!(h.state().state().unit, DensityUnit::DbV2PerHz);
+    h.get_by_label("rms in fit band (V)");
+    h.get_by_label("m/√Hz").click();
+    h.run_steps(2);
+    assert_eq!(h.state().state().unit, DensityUnit::MPerRtHz);
+    h.get_by_label("rms in fit band (m)");
 }

@@ -181,12 +181,21 @@ fn table_x_zpf_and_occupancy() {
 fn table_peaks_zero_point_and_sql() {
     let c = checks();
     let o = example();
-    let th = quantum::thermal_peak_psd(&o, 4.0);
+    // The §7 table's thermal peak is the classical 4k_BTQ/(mΩ³); at 4 K and 1 MHz the
+    // reported (quantum, METHODS §2b) peak differs from it by (x coth x − 1) ≈ x²/3 ≈ 1e-5,
+    // x = ħΩ/2k_BT.
+    let th = quantum::classical_thermal_peak_psd(&o, 4.0);
     close(
         th,
         num(&c, "example.thermal_peak_m2_per_hz"),
         1e-12,
         "thermal peak",
+    );
+    close(
+        quantum::thermal_peak_psd(&o, 4.0),
+        th,
+        2e-5,
+        "quantum vs classical at 4 K",
     );
     sig4(th, 8.906e-25, "thermal peak vs METHODS §7");
     let formula = 4.0 * BOLTZMANN_J_PER_K * 4.0 * 1e5 / (1e-13 * o.omega_rad_s().powi(3));
@@ -232,6 +241,102 @@ fn table_peaks_zero_point_and_sql() {
     let t = occupancy::effective_temperature_k(1e6, 2.0).unwrap();
     close(t, num(&c, "example.t_eff_for_n2_k"), 1e-10, "T_eff(n̄=2)");
     sig4(t, 118.4e-6, "T_eff vs METHODS §7");
+}
+
+/// "Thermal at T" is the symmetrised quantum form (METHODS.md §2b, binding): the peak
+/// 2ħ coth(ħΩ_m/2k_BT) Im χ(Ω_m) equals 4 x_zpf²(2n̄+1)/Γ_m exactly, because
+/// Im χ(Ω_m) = 1/(mΓ_mΩ_m) (§2) and x_zpf² = ħ/(2mΩ_m) (§3), with n̄ = 1/(e^{ħΩ/k_BT} − 1)
+/// (Bose–Einstein, §4). Checked against that closed form, written here from the constants, at
+/// 30 µK and 600 kHz (ħΩ ≈ k_BT: the classical 4k_BTQ/(mΩ³) is 7 % low there), in the
+/// classical limit at 300 K, and at T → 0 (the zero-point peak 4 x_zpf²/Γ, §3). Then through
+/// `analyze`: the key quantum.thermal_peak_psd_at_bath_m2_per_hz of a 600 kHz line.
+#[test]
+fn thermal_at_bath_is_the_symmetrised_quantum_form() {
+    let (m, f, q) = (2e-14, 600e3, 1e5);
+    let o = Oscillator::with_quality_factor(m, f, q).unwrap();
+    let om = 2.0 * PI * f;
+    let gamma = om / q;
+    let x2 = HBAR_J_S / (2.0 * m * om);
+    let n_be = |t: f64| 1.0 / (HBAR_J_S * om / (BOLTZMANN_J_PER_K * t)).exp_m1();
+    let closed = |t: f64| 4.0 * x2 * (2.0 * n_be(t) + 1.0) / gamma;
+    for t in [30e-6, 1e-3, 4.0, 300.0] {
+        close(
+            quantum::thermal_peak_psd(&o, t),
+            closed(t),
+            1e-12,
+            "4x_zpf²(2n̄+1)/Γ",
+        );
+    }
+    // 30 µK, 600 kHz: ħΩ/k_BT = 0.960; classical/quantum = (2k_BT/ħΩ)/coth(ħΩ/2k_BT).
+    let t = 30e-6;
+    let ratio = quantum::classical_thermal_peak_psd(&o, t) / quantum::thermal_peak_psd(&o, t);
+    let y = HBAR_J_S * om / (2.0 * BOLTZMANN_J_PER_K * t);
+    close(ratio, y.tanh() / y, 1e-12, "classical/quantum");
+    assert!((0.92..0.94).contains(&ratio), "classical/quantum {ratio}");
+    // High T: the classical 4k_BTQ/(mΩ³) (Saulson 1990), to (x²/3) ≈ 8e-10 at 300 K.
+    let classical = 4.0 * BOLTZMANN_J_PER_K * 300.0 * q / (m * om.powi(3));
+    close(
+        quantum::thermal_peak_psd(&o, 300.0),
+        classical,
+        2e-9,
+        "classical limit",
+    );
+    // T → 0: the zero-point peak 4 x_zpf²/Γ = 2ħQ/(mΩ²).
+    for t in [1e-9, 0.0] {
+        close(
+            quantum::thermal_peak_psd(&o, t),
+            4.0 * x2 / gamma,
+            1e-12,
+            "T → 0",
+        );
+    }
+    // The report key, on a noise-free 600 kHz line of the quantum area at 30 µK (given m/V).
+    let area = x2 * (2.0 * n_be(t) + 1.0);
+    let (fs, n) = (2.0 * 1_048_576.0, 1usize << 20);
+    let df = fs / n as f64;
+    let psd = (0..=n / 2)
+        .map(|k| 1e-32 + oscillator::oscillator_psd(k as f64 * df, area, f, 60.0))
+        .collect();
+    let s = Spectrum {
+        sample_rate_hz: fs,
+        segment: n,
+        overlap: 0.0,
+        window: WindowKind::Rectangular,
+        detrend: Detrend::Mean,
+        averaging: Averaging::Linear,
+        averages: 1_000_000,
+        k_eff: 1e12,
+        resolution_hz: df,
+        enbw_hz: df,
+        psd_v2_per_hz: psd,
+    };
+    let opts = stillpoint::report::AnalysisOptions {
+        m_per_v: Some(1.0),
+        mass_kg: Some(m),
+        bath_temperature_k: Some(t),
+        mode_band_hz: Some((f - 600.0, f + 600.0)),
+        ..Default::default()
+    };
+    let r = stillpoint::report::analyze(&s, &opts).unwrap();
+    let fm = r.mode.frequency_hz.unwrap();
+    let g = 2.0 * PI * r.mode.linewidth_hz.unwrap();
+    let om_fit = 2.0 * PI * fm;
+    let n_fit = 1.0 / (HBAR_J_S * om_fit / (BOLTZMANN_J_PER_K * t)).exp_m1();
+    let expected = 4.0 * HBAR_J_S / (2.0 * m * om_fit) * (2.0 * n_fit + 1.0) / g;
+    let reported = r.quantum.thermal_peak_psd_at_bath_m2_per_hz.unwrap();
+    close(
+        reported,
+        expected,
+        1e-9,
+        "quantum.thermal_peak_psd_at_bath_m2_per_hz",
+    );
+    // …and it is the level of the line itself (peak 2A/πγ of the quantum area, §2).
+    close(
+        reported,
+        r.mode.peak_psd_m2_per_hz.unwrap(),
+        1e-3,
+        "thermal peak = line peak",
+    );
 }
 
 /// Curves against scipy at DC, off resonance, near resonance and far above.

@@ -23,6 +23,13 @@ pub fn run(args: &AnalyzeArgs) -> Result<ExitCode> {
     let mut options =
         config::analysis_options(&args.calibration, &args.heterodyne, args.peak_threshold)?;
     options.reference_peaks_hz = args.reference_peaks.clone();
+    options.rms_band_hz = args.rms_band;
+    if args.rms_band.is_some() && args.source.cross_channel.is_some() {
+        return Err(InputError(
+            "--rms-band works on one channel: give it without --cross-channel".into(),
+        )
+        .into());
+    }
     if let Some(path) = &args.reference {
         options.reference_peaks_hz.extend(reference_peaks(path)?);
     }
@@ -229,6 +236,17 @@ fn write_summary(out: &mut dyn Write, report: &Report) -> io::Result<()> {
             ""
         )
     )?;
+    if let Some(r) = &report.rms {
+        let m = r.m.map_or(String::new(), |m| format!(" = {} m", sig(m, 6)));
+        writeln!(
+            out,
+            "band rms               {} V{m} ({}–{} Hz, {})",
+            sig(r.v, 6),
+            crate::acquire::compact_number(r.band_hz[0]),
+            crate::acquire::compact_number(r.band_hz[1]),
+            r.source
+        )?;
+    }
     writeln!(out, "stray peaks            {}", report.peaks.len())?;
     if let Some(c) = &report.cross {
         writeln!(

@@ -398,9 +398,10 @@ pub struct CalibrationArgs {
           requires_all = ["tone_freq", "freq_pull"])]
     pub pm_depth: Option<f64>,
 
-    /// Frequency pull G/2π of the cavity in Hz per metre (with --pm-depth).
-    #[arg(long, value_name = "HZ_PER_M", value_parser = parse_positive,
-          requires_all = ["tone_freq", "pm_depth"])]
+    /// Frequency pull G/2π of the cavity in Hz per metre (with --pm-depth). A signed G
+    /// (often quoted negative) is accepted: only |G| enters the calibration; 0 is refused.
+    #[arg(long, value_name = "HZ_PER_M", value_parser = parse_nonzero_finite,
+          allow_negative_numbers = true, requires_all = ["tone_freq", "pm_depth"])]
     pub freq_pull: Option<f64>,
 
     /// Bath temperature in kelvin: calibrates by equipartition on the mode (needs
@@ -510,6 +511,11 @@ pub struct SpectrumArgs {
     /// Calibration options (adds the psd_m2_per_hz column).
     #[command(flatten)]
     pub calibration: CalibrationArgs,
+    /// Add the column cumulative_rms_v (and cumulative_rms_m when calibrated) after the
+    /// others: √(Σ_{j ≤ k} PSD_j Δf), the rms of everything at and below each bin's
+    /// frequency (DC bin included), rising to the total rms at Nyquist.
+    #[arg(long, help_heading = "Output")]
+    pub cumulative_rms: bool,
     /// Output CSV file (`-` for stdout). Written atomically: an existing file is replaced
     /// only by a complete, successful result.
     #[arg(short, long, value_name = "OUT.csv", help_heading = "Output")]
@@ -531,6 +537,12 @@ pub struct AnalyzeArgs {
     /// Heterodyne options.
     #[command(flatten)]
     pub heterodyne: HeterodyneArgs,
+    /// Integrated rms over the band LO:HI in Hz (0 <= LO < HI <= Nyquist): rms.v =
+    /// √(Σ PSD_k Δf) over the bins whose frequency lies in the band, in V, and rms.m in m when
+    /// calibrated. Without it, rms.* is over --mode-band (with --carrier: over both sideband
+    /// bands, carrier ± the band).
+    #[arg(long, value_name = "LO:HI", value_parser = parse_band, help_heading = "Band rms")]
+    pub rms_band: Option<(f64, f64)>,
     /// Stray-peak threshold: height over the robust noise floor in dB (default 10 dB).
     #[arg(long, value_name = "DB", value_parser = parse_positive, help_heading = "Stray peaks")]
     pub peak_threshold: Option<f64>,
@@ -758,7 +770,8 @@ fn parse_at_least_one(text: &str) -> Result<f64, String> {
     parse_where(text, |v| v >= 1.0, "must be at least 1")
 }
 
-/// A finite number ≠ 0 (volts per unit may be negative: an inverting amplifier).
+/// A finite number ≠ 0 (volts per unit may be negative: an inverting amplifier; the
+/// frequency pull G may be quoted signed).
 fn parse_nonzero_finite(text: &str) -> Result<f64, String> {
     parse_number(text).and_then(|v| {
         if v != 0.0 {

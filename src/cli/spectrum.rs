@@ -1,5 +1,6 @@
 //! `stillpoint spectrum`: the Welch PSD of a source as CSV (`frequency_hz`,
-//! `psd_v2_per_hz`, and with a calibration `psd_m2_per_hz`), written atomically.
+//! `psd_v2_per_hz`, and with a calibration `psd_m2_per_hz`; with `--cumulative-rms` also
+//! `cumulative_rms_v` and `cumulative_rms_m`), written atomically.
 
 use std::process::ExitCode;
 
@@ -18,6 +19,12 @@ use super::{InputError, note, output, pipeline, warn};
 /// Bad options or input, a failed calibration, an unwritable output.
 pub fn run(args: &SpectrumArgs) -> Result<ExitCode> {
     if args.source.cross_channel.is_some() {
+        if args.cumulative_rms {
+            return Err(InputError(
+                "--cumulative-rms works on one channel: give it without --cross-channel".into(),
+            )
+            .into());
+        }
         return super::cross::run_spectrum(args);
     }
     let kind = config::calibration_kind(&args.calibration)?;
@@ -44,7 +51,7 @@ pub fn run(args: &SpectrumArgs) -> Result<ExitCode> {
         .into());
     }
     output::write_atomically(&args.output, |out| {
-        snapshot::write_spectrum_csv(out, &run.spectrum, m_per_v)
+        snapshot::write_spectrum_csv_with(out, &run.spectrum, m_per_v, args.cumulative_rms)
     })?;
     Ok(ExitCode::SUCCESS)
 }

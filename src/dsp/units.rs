@@ -87,8 +87,12 @@ impl DensityUnit {
     }
 }
 
-/// Bin range `[first, last]` whose centre frequencies lie in `[lo_hz, hi_hz]`.
-fn band_bins(spectrum: &Spectrum, lo_hz: f64, hi_hz: f64) -> Result<(usize, usize)> {
+/// Bin range `[first, last]` whose centre frequencies lie in `[lo_hz, hi_hz]`
+/// (first = ⌈lo/Δf⌉, last = ⌊hi/Δf⌋, clipped to the spectrum).
+///
+/// # Errors
+/// [`DspError::Band`] if the band is not two finite frequencies with lo ≤ hi, or holds no bin.
+pub fn band_bins(spectrum: &Spectrum, lo_hz: f64, hi_hz: f64) -> Result<(usize, usize)> {
     if !(lo_hz.is_finite() && hi_hz.is_finite() && lo_hz <= hi_hz) {
         return Err(DspError::Band(format!(
             "band must be two finite frequencies LO <= HI, got {lo_hz} Hz to {hi_hz} Hz"

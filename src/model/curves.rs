@@ -2,12 +2,15 @@
 //! from a fitted mode (METHODS.md §2–§3, all single-sided in f):
 //! fitted model B + A·(2/π) f_m² γ / [(f_m² − f²)² + γ² f²] (V²/Hz),
 //! zero-point spectrum 2ħ Im χ(Ω), SQL of the added noise 2ħ|χ(Ω)|, and the thermal
-//! expectation at bath temperature T, 2ħ coth(ħΩ/2k_BT) Im χ(Ω) (m²/Hz), with
+//! expectation at bath temperature T, 2ħ coth(ħΩ/2k_BT) Im χ(Ω) (m²/Hz, METHODS §2b), with
 //! χ(Ω) = 1/[m_eff(Ω_m² − Ω² − iΓ_mΩ)], Γ_m = 2πγ.
+//!
+//! The formulas live in [`crate::physics::quantum`] and [`crate::physics::oscillator`]; this
+//! module only evaluates them for drawing, so the window, `analyze` and the figure share one
+//! formula each.
 
-use std::f64::consts::PI;
-
-use crate::physics::constants::{BOLTZMANN_J_PER_K, HBAR_J_S};
+use crate::physics::oscillator::{self, Oscillator};
+use crate::physics::quantum;
 
 /// A mechanical mode as fitted, for drawing.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -19,54 +22,36 @@ pub struct ModeShape {
 }
 
 impl ModeShape {
-    /// (Ω_m² − Ω²)² + Γ²Ω² at frequency f.
-    fn denominator(self, f_hz: f64) -> f64 {
-        let om = 2.0 * PI * self.frequency_hz;
-        let o = 2.0 * PI * f_hz;
-        let g = 2.0 * PI * self.linewidth_hz;
-        (om * om - o * o).powi(2) + g * g * o * o
-    }
-
-    /// Im χ(Ω) = Γ Ω / (m [(Ω_m² − Ω²)² + Γ²Ω²]), m/N.
-    pub fn im_chi(self, f_hz: f64, mass_kg: f64) -> f64 {
-        let o = 2.0 * PI * f_hz;
-        let g = 2.0 * PI * self.linewidth_hz;
-        g * o / (mass_kg * self.denominator(f_hz))
-    }
-
-    /// |χ(Ω)| = 1 / (m √[(Ω_m² − Ω²)² + Γ²Ω²]), m/N.
-    pub fn abs_chi(self, f_hz: f64, mass_kg: f64) -> f64 {
-        1.0 / (mass_kg * self.denominator(f_hz).sqrt())
+    /// The oscillator of this shape and mass (not validated: a drawing of a bad fit shows
+    /// nothing rather than failing).
+    fn oscillator(self, mass_kg: f64) -> Oscillator {
+        Oscillator {
+            mass_kg,
+            frequency_hz: self.frequency_hz,
+            linewidth_hz: self.linewidth_hz,
+        }
     }
 
     /// The oscillator line of area `area` (any unit²) at f: A (2/π) f_m² γ / [(f_m² − f²)² +
     /// γ² f²] (per Hz).
     pub fn line(self, f_hz: f64, area: f64) -> f64 {
-        let fm = self.frequency_hz;
-        let g = self.linewidth_hz;
-        area * (2.0 / PI) * fm * fm * g / ((fm * fm - f_hz * f_hz).powi(2) + g * g * f_hz * f_hz)
+        oscillator::oscillator_psd(f_hz, area, self.frequency_hz, self.linewidth_hz)
     }
 
     /// Zero-point displacement spectrum 2ħ Im χ, m²/Hz.
     pub fn zero_point_m2_per_hz(self, f_hz: f64, mass_kg: f64) -> f64 {
-        2.0 * HBAR_J_S * self.im_chi(f_hz, mass_kg)
+        quantum::zero_point_psd_at(&self.oscillator(mass_kg), f_hz)
     }
 
     /// SQL of the added noise 2ħ|χ|, m²/Hz.
     pub fn sql_m2_per_hz(self, f_hz: f64, mass_kg: f64) -> f64 {
-        2.0 * HBAR_J_S * self.abs_chi(f_hz, mass_kg)
+        quantum::sql_psd_at(&self.oscillator(mass_kg), f_hz)
     }
 
-    /// Thermal (symmetrised, quantum) expectation 2ħ coth(ħΩ/2k_BT) Im χ at bath T, m²/Hz.
+    /// Thermal (symmetrised, quantum) expectation 2ħ coth(ħΩ/2k_BT) Im χ at bath T, m²/Hz
+    /// (METHODS.md §2b; [`quantum::quantum_thermal_psd_at`]).
     pub fn thermal_m2_per_hz(self, f_hz: f64, mass_kg: f64, temperature_k: f64) -> f64 {
-        let o = 2.0 * PI * f_hz;
-        let x = HBAR_J_S * o / (2.0 * BOLTZMANN_J_PER_K * temperature_k);
-        let coth = if x < 1e-6 {
-            1.0 / x + x / 3.0
-        } else {
-            1.0 / x.tanh()
-        };
-        2.0 * HBAR_J_S * coth * self.im_chi(f_hz, mass_kg)
+        quantum::quantum_thermal_psd_at(&self.oscillator(mass_kg), temperature_k, f_hz)
     }
 }
 
@@ -107,7 +92,10 @@ pub fn grid_around_mode(range_hz: (f64, f64), points: usize, mode: ModeShape) ->
 
 #[cfg(test)]
 mod tests {
+    use std::f64::consts::PI;
+
     use super::*;
+    use crate::physics::constants::{BOLTZMANN_J_PER_K, HBAR_J_S};
 
     // METHODS.md §7 invented example (values computed there with numpy, [N]):
     // m = 1e-13 kg, f_m = 1 MHz, Q = 1e5 (γ = 10 Hz), T = 4 K.
@@ -154,6 +142,27 @@ mod tests {
         assert!(rel(s, 1.0) < 3e-4, "{s}");
         // peak 2A/(πγ)
         assert!(rel(MODE.line(1e6, 1.0), 2.0 / (PI * 10.0)) < 1e-9);
+    }
+
+    #[test]
+    fn drawn_thermal_is_the_symmetrised_quantum_form() {
+        // METHODS.md §2b/§3/§4: at f_m, 2ħ coth(ħΩ/2k_BT) Im χ = 4 x_zpf²(2n̄+1)/Γ exactly
+        // (Im χ(Ω_m) = 1/(mΓΩ_m), x_zpf² = ħ/2mΩ_m, n̄ Bose–Einstein). 30 µK, 600 kHz:
+        // ħΩ ≈ k_BT, where the classical 4k_BT Im χ/Ω is ~7 % low.
+        let mode = ModeShape {
+            frequency_hz: 600e3,
+            linewidth_hz: 6.0,
+        };
+        let (m, t) = (2e-14, 30e-6);
+        let om = 2.0 * PI * 600e3;
+        let n = 1.0 / (HBAR_J_S * om / (BOLTZMANN_J_PER_K * t)).exp_m1();
+        let x2 = HBAR_J_S / (2.0 * m * om);
+        let gamma = 2.0 * PI * 6.0;
+        let expected = 4.0 * x2 * (2.0 * n + 1.0) / gamma;
+        let drawn = mode.thermal_m2_per_hz(600e3, m, t);
+        assert!(rel(drawn, expected) < 1e-12, "{drawn:e} vs {expected:e}");
+        let classical = 4.0 * BOLTZMANN_J_PER_K * t / (om * m * gamma * om);
+        assert!(classical / drawn < 0.94 && classical / drawn > 0.92);
     }
 
     #[test]

@@ -202,6 +202,29 @@ pub fn window_words(text: &str) -> String {
         .replace("keys are null", "values are not shown")
 }
 
+/// The band-rms readout of the mode panel: (label, value). In metres when the axis shows a
+/// displacement unit and the report is calibrated, else in volts. The band itself is the fit
+/// band the plot shades and the band fields show.
+pub fn band_rms_readout(
+    rms: &crate::report::RmsReport,
+    displacement_axis: bool,
+) -> (String, String) {
+    let (value, unit) = match rms.m {
+        Some(m) if displacement_axis => (m, "m"),
+        _ => (rms.v, "V"),
+    };
+    // The mode band, or in heterodyne the two sideband bands it places around the carrier.
+    let which = if rms.source == "rms-band" {
+        "band"
+    } else {
+        "fit band"
+    };
+    (
+        format!("rms in {which} ({unit})"),
+        format_significant(value, 4),
+    )
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -284,5 +307,27 @@ mod tests {
         assert_eq!(utc_file_stamp(1_700_000_000), "2023-11-14_22-13-20");
         assert_eq!(utc_file_stamp(951_782_400), "2000-02-29_00-00-00");
         assert_eq!(utc_file_stamp(4_102_444_799), "2099-12-31_23-59-59");
+    }
+
+    #[test]
+    fn band_rms_readout_follows_the_axis_unit() {
+        let r = crate::report::RmsReport {
+            band_hz: [85_000.0, 87_200.0],
+            source: "mode-band".into(),
+            bins: 10,
+            v: 2.5e-3,
+            m: Some(5e-12),
+        };
+        let (label, value) = band_rms_readout(&r, true);
+        assert!(
+            label.contains("fit band") && label.ends_with("(m)"),
+            "{label}"
+        );
+        assert_eq!(value, format_significant(5e-12, 4));
+        let (label, value) = band_rms_readout(&r, false);
+        assert!(label.ends_with("(V)"), "{label}");
+        assert_eq!(value, format_significant(2.5e-3, 4));
+        let uncalibrated = crate::report::RmsReport { m: None, ..r };
+        assert!(band_rms_readout(&uncalibrated, true).0.ends_with("(V)"));
     }
 }

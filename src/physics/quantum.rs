@@ -6,25 +6,30 @@ use super::constants::{BOLTZMANN_J_PER_K, HBAR_J_S};
 use super::oscillator::Oscillator;
 
 /// Classical thermal displacement PSD 4 k_B T Im χ(Ω)/Ω (m²/Hz) at one frequency
-/// (fluctuation–dissipation theorem, single-sided).
+/// (fluctuation–dissipation theorem, single-sided). The ħΩ ≪ k_BT limit of
+/// [`quantum_thermal_psd_at`]; what the program reports and draws is the quantum form.
 pub fn classical_thermal_psd_at(osc: &Oscillator, temperature_k: f64, frequency_hz: f64) -> f64 {
     4.0 * BOLTZMANN_J_PER_K * temperature_k * osc.im_susceptibility_over_omega(frequency_hz)
 }
 
 /// Symmetrised quantum thermal PSD 2ħ coth(ħΩ/2k_BT) Im χ(Ω) = 2ħ(2n̄+1) Im χ (m²/Hz),
-/// including the zero-point part. T = 0 gives the zero-point spectrum; Ω → 0 the classical
-/// limit (evaluated as 4 k_B T (Im χ/Ω)·x coth x with x = ħΩ/2k_BT, so it is finite at DC).
+/// including the zero-point part (METHODS.md §2b: the binding form of "thermal at T").
+/// T = 0 gives the zero-point spectrum 2ħ Im χ; ħΩ ≪ k_BT the classical 4k_BT Im χ/Ω.
+/// Evaluated as 4 k_B T (Im χ/Ω)·x coth x for x = ħΩ/2k_BT < 1 (finite at DC) and as
+/// 2ħΩ (Im χ/Ω)·coth x above (finite for any T > 0, however small).
 pub fn quantum_thermal_psd_at(osc: &Oscillator, temperature_k: f64, frequency_hz: f64) -> f64 {
     if temperature_k <= 0.0 {
         return zero_point_psd_at(osc, frequency_hz);
     }
     let omega = 2.0 * std::f64::consts::PI * frequency_hz;
     let x = HBAR_J_S * omega / (2.0 * BOLTZMANN_J_PER_K * temperature_k);
-    let x_coth_x = if x.abs() < 1e-8 { 1.0 } else { x / x.tanh() };
-    4.0 * BOLTZMANN_J_PER_K
-        * temperature_k
-        * osc.im_susceptibility_over_omega(frequency_hz)
-        * x_coth_x
+    let im_over_omega = osc.im_susceptibility_over_omega(frequency_hz);
+    if x.abs() < 1.0 {
+        let x_coth_x = if x.abs() < 1e-8 { 1.0 } else { x / x.tanh() };
+        4.0 * BOLTZMANN_J_PER_K * temperature_k * im_over_omega * x_coth_x
+    } else {
+        2.0 * HBAR_J_S * omega * im_over_omega / x.tanh()
+    }
 }
 
 /// Zero-point displacement PSD 2ħ Im χ(Ω) (m²/Hz), symmetrised, single-sided.
@@ -56,8 +61,17 @@ pub fn sql_psd_at_resonance(osc: &Oscillator) -> f64 {
     sql_psd_at(osc, osc.frequency_hz)
 }
 
-/// Classical thermal peak 4 k_B T Q/(m Ω_m³) (m²/Hz).
+/// Thermal peak at bath temperature T, symmetrised quantum form (METHODS.md §2b):
+/// 2ħ coth(ħΩ_m/2k_BT) Im χ(Ω_m) = 4 x_zpf²(2n̄+1)/Γ_m (m²/Hz), exactly, since
+/// Im χ(Ω_m) = 1/(m Γ_m Ω_m). Tends to the classical 4 k_B T Q/(m Ω_m³)
+/// ([`classical_thermal_peak_psd`]) for k_BT ≫ ħΩ_m and to the zero-point peak as T → 0.
 pub fn thermal_peak_psd(osc: &Oscillator, temperature_k: f64) -> f64 {
+    quantum_thermal_psd_at(osc, temperature_k, osc.frequency_hz)
+}
+
+/// Classical thermal peak 4 k_B T Q/(m Ω_m³) (m²/Hz): the high-temperature limit of
+/// [`thermal_peak_psd`], not an alternative to it (METHODS.md §2b).
+pub fn classical_thermal_peak_psd(osc: &Oscillator, temperature_k: f64) -> f64 {
     classical_thermal_psd_at(osc, temperature_k, osc.frequency_hz)
 }
 

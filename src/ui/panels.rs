@@ -79,6 +79,19 @@ fn parse_pos(text: &str, name: &str) -> Result<f64, String> {
     }
 }
 
+/// A finite number ≠ 0 (either sign).
+fn parse_nonzero(text: &str, name: &str) -> Result<f64, String> {
+    let v: f64 = text
+        .trim()
+        .parse()
+        .map_err(|_| format!("{name}: '{}' is not a number", text.trim()))?;
+    if v.is_finite() && v != 0.0 {
+        Ok(v)
+    } else {
+        Err(format!("{name} must be a non-zero number, got {v}"))
+    }
+}
+
 /// Empty: `None` (taken as exact); else a finite number ≥ 0.
 fn parse_opt_non_negative(text: &str, name: &str) -> Result<Option<f64>, String> {
     if text.trim().is_empty() {
@@ -255,7 +268,8 @@ impl PanelState {
             CalibrationMethod::TonePhaseModulation => {
                 c.tone_frequency_hz = Some(parse_pos(&self.tone_freq, "tone frequency")?);
                 c.pm_depth_rad = Some(parse_pos(&self.pm_depth, "depth β")?);
-                c.freq_pull_hz_per_m = Some(parse_pos(&self.pull, "pull G/2π")?);
+                // G is often quoted signed; only |G| enters (physics::calibration).
+                c.freq_pull_hz_per_m = Some(parse_nonzero(&self.pull, "pull G/2π")?);
             }
             CalibrationMethod::Equipartition => {
                 if self.mass.trim().is_empty() {
@@ -726,6 +740,14 @@ pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
                 pm(m.variance_m2, m.variance_m2_uncertainty),
             );
             row(ui, "x_zpf (m)", pm(q.x_zpf_m, None));
+            // Integrated rms over the fit band (report.rms), in m when the axis is.
+            if let Some(r) = report.as_ref().and_then(|r| r.rms.as_ref()) {
+                let (label, value) = crate::model::format::band_rms_readout(
+                    r,
+                    crate::model::state::unit_is_displacement(state.unit),
+                );
+                row(ui, &label, value);
+            }
             row(
                 ui,
                 "χ²_red",

@@ -38,6 +38,8 @@ pub const NAMES: &[&str] = &[
     "--detrend",
     "--averages",
     "--averaging",
+    "--rms-band",
+    "--cumulative-rms",
     "--time-constant",
     "--m-per-v",
     "--tone-freq",
