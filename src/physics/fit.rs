@@ -413,6 +413,7 @@ fn fit_narrow_line(
         f_ref,
         start,
         hint,
+        true,
     )
     .map_err(|e| {
         PhysicsError::NoMode(match e {

@@ -24,7 +24,11 @@ use super::lsq::{self, Model, SolveFailure};
 use crate::dsp::{Averaging, Spectrum};
 
 /// Extra bins beyond the kernel's half-width that still take the convolved model.
-const MARGIN_BINS: f64 = 8.0;
+const MARGIN_BINS: f64 = 4.0;
+
+/// Lines wider than this many bins take the plain model: the kernel's effect on them is
+/// below 1e-3 of the line (its second moment over the line's curvature).
+const PLAIN_ABOVE_BINS: f64 = 40.0;
 
 /// Parameters: [B, A, f_m, γ (unless fixed), (s)].
 pub(crate) struct ConvolvedModel<'a> {
@@ -100,6 +104,9 @@ impl<'a> ConvolvedModel<'a> {
         }
         let u_m = centre / self.df;
         let g = width / self.df;
+        if g > PLAIN_ABOVE_BINS {
+            return (v, dc, dw);
+        }
         let reach = self.kernel.half_bins() as f64 + MARGIN_BINS;
         let near: Vec<usize> = (0..n)
             .filter(|&i| (self.bins[i] as f64 - u_m).abs() <= reach)
@@ -279,8 +286,9 @@ pub(crate) struct ConvolvedFit {
     pub fixed_width: Option<f64>,
 }
 
-/// Fits the convolved model; tries a free width from several starts, and when none
-/// converges, a width held at `1e-3·ENBW` (the delta-line limit).
+/// Fits the convolved model; tries a free width from several starts (four, or the first two
+/// when not `exhaustive`) and keeps the best, and when none converges, a width held at
+/// `1e-3·ENBW` (the delta-line limit).
 #[allow(clippy::too_many_arguments)]
 pub(crate) fn fit_convolved(
     freqs: &[f64],
@@ -295,6 +303,7 @@ pub(crate) fn fit_convolved(
     f_ref: f64,
     start: (f64, f64, f64),
     width_hint: Option<f64>,
+    exhaustive: bool,
 ) -> Result<ConvolvedFit, SolveFailure> {
     let (b0, a0, f0) = start;
     let mut best: Option<lsq::Solution> = None;
@@ -302,6 +311,9 @@ pub(crate) fn fit_convolved(
     let mut widths = vec![0.3 * enbw_hz, 0.03 * enbw_hz, 1.5 * enbw_hz];
     if let Some(w) = width_hint.filter(|w| w.is_finite() && *w > 0.0) {
         widths.insert(0, w);
+    }
+    if !exhaustive {
+        widths.truncate(2);
     }
     let free = ConvolvedModel::new(freqs, bins, df, kernel, shape, sloped, f_ref, None);
     for w0 in widths {
