@@ -207,7 +207,7 @@ fn every_q_gives_a_mode() {
         let mut w = Welch::new(WelchConfig::new(fs, seg)).unwrap();
         w.push(&x);
         let s = w.spectrum().unwrap();
-        let half = (10.0 * gamma).max(100.0).min(900.0);
+        let half = (10.0 * gamma).clamp(100.0, 900.0);
         let r = fit::fit_mode(&s, (f_m - half, f_m + half))
             .unwrap_or_else(|e| panic!("γ {gamma}: {e}"));
         let gamma_t = 2.0 * std::f64::consts::PI * gamma * n as f64 / fs;

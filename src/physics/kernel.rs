@@ -93,7 +93,7 @@ impl Kernel {
     pub(crate) fn at(&self, u: f64) -> f64 {
         let p = NODES_PER_BIN as f64;
         let x = u * p + (self.half_bins * NODES_PER_BIN) as f64;
-        if !(x >= 0.0) || x > (self.table.len() - 1) as f64 {
+        if x.is_nan() || x < 0.0 || x > (self.table.len() - 1) as f64 {
             return 0.0;
         }
         let i = x.floor() as usize;

@@ -292,16 +292,15 @@ pub fn find_peaks(spectrum: &Spectrum, options: &PeakOptions) -> Vec<Peak> {
     // Second pass: each line again, on the spectrum minus all the *other* lines, so a line
     // measured early no longer carries its later neighbours' wings (and one whose first fit
     // failed on them gets another chance).
-    for i in 0..lines.len() {
-        lines[i].apply(&mut residual, 1.0);
-        let k = lines[i].bin;
-        if let Some(m) = fit_line(spectrum, &residual, &floor, &base, &kernel, k)
+    for line in &mut lines {
+        line.apply(&mut residual, 1.0);
+        if let Some(m) = fit_line(spectrum, &residual, &floor, &base, &kernel, line.bin)
             .filter(|m| m.peak.height_over_floor_db.is_finite())
         {
-            let merge_half_hz = lines[i].merge_half_hz;
-            lines[i] = Measured { merge_half_hz, ..m };
+            let merge_half_hz = line.merge_half_hz;
+            *line = Measured { merge_half_hz, ..m };
         }
-        lines[i].apply(&mut residual, -1.0);
+        line.apply(&mut residual, -1.0);
     }
     lines.retain(|m| m.peak.height_over_floor_db >= options.threshold_db);
     let mut peaks: Vec<Peak> = lines.into_iter().map(|m| m.peak).collect();
@@ -437,7 +436,7 @@ fn fit_line(
     let enbw = spectrum.enbw_hz.max(df);
     let fl = floor[k];
     let peak_bin = residual[k];
-    if !(peak_bin > fl) {
+    if peak_bin.is_nan() || peak_bin <= fl {
         return None;
     }
     // Half-maximum crossings on a running mean, so that noise (K_eff small) does not end the
@@ -502,7 +501,7 @@ fn fit_line(
     // A comb of unresolved lines (mains harmonics a few bins apart) or a line that is no
     // Lorentzian is not one line: leave it to the reading of the bins.
     let chi2_red = outcome.solution.chi2 / outcome.solution.dof.max(1) as f64;
-    if !(chi2_red <= MAX_LINE_CHI2_RED) {
+    if chi2_red.is_nan() || chi2_red > MAX_LINE_CHI2_RED {
         return None;
     }
     // The local floor at the line's centre.
