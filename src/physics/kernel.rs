@@ -106,14 +106,27 @@ impl Kernel {
     /// Unit-area Lorentzian of centre `centre_bins` and FWHM `width_bins` (both in bins)
     /// convolved with the kernel, at the integer bins `bins` (1/bin units: multiply by the
     /// area and divide by Δf for a PSD). Exact for the piecewise-linear kernel.
+    #[cfg(test)]
     pub(crate) fn convolved_lorentzian(
         &self,
         centre_bins: f64,
         width_bins: f64,
         bins: &[usize],
     ) -> Vec<f64> {
+        self.convolved_lorentzian_with_gradient(centre_bins, width_bins, bins)
+            .0
+    }
+
+    /// As [`Self::convolved_lorentzian`], with the derivatives by the centre and by the
+    /// width (both in bins), from the closed-form derivatives of the hat integrals.
+    pub(crate) fn convolved_lorentzian_with_gradient(
+        &self,
+        centre_bins: f64,
+        width_bins: f64,
+        bins: &[usize],
+    ) -> (Vec<f64>, Vec<f64>, Vec<f64>) {
         let (Some(&k_min), Some(&k_max)) = (bins.iter().min(), bins.iter().max()) else {
-            return Vec::new();
+            return (Vec::new(), Vec::new(), Vec::new());
         };
         let per = NODES_PER_BIN as i64;
         let half = (self.half_bins * NODES_PER_BIN) as i64;
@@ -124,41 +137,57 @@ impl Kernel {
         let count = (i_hi - i_lo + 1) as usize;
         let g = width_bins.max(1e-300);
         let half_g = 0.5 * g;
-        // F0(x) = atan(2x/γ)/π, F1(x) = (γ/4π) ln(x² + γ²/4) about the centre.
-        let mass = |xa: f64, xb: f64| {
+        // ℓ(x) = (γ/2π)/(x² + γ²/4), F0(x) = atan(2x/γ)/π, F1(x) = (γ/4π) ln(x² + γ²/4).
+        let lor = |x: f64| (g / (2.0 * PI)) / (x * x + half_g * half_g);
+        // Hat-function weights φ_i = ∫ hat_i(v) ℓ(v) dv and their derivatives by the centre
+        // u and the width γ (∂F0/∂u = −ℓ, ∂F0/∂γ = −xℓ/γ, ∂F1/∂u = −xℓ, ∂F1/∂γ = F1/γ + γℓ/4).
+        let mut phi = vec![0.0; count];
+        let mut phi_u = vec![0.0; count];
+        let mut phi_g = vec![0.0; count];
+        for c in 0..count - 1 {
+            let va = (i_lo + c as i64) as f64 * h;
+            let (xa, xb) = (va - centre_bins, va + h - centre_bins);
             let (a, b) = (xa / half_g, xb / half_g);
             let d = if a * b > 0.0 {
                 ((b - a) / (1.0 + a * b)).atan()
             } else {
                 b.atan() - a.atan()
             };
-            d / PI
-        };
-        let first_moment = |xa: f64, xb: f64, m0: f64| {
+            let m0 = d / PI;
             let q = (xb * xb + half_g * half_g) / (xa * xa + half_g * half_g);
-            (g / (4.0 * PI)) * q.ln() - xa * m0
-        };
-        // Hat-function weights φ_i = ∫ hat_i(v) ℓ(v) dv.
-        let mut phi = vec![0.0; count];
-        for c in 0..count - 1 {
-            let va = (i_lo + c as i64) as f64 * h;
-            let (xa, xb) = (va - centre_bins, va + h - centre_bins);
-            let m0 = mass(xa, xb);
-            let m1 = first_moment(xa, xb, m0);
+            let f1 = (g / (4.0 * PI)) * q.ln();
+            let m1 = f1 - xa * m0;
+            let (la, lb) = (lor(xa), lor(xb));
+            let m0_u = la - lb;
+            let m0_g = -(xb * lb - xa * la) / g;
+            let m1_u = (xa * la - xb * lb) + m0 - xa * m0_u;
+            let m1_g = f1 / g + 0.25 * g * (lb - la) - xa * m0_g;
             phi[c] += m0 - m1 / h;
             phi[c + 1] += m1 / h;
+            phi_u[c] += m0_u - m1_u / h;
+            phi_u[c + 1] += m1_u / h;
+            phi_g[c] += m0_g - m1_g / h;
+            phi_g[c + 1] += m1_g / h;
         }
-        bins.iter()
-            .map(|&k| {
-                let start = (k as i64 * per - half - i_lo) as usize;
-                // K(k − v_i) with v_i = k − t·h ⇒ node index i = k·P − t; table index t + half.
-                self.table
-                    .iter()
-                    .enumerate()
-                    .map(|(ti, kv)| kv * phi[start + (self.table.len() - 1 - ti)])
-                    .sum()
-            })
-            .collect()
+        let last = self.table.len() - 1;
+        let mut v = Vec::with_capacity(bins.len());
+        let mut vu = Vec::with_capacity(bins.len());
+        let mut vg = Vec::with_capacity(bins.len());
+        for &k in bins {
+            let start = (k as i64 * per - half - i_lo) as usize;
+            // K(k − v_i) with v_i = k − t·h ⇒ node index i = k·P − t; table index t + half.
+            let (mut s0, mut s1, mut s2) = (0.0, 0.0, 0.0);
+            for (ti, kv) in self.table.iter().enumerate() {
+                let j = start + (last - ti);
+                s0 += kv * phi[j];
+                s1 += kv * phi_u[j];
+                s2 += kv * phi_g[j];
+            }
+            v.push(s0);
+            vu.push(s1);
+            vg.push(s2);
+        }
+        (v, vu, vg)
     }
 }
 
@@ -238,6 +267,41 @@ mod tests {
             }
         }
         assert!(worst > 0.0);
+    }
+
+    /// The closed-form derivatives agree with central differences.
+    #[test]
+    fn gradient_matches_finite_differences() {
+        let k = Kernel::new(WindowKind::Hann, 4096);
+        let bins: Vec<usize> = (95..106).collect();
+        for (u0, g) in [(100.3, 0.01), (100.7, 0.8), (99.9, 6.0)] {
+            let (_, du, dg) = k.convolved_lorentzian_with_gradient(u0, g, &bins);
+            let (eu, eg) = (1e-5, 1e-5 * g);
+            let up = k.convolved_lorentzian(u0 + eu, g, &bins);
+            let dn = k.convolved_lorentzian(u0 - eu, g, &bins);
+            let gp = k.convolved_lorentzian(u0, g + eg, &bins);
+            let gm = k.convolved_lorentzian(u0, g - eg, &bins);
+            let scale = k
+                .convolved_lorentzian(u0, g, &bins)
+                .iter()
+                .fold(0.0f64, |m, v| m.max(*v));
+            for i in 0..bins.len() {
+                let nu = (up[i] - dn[i]) / (2.0 * eu);
+                let ng = (gp[i] - gm[i]) / (2.0 * eg);
+                assert!(
+                    (nu - du[i]).abs() < 1e-4 * scale,
+                    "u {u0} g {g} bin {}: {nu} vs {}",
+                    bins[i],
+                    du[i]
+                );
+                assert!(
+                    (ng - dg[i]).abs() * g < 1e-4 * scale,
+                    "u {u0} g {g} bin {}: {ng} vs {}",
+                    bins[i],
+                    dg[i]
+                );
+            }
+        }
     }
 
     /// A line much wider than the kernel is the Lorentzian itself.

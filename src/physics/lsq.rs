@@ -267,6 +267,19 @@ pub(crate) fn fit_model_weighted(
     data: &[f64],
     k_eff: f64,
 ) -> Result<Solution, SolveFailure> {
+    fit_model_weighted_capped(model, start, data, k_eff, 40, 200)
+}
+
+/// [`fit_model_weighted`] with at most `passes` re-weightings of at most `steps`
+/// Levenberg–Marquardt steps each (a quick fit that may give up: the stray-line finder).
+pub(crate) fn fit_model_weighted_capped(
+    model: &dyn Model,
+    start: &[f64],
+    data: &[f64],
+    k_eff: f64,
+    passes: usize,
+    steps: usize,
+) -> Result<Solution, SolveFailure> {
     let n = model.n_params();
     if !model.admissible(start) || data.len() <= n {
         return Err(SolveFailure::BadStart);
@@ -280,10 +293,10 @@ pub(crate) fn fit_model_weighted(
     let mut converged = false;
     // Largest parameter move of the last re-weighting pass, in units of its 1σ.
     let mut last_move_sigma = f64::INFINITY;
-    for _ in 0..40 {
+    for _ in 0..passes {
         let s = model_values(model, &p, data.len()).ok_or(SolveFailure::BadStart)?;
         let inv_var: Vec<f64> = s.iter().map(|v| k_eff / (v * v)).collect();
-        let next = lm_fixed_weights(model, &p, data, &inv_var, 200)?;
+        let next = lm_fixed_weights(model, &p, data, &inv_var, steps)?;
         // Compare the move with the parameter scales from the current normal matrix.
         let (_, jtj, _) =
             normal_equations(model, &next, data, &inv_var).ok_or(SolveFailure::BadStart)?;

@@ -115,22 +115,17 @@ impl<'a> ConvolvedModel<'a> {
             return (v, dc, dw);
         }
         let near_bins: Vec<usize> = near.iter().map(|&i| self.bins[i]).collect();
-        let du = 1e-3;
-        let dg = 1e-3 * g;
-        let k = self.kernel;
-        let c0 = k.convolved_lorentzian(u_m, g, &near_bins);
-        let cu_p = k.convolved_lorentzian(u_m + du, g, &near_bins);
-        let cu_m = k.convolved_lorentzian(u_m - du, g, &near_bins);
-        let cg_p = k.convolved_lorentzian(u_m, g + dg, &near_bins);
-        let cg_m = k.convolved_lorentzian(u_m, g - dg, &near_bins);
+        let (c0, cu, cg) = self
+            .kernel
+            .convolved_lorentzian_with_gradient(u_m, g, &near_bins);
         let df2 = self.df * self.df;
         for (j, &i) in near.iter().enumerate() {
             let f = self.freqs[i];
             // Replace the Lorentzian part by its convolution (keeps the oscillator's excess).
             let (lor, lg) = line_and_gradient(LineShape::Lorentzian, f, 1.0, centre, width);
             v[i] += c0[j] / self.df - lor;
-            dc[i] += (cu_p[j] - cu_m[j]) / (2.0 * du) / df2 - lg[1];
-            dw[i] += (cg_p[j] - cg_m[j]) / (2.0 * dg) / df2 - lg[2];
+            dc[i] += cu[j] / df2 - lg[1];
+            dw[i] += cg[j] / df2 - lg[2];
         }
         (v, dc, dw)
     }
@@ -321,7 +316,8 @@ pub(crate) fn fit_convolved(
         if sloped {
             p.push(0.0);
         }
-        match lsq::fit_model_weighted(&free, &p, data, k_eff) {
+        let (passes, steps) = if exhaustive { (40, 200) } else { (12, 40) };
+        match lsq::fit_model_weighted_capped(&free, &p, data, k_eff, passes, steps) {
             Ok(sol) => {
                 if best.as_ref().is_none_or(|b| sol.chi2 < b.chi2) {
                     best = Some(sol);

@@ -292,7 +292,8 @@ pub fn find_peaks(spectrum: &Spectrum, options: &PeakOptions) -> Vec<Peak> {
     // Second pass: each line again, on the spectrum minus all the *other* lines, so a line
     // measured early no longer carries its later neighbours' wings (and one whose first fit
     // failed on them gets another chance).
-    for line in &mut lines {
+    let fitted_lines = lines.iter().filter(|m| m.model.is_some()).count();
+    for line in lines.iter_mut().filter(|_| fitted_lines > 1) {
         line.apply(&mut residual, 1.0);
         if let Some(m) = fit_line(spectrum, &residual, &floor, &base, &kernel, line.bin)
             .filter(|m| m.peak.height_over_floor_db.is_finite())
