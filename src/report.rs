@@ -527,7 +527,25 @@ pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report,
         reference_hz: options.reference_peaks_hz.clone(),
         ..PeakOptions::default()
     };
-    report.peaks = peaks::find_peaks(spectrum, &peak_options)
+    // Strays are lines over the floor *and the mode*: the fitted mode's wings reach out of
+    // its band (a 30 dB line stands 10 dB over the floor 5 linewidths away).
+    let without_mode;
+    let searched = match &mode_fit {
+        Some(m) if options.carrier_hz.is_none() => {
+            let mut s = spectrum.clone();
+            for (k, p) in s.psd_v2_per_hz.iter_mut().enumerate() {
+                let f = k as f64 * s.resolution_hz;
+                let line = m.line_psd_at(f);
+                if line.is_finite() {
+                    *p = (*p - line).max(0.0);
+                }
+            }
+            without_mode = s;
+            &without_mode
+        }
+        _ => spectrum,
+    };
+    report.peaks = peaks::find_peaks(searched, &peak_options)
         .into_iter()
         .map(|p| PeakReport {
             frequency_hz: p.frequency_hz,

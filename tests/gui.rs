@@ -96,7 +96,8 @@ fn demo_window_end_to_end() {
     field.focus();
     field.type_text(&path.display().to_string());
     h.run_steps(2);
-    h.get_by_label("Save snapshot").click();
+
+    h.get_by_label("Save snapshot").click_accesskit();
     h.run_steps(3);
     assert!(
         h.state()
@@ -110,11 +111,11 @@ fn demo_window_end_to_end() {
     assert!(dir.path().join("cold.csv").exists());
     assert_eq!(h.state().snapshots().len(), 1);
     // Saving again to the same path asks before replacing.
-    h.get_by_label("Save snapshot").click();
+    h.get_by_label("Save snapshot").click_accesskit();
     h.run_steps(3);
-    h.get_by_label("Keep the existing file").click();
+    h.get_by_label("Keep the existing file").click_accesskit();
     h.run_steps(2);
-    h.get_by_label("Load snapshot").click();
+    h.get_by_label("Load snapshot").click_accesskit();
     h.run_steps(3);
     let snaps = h.state().snapshots();
     assert_eq!(snaps.len(), 2, "{:?}", h.state().messages());
@@ -150,7 +151,7 @@ fn demo_window_end_to_end() {
     h.get_by_label("snapshot path (JSON; the CSV is written beside it):")
         .set_text_value_accesskit(&junk.display().to_string());
     h.run_steps(2);
-    h.get_by_label("Load snapshot").click();
+    h.get_by_label("Load snapshot").click_accesskit();
     h.run_steps(3);
     assert!(
         h.state()

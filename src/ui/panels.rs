@@ -708,12 +708,21 @@ pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
                 "f_m (Hz)",
                 pm(m.frequency_hz, m.frequency_hz_uncertainty),
             );
-            row(
-                ui,
-                "γ FWHM (Hz)",
-                pm(m.linewidth_hz, m.linewidth_hz_uncertainty),
-            );
-            row(ui, "Q", pm(m.quality_factor, m.quality_factor_uncertainty));
+            if m.resolution_limited == Some(true) {
+                // Narrower than the resolution: the width is an upper bound, Q a lower one.
+                let bound = |v: Option<f64>, sign: &str| {
+                    v.map_or_else(|| "—".to_string(), |v| format!("{sign} {v:.3e}"))
+                };
+                row(ui, "γ FWHM (Hz), unresolved", bound(m.linewidth_hz, "≤"));
+                row(ui, "Q", bound(m.quality_factor, "≥"));
+            } else {
+                row(
+                    ui,
+                    "γ FWHM (Hz)",
+                    pm(m.linewidth_hz, m.linewidth_hz_uncertainty),
+                );
+                row(ui, "Q", pm(m.quality_factor, m.quality_factor_uncertainty));
+            }
             // Heterodyne without a calibration: the sideband asymmetry's n̄ (never "—" while
             // the Sidebands panel shows one).
             let sb = report.as_ref().and_then(|r| r.sidebands.clone());
