@@ -17,6 +17,8 @@ use stillpoint::ui::{MonitorOptions, StillpointApp};
 fn demo_options() -> MonitorOptions {
     let mut o = MonitorOptions::demo();
     o.fresh_settings = true;
+    // No session journal in the user's folder from a test.
+    o.no_journal = true;
     // A short segment keeps the test quick: the first spectrum after ~0.1 s of stream.
     if let Some(w) = o.welch.as_mut() {
         w.segment = 16_384;

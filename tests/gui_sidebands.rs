@@ -18,6 +18,8 @@ use stillpoint::ui::{MonitorOptions, StillpointApp};
 
 fn quick(mut o: MonitorOptions) -> MonitorOptions {
     o.fresh_settings = true;
+    // No session journal in the user's folder from a test.
+    o.no_journal = true;
     // A short segment keeps the test quick (0.13 s of stream per segment at 500 kHz; the
     // PM calibration lines stand clear of the 295 K sidebands' Lorentzian tails at this
     // resolution).

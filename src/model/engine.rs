@@ -924,6 +924,7 @@ fn trend_point(r: &Report, time_s: f64) -> TrendPoint {
         m_per_v: finite(r.calibration.m_per_v),
         m_per_v_uncertainty: finite(r.calibration.m_per_v_uncertainty),
         effective_temperature_k: finite(r.quantum.effective_temperature_k),
+        quality_factor: finite(r.mode.quality_factor),
     }
 }
 

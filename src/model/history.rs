@@ -1,6 +1,6 @@
 //! Bounded history for hours-long sessions: the waterfall (rows of log10 PSD on a fixed
 //! logarithmic frequency grid, a ring of fixed capacity) and the trend strips (fitted f_m, γ,
-//! n̄, m/V, T_eff against wall-clock time, thinned by half whenever full so the whole session
+//! Q, n̄, m/V, T_eff against wall-clock time, thinned by half whenever full so the whole session
 //! stays visible at coarser resolution). Memory never grows with session length.
 
 use std::collections::VecDeque;
@@ -159,6 +159,9 @@ pub struct TrendPoint {
     pub m_per_v_uncertainty: Option<f64>,
     /// Mode temperature T_eff.
     pub effective_temperature_k: Option<f64>,
+    /// Quality factor Q = f_m/γ.
+    #[serde(default)]
+    pub quality_factor: Option<f64>,
 }
 
 /// Trend history with fixed capacity: when full, every other point is dropped, so the

@@ -413,6 +413,9 @@ pub struct AppState {
     pub last_source_path: Option<PathBuf>,
     /// Show the cooldown view (waterfall and trends).
     pub show_cooldown: bool,
+    /// Folder of the session journal chosen by the user (`None`: the default folder,
+    /// [`crate::model::journal::default_folder`]).
+    pub journal_folder: Option<PathBuf>,
 }
 
 impl Default for AppState {
@@ -428,6 +431,7 @@ impl Default for AppState {
             last_snapshot_dir: None,
             last_source_path: None,
             show_cooldown: true,
+            journal_folder: None,
         }
     }
 }

@@ -1,6 +1,8 @@
 //! The cooldown view: the waterfall (log PSD against log frequency and time, newest at the
 //! top) as a texture that is updated one row at a time, and trend strips of the fitted f_m,
-//! γ, n̄ and m/V against elapsed time.
+//! γ, Q, n̄ and T_eff (both on log axes: a cooldown spans 10⁷ → 10⁰) and m/V against elapsed
+//! time (ticks in s, min or h as the session grows), with a reopened journal dashed beside
+//! them.
 
 use eframe::egui::{
     self, Color32, ColorImage, Rect, RichText, Sense, TextureHandle, TextureOptions, Ui, pos2, vec2,
@@ -9,7 +11,7 @@ use egui_plot::{Line, Plot, PlotPoints};
 
 use super::axes::{format_hz, frequency_tick, log_spacer};
 use super::theme;
-use crate::model::LiveState;
+use crate::model::{LiveState, TrendBuffer};
 
 /// Texture and bookkeeping of the waterfall.
 #[derive(Default)]
@@ -111,7 +113,7 @@ impl CooldownState {
     }
 
     /// The waterfall and the trend strips side by side.
-    pub fn ui(&mut self, ui: &mut Ui, live: &LiveState) {
+    pub fn ui(&mut self, ui: &mut Ui, live: &LiveState, compare: Option<&TrendBuffer>) {
         self.update_texture(ui.ctx(), live);
         let h = ui.available_height().max(120.0);
         ui.horizontal_top(|ui| {
@@ -120,7 +122,7 @@ impl CooldownState {
                 ui.set_width(w);
                 self.waterfall_ui(ui, live, h);
             });
-            ui.vertical(|ui| trends_ui(ui, live, h));
+            ui.vertical(|ui| trends_ui(ui, live, compare, h));
         });
     }
 
@@ -228,19 +230,77 @@ impl CooldownState {
     }
 }
 
-fn trends_ui(ui: &mut Ui, live: &LiveState, height: f32) {
+/// Time axis label in s, min or h by the span shown (a session grows from seconds to hours).
+pub fn time_tick(value_s: f64, span_s: f64) -> String {
+    if span_s < 300.0 {
+        format!("{value_s:.0} s")
+    } else if span_s < 3.0 * 3600.0 {
+        let m = value_s / 60.0;
+        if span_s < 1200.0 {
+            format!("{m:.1} min")
+        } else {
+            format!("{m:.0} min")
+        }
+    } else {
+        format!("{:.1} h", value_s / 3600.0)
+    }
+}
+
+/// Tick label of a log10 axis: powers of ten (2× and 5× when zoomed in), plain values when
+/// less than a decade is shown.
+fn log_tick(mark: egui_plot::GridMark, range: &std::ops::RangeInclusive<f64>) -> String {
+    let text = super::axes::power_tick(mark, range);
+    if text.is_empty() && range.end() - range.start() < 1.0 {
+        return super::axes::format_sig(10f64.powf(mark.value), 3);
+    }
+    text
+}
+
+/// `[t, log10 v]` of the positive values of a series.
+fn log_series(points: Vec<[f64; 2]>) -> Vec<[f64; 2]> {
+    points
+        .into_iter()
+        .filter(|p| p[1] > 0.0)
+        .map(|p| [p[0], p[1].log10()])
+        .collect()
+}
+
+type Pick = fn(&crate::model::TrendPoint) -> Option<f64>;
+
+/// The strips: name, value of a point, log axis, colour.
+const STRIPS: [(&str, Pick, bool, Color32); 6] = [
+    ("f_m (Hz)", |p| p.frequency_hz, false, theme::TRACE),
+    ("γ (Hz)", |p| p.linewidth_hz, false, theme::FIT),
+    ("Q", |p| p.quality_factor, false, theme::SQL),
+    (
+        "occupancy n (log)",
+        |p| p.occupancy,
+        true,
+        theme::ZERO_POINT,
+    ),
+    (
+        "T_eff (K, log)",
+        |p| p.effective_temperature_k,
+        true,
+        theme::THERMAL,
+    ),
+    ("m/V", |p| p.m_per_v, false, theme::TONE),
+];
+
+fn trends_ui(ui: &mut Ui, live: &LiveState, compare: Option<&TrendBuffer>, height: f32) {
     ui.label(RichText::new("Trends against elapsed time").strong());
     let t = &live.trends;
-    let strips: [(&str, Vec<[f64; 2]>, Color32); 4] = [
-        ("f_m (Hz)", t.series(|p| p.frequency_hz), theme::TRACE),
-        ("γ (Hz)", t.series(|p| p.linewidth_hz), theme::FIT),
-        ("occupancy n", t.series(|p| p.occupancy), theme::ZERO_POINT),
-        ("m/V", t.series(|p| p.m_per_v), theme::TONE),
-    ];
-    let strip_h = ((height - 30.0 - 4.0 * 24.0) / 4.0).max(34.0);
+    let n = STRIPS.len();
+    let strip_h = ((height - 30.0 - n as f32 * 24.0) / n as f32).max(34.0);
     let link = ui.scope_id().with("trend_link");
-    for (i, (name, pts, colour)) in strips.into_iter().enumerate() {
+    for (i, (name, pick, log, colour)) in STRIPS.into_iter().enumerate() {
+        let pts = t.series(pick);
         let last = pts.last().map(|p| p[1]);
+        let (pts, old) = if log {
+            (log_series(pts), compare.map(|c| log_series(c.series(pick))))
+        } else {
+            (pts, compare.map(|c| c.series(pick)))
+        };
         ui.horizontal(|ui| {
             ui.label(RichText::new(name).small().strong());
             if let Some(v) = last {
@@ -251,22 +311,35 @@ fn trends_ui(ui: &mut Ui, live: &LiveState, height: f32) {
                 );
             }
         });
-        Plot::new(("trend", i))
+        let mut plot = Plot::new(("trend", i))
             .height(strip_h)
             .link_axis(link, Vec2bX::X)
-            .show_axes([i == 3, true])
+            .show_axes([i == n - 1, true])
             .allow_scroll(false)
             .y_axis_min_width(56.0)
-            .x_axis_formatter(|m, _| format!("{:.0} s", m.value))
-            .y_axis_formatter(|m, _| super::axes::format_sig(m.value, 3))
-            .show(ui, |pui| {
+            .x_axis_formatter(|m, range| time_tick(m.value, range.end() - range.start()));
+        plot = if log {
+            plot.y_grid_spacer(super::axes::log_spacer)
+                .y_axis_formatter(log_tick)
+        } else {
+            plot.y_axis_formatter(|m, _| super::axes::format_sig(m.value, 3))
+        };
+        plot.show(ui, |pui| {
+            if let Some(old) = old {
                 pui.line(
-                    Line::new(name, PlotPoints::new(pts))
-                        .color(colour)
-                        .width(1.5),
+                    Line::new(format!("{name} (journal)"), PlotPoints::new(old))
+                        .color(theme::PENCIL)
+                        .style(egui_plot::LineStyle::dashed_loose())
+                        .width(1.2),
                 );
-                super::plot::session_marks(pui, live);
-            });
+            }
+            pui.line(
+                Line::new(name, PlotPoints::new(pts))
+                    .color(colour)
+                    .width(1.5),
+            );
+            super::plot::session_marks(pui, live);
+        });
     }
 }
 
@@ -275,4 +348,30 @@ struct Vec2bX;
 
 impl Vec2bX {
     const X: egui::Vec2b = egui::Vec2b { x: true, y: false };
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn time_ticks_follow_the_session_length() {
+        assert_eq!(time_tick(30.0, 60.0), "30 s");
+        assert_eq!(time_tick(90.0, 600.0), "1.5 min");
+        assert_eq!(time_tick(1800.0, 3600.0), "30 min");
+        assert_eq!(time_tick(5400.0, 6.0 * 3600.0), "1.5 h");
+    }
+
+    #[test]
+    fn log_strips_plot_log10_of_positive_values() {
+        let s = log_series(vec![[0.0, 1e7], [1.0, 0.0], [2.0, 1.0]]);
+        assert_eq!(s, vec![[0.0, 7.0], [2.0, 0.0]]);
+        let range = 0.0..=7.0;
+        let mark = |value| egui_plot::GridMark {
+            value,
+            step_size: 1.0,
+        };
+        assert_eq!(log_tick(mark(7.0), &range), "10⁷");
+        assert_eq!(log_tick(mark(0.0), &range), "10⁰");
+    }
 }

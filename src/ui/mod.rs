@@ -10,6 +10,7 @@ mod axes;
 mod cooldown;
 mod figure_export;
 mod files;
+pub mod journal_ui;
 mod panels;
 mod plot;
 mod sideband_view;
@@ -46,6 +47,11 @@ pub struct MonitorOptions {
     pub screenshot_after_s: f64,
     /// Ignore remembered settings (tests, screenshots).
     pub fresh_settings: bool,
+    /// Session journal folder for this run (`None`: the one chosen before, else
+    /// [`model::journal::default_folder`]).
+    pub journal_dir: Option<PathBuf>,
+    /// Write no session journal (screenshots).
+    pub no_journal: bool,
 }
 
 impl MonitorOptions {
@@ -69,6 +75,8 @@ impl MonitorOptions {
             screenshot: None,
             screenshot_after_s: 12.0,
             fresh_settings: false,
+            journal_dir: None,
+            no_journal: false,
         }
     }
 
@@ -82,6 +90,8 @@ impl MonitorOptions {
             screenshot: None,
             screenshot_after_s: 12.0,
             fresh_settings: false,
+            journal_dir: None,
+            no_journal: false,
         }
     }
 }
@@ -214,6 +224,7 @@ pub struct StillpointApp {
     cooldown: cooldown::CooldownState,
     sidebands: sideband_view::SidebandViewState,
     files: files::FileState,
+    journal: journal_ui::JournalState,
     snapshots: Vec<LoadedSnapshot>,
     reference: Option<usize>,
     show_about: bool,
@@ -282,6 +293,15 @@ impl StillpointApp {
             && (state.welch != WelchSettings::default()
                 || state.analysis != AnalysisOptions::default());
         state.settings_source = Some(key.clone());
+        let journal_folder = if options.no_journal || options.screenshot.is_some() {
+            None
+        } else {
+            options
+                .journal_dir
+                .clone()
+                .or_else(|| state.journal_folder.clone())
+                .or_else(model::journal::default_folder)
+        };
         let ctx = cc.egui_ctx.clone();
         let mut app = Self {
             state,
@@ -297,6 +317,7 @@ impl StillpointApp {
             cooldown: cooldown::CooldownState::default(),
             sidebands: sideband_view::SidebandViewState::default(),
             files: files::FileState::new(),
+            journal: journal_ui::JournalState::new(journal_folder),
             snapshots: Vec::new(),
             reference: None,
             show_about: false,
@@ -470,6 +491,7 @@ impl StillpointApp {
         let frames = engine.drain_frames();
         let notices = engine.drain_notices();
         for f in frames {
+            self.journal_frame(&f);
             self.sidebands.observe(&f);
             self.live.apply(f);
         }
@@ -593,6 +615,7 @@ impl StillpointApp {
                     self.state.welch = w.clone();
                     self.sent_welch = w.clone();
                     self.send(EngineCommand::SetWelch(w));
+                    self.journal_settings_changed();
                 }
                 Err(e) => self.error(MessageKind::Averaging, e),
             },
@@ -703,6 +726,7 @@ impl StillpointApp {
             options,
             follow_mode: follow,
         });
+        self.journal_settings_changed();
     }
 
     fn menu_bar(&mut self, ui: &mut egui::Ui) {
@@ -1000,6 +1024,8 @@ impl eframe::App for StillpointApp {
                         &mut self.state,
                     );
                     self.commands.extend(cmds);
+                    ui.separator();
+                    self.journal_ui(ui);
                 });
             });
         egui::CentralPanel::default()
@@ -1037,7 +1063,8 @@ impl eframe::App for StillpointApp {
                         .and_then(|f| f.report.as_ref())
                         .and_then(|r| r.calibration.m_per_v);
                     self.cooldown.colour_unit = Some((self.state.unit, m_per_v));
-                    self.cooldown.ui(ui, &self.live);
+                    let compare = self.journal.opened.as_ref().map(|o| &o.trends);
+                    self.cooldown.ui(ui, &self.live, compare);
                 }
             });
         self.windows(&ctx);
