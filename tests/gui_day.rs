@@ -260,7 +260,7 @@ fn messages_expire_are_bounded_and_corrected_errors_go() {
     let field = "snapshot path (JSON; the CSV is written beside it):";
     for i in 0..6 {
         type_into(&mut h, field, &format!("/nonexistent/stillpoint/{i}.json"));
-        h.get_by_label("Load snapshot").click();
+        h.get_by_label("Load snapshot").click_accesskit();
         h.run_steps(2);
     }
     // At most three on screen, however many there were.
@@ -270,7 +270,7 @@ fn messages_expire_are_bounded_and_corrected_errors_go() {
     let dir = tempfile::tempdir().unwrap();
     let good = dir.path().join("ok.json");
     type_into(&mut h, field, &good.display().to_string());
-    h.get_by_label("Save snapshot").click();
+    h.get_by_label("Save snapshot").click_accesskit();
     h.run_steps(3);
     let msgs = h.state().messages();
     assert!(!msgs.iter().any(|m| m.error), "{msgs:?}");
