@@ -122,8 +122,9 @@ struct SoakResult {
     last: EngineStatus,
 }
 
-/// Runs the engine on `source` as fast as it goes for `wall_s`, draining frames like the
-/// window (into a [`LiveState`]), checking the bounds on every frame.
+/// Runs the engine on `source` as fast as it goes for `wall_s` (longer, up to 3×, until the
+/// history rings have wrapped), draining frames like the window (into a [`LiveState`]),
+/// checking the bounds on every frame.
 fn soak(source: SourceConfig, speed: Option<f64>, wall_s: f64) -> SoakResult {
     let mut cfg = EngineConfig::new(source);
     cfg.playback_speed = speed;
@@ -140,7 +141,11 @@ fn soak(source: SourceConfig, speed: Option<f64>, wall_s: f64) -> SoakResult {
     let mut early = None;
     let mut max_waterfall_len = 0;
     let wall = Duration::from_secs_f64(wall_s);
-    while t0.elapsed() < wall {
+    // At least `wall_s`, and on until the history rings have wrapped (a slow or loaded
+    // machine makes fewer frames per second), but not beyond three times `wall_s`.
+    while t0.elapsed() < wall
+        || (live.waterfall.pushed() <= WATERFALL_ROWS as u64 + 20 && t0.elapsed() < 3 * wall)
+    {
         let Some(frame) = engine.recv_frame_timeout(Duration::from_secs(20)) else {
             panic!("no frame for 20 s: the engine hung");
         };

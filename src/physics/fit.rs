@@ -413,7 +413,10 @@ fn fit_narrow_line(
         f_ref,
         start,
         hint,
-        true,
+        // From a plain fit's result one start (and one fallback) is enough; from the data
+        // alone, try four.
+        plain.is_none(),
+        false,
     )
     .map_err(|e| {
         PhysicsError::NoMode(match e {

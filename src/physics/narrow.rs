@@ -283,7 +283,7 @@ pub(crate) struct ConvolvedFit {
 
 /// Fits the convolved model; tries a free width from several starts (four, or the first two
 /// when not `exhaustive`) and keeps the best, and when none converges, a width held at
-/// `1e-3·ENBW` (the delta-line limit).
+/// `1e-3·ENBW` (the delta-line limit). `quick` caps the solver's effort (it may give up).
 #[allow(clippy::too_many_arguments)]
 pub(crate) fn fit_convolved(
     freqs: &[f64],
@@ -299,6 +299,7 @@ pub(crate) fn fit_convolved(
     start: (f64, f64, f64),
     width_hint: Option<f64>,
     exhaustive: bool,
+    quick: bool,
 ) -> Result<ConvolvedFit, SolveFailure> {
     let (b0, a0, f0) = start;
     let mut best: Option<lsq::Solution> = None;
@@ -316,7 +317,7 @@ pub(crate) fn fit_convolved(
         if sloped {
             p.push(0.0);
         }
-        let (passes, steps) = if exhaustive { (40, 200) } else { (12, 40) };
+        let (passes, steps) = if quick { (12, 40) } else { (40, 200) };
         match lsq::fit_model_weighted_capped(&free, &p, data, k_eff, passes, steps) {
             Ok(sol) => {
                 if best.as_ref().is_none_or(|b| sol.chi2 < b.chi2) {

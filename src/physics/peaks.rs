@@ -491,6 +491,7 @@ fn fit_line(
         (fl, area0, f_ref),
         Some(gamma0),
         false,
+        true,
     )
     .ok()?;
     let p = &outcome.solution.params;
