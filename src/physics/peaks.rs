@@ -370,7 +370,7 @@ impl Measured {
 const MIN_K_EFF_FOR_FITS: f64 = 8.0;
 
 /// Bins a line fit uses at most (more are thinned to every n-th bin).
-const FIT_BINS_MAX: usize = 1500;
+const FIT_BINS_MAX: usize = 4000;
 
 /// Largest reduced χ² of a line fit that is taken as one line.
 const MAX_LINE_CHI2_RED: f64 = 25.0;
@@ -524,9 +524,12 @@ fn fit_line(
     if !(b > 0.2 * fl && a > 0.0 && c >= lo as f64 * df && c <= hi as f64 * df) {
         return None;
     }
+    // Every bin of the stretch (the fit may have used every n-th), for subtraction.
+    let all_bins: Vec<usize> = (lo..=hi).collect();
+    let all_freqs: Vec<f64> = all_bins.iter().map(|&i| i as f64 * df).collect();
     let model = narrow::ConvolvedModel::new(
-        &freqs,
-        &bins,
+        &all_freqs,
+        &all_bins,
         df,
         kernel,
         LineShape::Oscillator,
@@ -538,10 +541,9 @@ fn fit_line(
     let mut values = vec![0.0; hi - lo + 1];
     let mut smeared_max = 0.0f64;
     let mut grad = [0.0; 3];
-    for (i, &bin) in bins.iter().enumerate() {
-        let v = model.eval_line(&[b0, a, c], i, &mut grad);
-        values[bin - lo] = v;
-        smeared_max = smeared_max.max(v);
+    for (i, v) in values.iter_mut().enumerate() {
+        *v = model.eval_line(&[b0, a, c], i, &mut grad);
+        smeared_max = smeared_max.max(*v);
     }
     let resolved = gamma >= enbw;
     let line_peak = if resolved {
