@@ -521,31 +521,26 @@ pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report,
         exclude.push((a - half, a + half));
         exclude.push((b - half, b + half));
     }
+    // The fitted mode's wings reach out of its band (a 30 dB line stands 10 dB over the
+    // floor five linewidths away): exclude where its Lorentzian wing A·γ/(2πd²) exceeds three
+    // times the background, d = √(A γ/(6π B)).
+    if let (Some(m), None) = (&mode_fit, options.carrier_hz) {
+        let (a, g, b) = (m.area.value, m.linewidth_hz.value, m.background_psd.value);
+        if a > 0.0 && g > 0.0 && b > 0.0 {
+            let d = (a * g / (6.0 * std::f64::consts::PI * b)).sqrt();
+            let f = m.frequency_hz.value;
+            if d.is_finite() {
+                exclude.push((f - d, f + d));
+            }
+        }
+    }
     let peak_options = PeakOptions {
         threshold_db: options.peak_threshold_db.unwrap_or(10.0),
         exclude_hz: exclude,
         reference_hz: options.reference_peaks_hz.clone(),
         ..PeakOptions::default()
     };
-    // Strays are lines over the floor *and the mode*: the fitted mode's wings reach out of
-    // its band (a 30 dB line stands 10 dB over the floor 5 linewidths away).
-    let without_mode;
-    let searched = match &mode_fit {
-        Some(m) if options.carrier_hz.is_none() => {
-            let mut s = spectrum.clone();
-            for (k, p) in s.psd_v2_per_hz.iter_mut().enumerate() {
-                let f = k as f64 * s.resolution_hz;
-                let line = m.line_psd_at(f);
-                if line.is_finite() {
-                    *p = (*p - line).max(0.0);
-                }
-            }
-            without_mode = s;
-            &without_mode
-        }
-        _ => spectrum,
-    };
-    report.peaks = peaks::find_peaks(searched, &peak_options)
+    report.peaks = peaks::find_peaks(spectrum, &peak_options)
         .into_iter()
         .map(|p| PeakReport {
             frequency_hz: p.frequency_hz,

@@ -237,6 +237,7 @@ pub fn find_peaks(spectrum: &Spectrum, options: &PeakOptions) -> Vec<Peak> {
     // Wide in hertz: at least the option's bins and 1/16 of the spectrum.
     let window = options.floor_window_bins.max(n / 16).max(33);
     let floor = clipped_floor(spectrum, window, &options.exclude_hz);
+    let max_width_hz = 0.5 * window as f64 * df;
     let ratio = 10f64.powf(options.threshold_db / 10.0);
     let base = base_mask(spectrum, &options.exclude_hz);
     // Candidates: local maxima over the threshold.
@@ -271,7 +272,7 @@ pub fn find_peaks(spectrum: &Spectrum, options: &PeakOptions) -> Vec<Peak> {
         // Below a few averages the shape of a line is noise: read the bins only.
         let fitted = if fits < MAX_LINE_FITS && spectrum.k_eff >= MIN_K_EFF_FOR_FITS {
             fits += 1;
-            fit_line(spectrum, &residual, &floor, &base, &kernel, k)
+            fit_line(spectrum, &residual, &floor, &base, &kernel, k, max_width_hz)
         } else {
             None
         };
@@ -281,8 +282,19 @@ pub fn find_peaks(spectrum: &Spectrum, options: &PeakOptions) -> Vec<Peak> {
             bin: k,
             merge_half_hz: 0.0,
         });
-        if !(m.peak.height_over_floor_db.is_finite() && m.peak.frequency_hz.is_finite())
+        let f_line = m.peak.frequency_hz;
+        // Wider than the floor's window is the floor's own shape (a resonance's far skirt, a
+        // 1/f rise), not a line.
+        if m.peak.linewidth_hz > max_width_hz {
+            continue;
+        }
+        if !(m.peak.height_over_floor_db.is_finite() && f_line.is_finite())
             || m.peak.height_over_floor_db < options.threshold_db
+            // A maximum on the flank of an excluded line (the mode) is that line.
+            || options
+                .exclude_hz
+                .iter()
+                .any(|&(a, b)| f_line >= a && f_line <= b)
         {
             continue;
         }
@@ -296,8 +308,16 @@ pub fn find_peaks(spectrum: &Spectrum, options: &PeakOptions) -> Vec<Peak> {
     let fitted_lines = lines.iter().filter(|m| m.model.is_some()).count();
     for line in lines.iter_mut().filter(|_| fitted_lines > 1) {
         line.apply(&mut residual, 1.0);
-        if let Some(m) = fit_line(spectrum, &residual, &floor, &base, &kernel, line.bin)
-            .filter(|m| m.peak.height_over_floor_db.is_finite())
+        if let Some(m) = fit_line(
+            spectrum,
+            &residual,
+            &floor,
+            &base,
+            &kernel,
+            line.bin,
+            max_width_hz,
+        )
+        .filter(|m| m.peak.height_over_floor_db.is_finite())
         {
             let merge_half_hz = line.merge_half_hz;
             *line = Measured { merge_half_hz, ..m };
@@ -438,6 +458,7 @@ fn fit_line(
     base: &[bool],
     kernel: &Kernel,
     k: usize,
+    max_width_hz: f64,
 ) -> Option<Measured> {
     let n = residual.len();
     let df = spectrum.resolution_hz;
@@ -458,6 +479,9 @@ fn fit_line(
         .collect();
     let (left, right) = half_max_crossings(&smooth, fl, smooth[k], k);
     let w_bins = (right - left).max(1.0);
+    if w_bins * df > max_width_hz {
+        return None;
+    }
     // Far enough that the line's wing falls to about the floor (x = (γ/2)√H for a height H
     // over the floor), so the floor is measured rather than traded against the wings.
     let h = (peak_bin / fl - 1.0).max(1.0);
