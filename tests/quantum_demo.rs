@@ -397,6 +397,22 @@ fn unresolved_sidebands_are_read_by_band_sums() {
         "red area {red} vs {}",
         sb.red_area_v2
     );
+    // ... and the report says so: each area's σ is at least the area (METHODS §11, ΓT ≈ 0.03
+    // here), while R = red/blue, where a common draw of the energy cancels, keeps a σ that
+    // is a fraction of its value.
+    let red_sigma = r["red"]["area_v2_uncertainty"].as_f64().unwrap();
+    assert!(red_sigma >= red.abs(), "red area σ {red_sigma} < {red}");
+    let blue = r["blue"]["area_v2"].as_f64().unwrap();
+    let blue_sigma = r["blue"]["area_v2_uncertainty"].as_f64().unwrap();
+    assert!(
+        blue_sigma >= blue.abs(),
+        "blue area σ {blue_sigma} < {blue}"
+    );
+    let (rr, rs) = (
+        r["ratio"].as_f64().unwrap(),
+        r["ratio_uncertainty"].as_f64().unwrap(),
+    );
+    assert!(rs < 0.5 * rr, "R = {rr} ± {rs}");
     let n = rep["quantum"]["occupancy"].as_f64().unwrap();
     assert!(n > 1e4, "n from areas = {n}");
     assert!(

@@ -382,12 +382,22 @@ fn band_sum_sidebands(spectrum: &Spectrum, options: &SidebandOptions) -> Result<
     } else {
         (lower, upper)
     };
+    // The ratio first: both lines are read off the same motion, so a draw of its energy
+    // scales both areas alike and cancels in R.
     let ratio = ratio_of(red.area, blue.area, options.imbalance);
     let occupancy = occupancy_from_ratio(ratio);
+    // Each area on its own is one draw of the line's thermal energy when the line may be
+    // narrower than 1/T: its σ is at least the area itself (METHODS §11, √(2(x−1+e^{−x}))/x
+    // → 1 for ΓT → 0; the linewidth is not measured here).
+    let one_draw = |mut l: SidebandLineFit| {
+        l.area.sigma = l.area.sigma.max(l.area.value.abs());
+        l
+    };
+    let (red, blue) = (one_draw(red), one_draw(blue));
     let mut notes = vec![
         CLASSICAL_NOISE_NOTE.to_string(),
         format!(
-            "sidebands: the lines are narrower than the resolution (ENBW {:.3} Hz): areas are background-subtracted band sums and the linewidth is not measured (METHODS §2c)",
+            "sidebands: the lines are narrower than the resolution (ENBW {:.3} Hz): areas are background-subtracted band sums and the linewidth is not measured (METHODS §2c); each area may be a single draw of the line's energy (σ = 100 %), while R = red/blue is not affected (both lines follow the same motion)",
             spectrum.enbw_hz
         ),
     ];
