@@ -414,9 +414,10 @@ fn fit_narrow_line(
         start,
         hint,
         // From a plain fit's result one start (and one fallback) is enough; from the data
-        // alone, try four.
-        plain.is_none(),
-        false,
+        // alone, try four. A spectrum of very few averages gets a capped effort: its fit
+        // rarely converges, and the window's engine must not stall on it.
+        plain.is_none() && k_eff >= 8.0,
+        k_eff < 8.0,
     )
     .map_err(|e| {
         PhysicsError::NoMode(match e {

@@ -317,7 +317,7 @@ pub(crate) fn fit_convolved(
         if sloped {
             p.push(0.0);
         }
-        let (passes, steps) = if quick { (12, 40) } else { (40, 200) };
+        let (passes, steps) = if quick { (12, 40) } else { (25, 80) };
         match lsq::fit_model_weighted_capped(&free, &p, data, k_eff, passes, steps) {
             Ok(sol) => {
                 if best.as_ref().is_none_or(|b| sol.chi2 < b.chi2) {
