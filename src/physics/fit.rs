@@ -501,41 +501,8 @@ fn fit_narrow_line(
         slope_reference_hz: f_ref,
         linewidth_fit_hz: width_fit,
     };
-    let all_finite = [
-        fit.frequency_hz,
-        fit.linewidth_hz,
-        fit.quality_factor,
-        fit.area,
-        fit.peak_psd,
-        fit.background_psd,
-    ]
-    .iter()
-    .all(Estimate::is_finite)
-        && chi2_red.is_finite();
-    if !all_finite {
-        return Err(PhysicsError::NoMode(
-            "the fit gave non-finite values".into(),
-        ));
-    }
-    if c < band_hz.0 || c > band_hz.1 {
-        return Err(PhysicsError::NoMode(format!(
-            "the fitted centre {c:.6} Hz lies outside the band"
-        )));
-    }
-    if width > band_hz.1 - band_hz.0 {
-        return Err(PhysicsError::NoMode(format!(
-            "the fitted linewidth {width:.4} Hz is wider than the band"
-        )));
-    }
     // Detection: the area against the fit's own (noise) uncertainty.
-    if a < options.min_significance * area_fit_sigma {
-        return Err(PhysicsError::NoMode(format!(
-            "no significant peak (area {:.2}σ above zero, need {})",
-            a / area_fit_sigma,
-            options.min_significance
-        )));
-    }
-    Ok(fit)
+    accept(fit, None, area_fit_sigma, options.min_significance)
 }
 
 /// Initial guesses from the data: (B, A, f_m, γ).
@@ -679,6 +646,25 @@ fn fit_bins(
         slope_reference_hz: f_ref,
         linewidth_fit_hz: None,
     };
+    let detection = fit.area.sigma;
+    accept(fit, Some(0.25 * df), detection, options.min_significance)
+}
+
+/// The checks every mode fit must pass before it is reported: finite values, the centre
+/// inside the band, the line no wider than the band, (optionally) no narrower than
+/// `min_width_hz`, and an area `min_significance` times its detection σ above zero.
+fn accept(
+    fit: ModeFit,
+    min_width_hz: Option<f64>,
+    detection_sigma: f64,
+    min_significance: f64,
+) -> Result<ModeFit> {
+    let (c, w, a) = (
+        fit.frequency_hz.value,
+        fit.linewidth_hz.value,
+        fit.area.value,
+    );
+    let band_hz = fit.band_hz;
     let all_finite = [
         fit.frequency_hz,
         fit.linewidth_hz,
@@ -689,7 +675,7 @@ fn fit_bins(
     ]
     .iter()
     .all(Estimate::is_finite)
-        && chi2_red.is_finite();
+        && fit.reduced_chi2.is_finite();
     if !all_finite {
         return Err(PhysicsError::NoMode(
             "the fit gave non-finite values".into(),
@@ -705,16 +691,18 @@ fn fit_bins(
             "the fitted linewidth {w:.4} Hz is wider than the band"
         )));
     }
-    if w < 0.25 * df {
+    if let Some(min) = min_width_hz
+        && w < min
+    {
         return Err(PhysicsError::NoMode(format!(
-            "the linewidth is unresolved (fitted {w:.3e} Hz, bin spacing {df:.3e} Hz)"
+            "the linewidth is unresolved (fitted {w:.3e} Hz, below {min:.3e} Hz)"
         )));
     }
-    if a < options.min_significance * fit.area.sigma {
+    if a < min_significance * detection_sigma {
         return Err(PhysicsError::NoMode(format!(
             "no significant peak (area {:.2}σ above zero, need {})",
-            a / fit.area.sigma,
-            options.min_significance
+            a / detection_sigma,
+            min_significance
         )));
     }
     Ok(fit)
@@ -953,45 +941,8 @@ pub fn fit_mode_given_variance(
         slope_reference_hz: f_ref,
         linewidth_fit_hz: None,
     };
-    let all_finite = [
-        fit.frequency_hz,
-        fit.linewidth_hz,
-        fit.quality_factor,
-        fit.area,
-        fit.peak_psd,
-        fit.background_psd,
-    ]
-    .iter()
-    .all(Estimate::is_finite)
-        && chi2_red.is_finite();
-    if !all_finite {
-        return Err(PhysicsError::NoMode(
-            "the fit gave non-finite values".into(),
-        ));
-    }
-    if c < band_hz.0 || c > band_hz.1 {
-        return Err(PhysicsError::NoMode(format!(
-            "the fitted centre {c:.6} Hz lies outside the band"
-        )));
-    }
-    if w > band_hz.1 - band_hz.0 {
-        return Err(PhysicsError::NoMode(format!(
-            "the fitted linewidth {w:.4} Hz is wider than the band"
-        )));
-    }
-    if w < 0.25 * df {
-        return Err(PhysicsError::NoMode(format!(
-            "the linewidth is unresolved (fitted {w:.3e} Hz, bin spacing {df:.3e} Hz)"
-        )));
-    }
-    if a < options.min_significance * fit.area.sigma {
-        return Err(PhysicsError::NoMode(format!(
-            "no significant peak (area {:.2}σ above zero, need {})",
-            a / fit.area.sigma,
-            options.min_significance
-        )));
-    }
-    Ok(fit)
+    let detection = fit.area.sigma;
+    accept(fit, Some(0.25 * df), detection, options.min_significance)
 }
 
 #[cfg(test)]
