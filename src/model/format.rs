@@ -3,26 +3,7 @@
 //! rates one way ("250 kS/s"), large counts grouped by thousands, and the readable UTC
 //! date-time used to name files. No egui here, so the rules are unit-tested.
 
-/// Superscript digits for a power of ten ("−9" → "⁻⁹").
-fn superscript(n: i32) -> String {
-    n.to_string()
-        .chars()
-        .map(|c| match c {
-            '-' => '⁻',
-            '0' => '⁰',
-            '1' => '¹',
-            '2' => '²',
-            '3' => '³',
-            '4' => '⁴',
-            '5' => '⁵',
-            '6' => '⁶',
-            '7' => '⁷',
-            '8' => '⁸',
-            '9' => '⁹',
-            other => other,
-        })
-        .collect()
-}
+use crate::figure::format::superscript;
 
 /// `value` with `sig` significant digits: plain between 10⁻³ and 10⁷, else `m × 10ⁿ`.
 pub fn format_significant(value: f64, sig: usize) -> String {

@@ -109,25 +109,13 @@ pub fn format_hz(f_hz: f64, step_hz: f64) -> String {
     format!("{:.*} {unit}", decimals.min(6), f_hz / scale)
 }
 
-/// Digits as Unicode superscripts ("−27" → "⁻²⁷").
+/// Digits as Unicode superscripts ("−27" → "⁻²⁷"): the figures' rule.
 pub fn superscript(n: i64) -> String {
-    n.to_string()
-        .chars()
-        .map(|c| match c {
-            '-' => '⁻',
-            '0' => '⁰',
-            '1' => '¹',
-            '2' => '²',
-            '3' => '³',
-            '4' => '⁴',
-            '5' => '⁵',
-            '6' => '⁶',
-            '7' => '⁷',
-            '8' => '⁸',
-            '9' => '⁹',
-            other => other,
-        })
-        .collect()
+    crate::figure::format::superscript(i32::try_from(n).unwrap_or(if n < 0 {
+        i32::MIN
+    } else {
+        i32::MAX
+    }))
 }
 
 /// A positive number as a power of ten: "10⁻²⁷", or "2×10⁻²⁷".
