@@ -423,26 +423,37 @@ impl CrossWelch {
             return;
         }
         let len = a.len().min(b.len());
-        self.pending_a
-            .extend_from_slice(a.get(..len).unwrap_or(&[]));
-        self.pending_b
-            .extend_from_slice(b.get(..len).unwrap_or(&[]));
+        let mut rest_a = a.get(..len).unwrap_or(&[]);
+        let mut rest_b = b.get(..len).unwrap_or(&[]);
         let span = self.span();
-        while self.pending_a.len() >= span && self.room() >= self.group {
-            self.take(self.group);
-            self.collect(false);
+        // The held buffers fill up to one group's span and are then handed over as the job's
+        // own buffers; only the overlap (N − D samples) is copied back: each sample is copied
+        // about once, not first into the held buffer and then into a job.
+        while !rest_a.is_empty() && self.room() >= self.group {
+            let want = span.saturating_sub(self.pending_a.len()).min(rest_a.len());
+            let (now_a, later_a) = rest_a.split_at(want);
+            let (now_b, later_b) = rest_b.split_at(want);
+            self.pending_a.extend_from_slice(now_a);
+            self.pending_b.extend_from_slice(now_b);
+            rest_a = later_a;
+            rest_b = later_b;
+            if self.pending_a.len() >= span {
+                self.hand_over();
+                self.collect(false);
+            }
         }
         if self.is_complete() {
             self.pending_a.clear();
             self.pending_b.clear();
+            return;
         }
+        self.pending_a.extend_from_slice(rest_a);
+        self.pending_b.extend_from_slice(rest_b);
     }
 
-    /// Sends (or does here) the next `count` segment positions and drops their samples.
-    fn take(&mut self, count: usize) {
-        let span = (count - 1) * self.hop + self.n;
-        let mut job = self
-            .pool
+    /// A job buffer: a free one, or a new one.
+    fn job_buffer(&mut self) -> Job {
+        self.pool
             .as_mut()
             .and_then(|p| p.free.pop())
             .or_else(|| self.local.take())
@@ -453,7 +464,31 @@ impl CrossWelch {
                 b: Vec::new(),
                 rows: Vec::new(),
                 accepted: 0,
-            });
+            })
+    }
+
+    /// Sends one whole group made of the held samples (at least one span): the held buffers
+    /// become the job's, and the samples after the group's advance are copied back.
+    fn hand_over(&mut self) {
+        let mut job = self.job_buffer();
+        job.count = self.group;
+        let advance = self.group * self.hop;
+        job.a.clear();
+        job.b.clear();
+        job.a
+            .extend_from_slice(self.pending_a.get(advance..).unwrap_or(&[]));
+        job.b
+            .extend_from_slice(self.pending_b.get(advance..).unwrap_or(&[]));
+        std::mem::swap(&mut job.a, &mut self.pending_a);
+        std::mem::swap(&mut job.b, &mut self.pending_b);
+        self.send(job);
+    }
+
+    /// Sends (or does here) the next `count` segment positions of the held samples and drops
+    /// the samples they advance past.
+    fn take(&mut self, count: usize) {
+        let span = (count - 1) * self.hop + self.n;
+        let mut job = self.job_buffer();
         job.count = count;
         job.a.clear();
         job.b.clear();
@@ -464,7 +499,12 @@ impl CrossWelch {
         let advance = (count * self.hop).min(self.pending_a.len());
         self.pending_a.drain(..advance);
         self.pending_b.drain(..advance);
-        self.positions += count;
+        self.send(job);
+    }
+
+    /// Sends `job` to a worker (or transforms it here) and counts its positions.
+    fn send(&mut self, mut job: Job) {
+        self.positions += job.count;
         let bins = self.sums.bins;
         if let Some(pool) = self.pool.as_mut() {
             while pool.next_seq - pool.next_apply >= pool.max_in_flight as u64 {
@@ -695,6 +735,39 @@ mod tests {
         many.flush();
         assert_eq!(one.spectrum(), many.spectrum());
         assert_eq!(one.segments(), (300_000 - 1000) / 500 + 1);
+    }
+
+    #[test]
+    fn uneven_blocks_and_limits_give_the_same_bits_as_one_push() {
+        // Blocks of 1 sample to several group spans, with and without workers, and an average
+        // limit that falls inside a group: the same segments, summed in the same order.
+        let a = noise(400_000, 8);
+        let b = noise(400_000, 9);
+        for max_averages in [None, Some(37), Some(600)] {
+            let mut config = WelchConfig::new(1.0, 1000);
+            config.max_averages = max_averages;
+            let mut one = CrossWelch::new(config.clone()).unwrap();
+            one.push(&a, &b);
+            one.flush();
+            for threads in [1, 2] {
+                let mut many = CrossWelch::new(config.clone())
+                    .unwrap()
+                    .with_threads(threads);
+                let sizes = [1, 499, 1000, 70_000, 3, 150_001];
+                let mut at = 0;
+                for size in sizes.iter().cycle() {
+                    if at >= a.len() {
+                        break;
+                    }
+                    let end = (at + size).min(a.len());
+                    many.push(&a[at..end], &b[at..end]);
+                    at = end;
+                }
+                many.flush();
+                assert_eq!(one.spectrum(), many.spectrum(), "{max_averages:?} {threads}");
+                assert_eq!(one.segments(), many.segments());
+            }
+        }
     }
 
     #[test]
