@@ -1100,6 +1100,54 @@ fn bench_reports_throughput_headroom_and_floor() {
     assert!(!stdout(&text).contains("Live path"), "{}", stdout(&text));
 }
 
+/// `bench --channels 2`: the cross-spectral averager's throughput per channel beside the
+/// single-channel one, and the live path with two interleaved channels (paced at 50 kS/s per
+/// channel for 0.5 s: every one of the 25 000 frames averaged, none lost).
+#[test]
+fn bench_two_channels_measures_the_cross_averager_and_the_live_pair() {
+    let output = run(&[
+        "bench",
+        "--rate",
+        "5e4",
+        "--segment",
+        "1024",
+        "--seconds",
+        "0.3",
+        "--channels",
+        "2",
+        "--live",
+        "tcp",
+        "--json",
+    ]);
+    assert_success(&output, "bench --channels 2");
+    let v: serde_json::Value = serde_json::from_str(&stdout(&output)).expect("bench JSON");
+    assert_eq!(v["channels"].as_u64(), Some(2), "{v}");
+    let single = v["throughput_samples_per_s"].as_f64().unwrap();
+    let cross = v["cross_throughput_samples_per_s"].as_f64().unwrap();
+    let ratio = v["cross_ratio"].as_f64().unwrap();
+    assert!(
+        cross > 0.0 && ((ratio - cross / single) / ratio).abs() < 1e-9,
+        "{v}"
+    );
+    assert!(
+        (v["headroom"].as_f64().unwrap() - cross / 5e4).abs() < 1e-9 * cross,
+        "{v}"
+    );
+    assert_eq!(v["live_errors"], serde_json::json!([]), "{v}");
+    let live = v["live"].as_array().expect("bench JSON lacks live[]");
+    assert_eq!(live.len(), 2, "{v}");
+    for run in live {
+        assert_eq!(run["channels"].as_u64(), Some(2), "{run}");
+        assert!(run["segments"].as_u64().unwrap() >= 1, "{run}");
+        if run["paced_rate_hz"].as_f64().is_some() {
+            assert_eq!(run["samples_lost_at_source"].as_u64(), Some(0), "{run}");
+            assert_eq!(run["samples_averaged"].as_u64(), Some(25_000), "{run}");
+        }
+    }
+    let bad = run(&["bench", "--channels", "3", "--live", "none"]);
+    assert_eq!(bad.status.code(), Some(2), "--channels 3 must be refused");
+}
+
 /// `synth thermal` → `analyze`: the fitted mode and the tone calibration recover the
 /// synthesiser's truth within 4 reported standard deviations (and the reported σ are not
 /// absurdly large: ≤ 10 % of the value). The truth comes from the sidecar, i.e. from the

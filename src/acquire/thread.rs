@@ -556,8 +556,19 @@ impl Worker {
                 self.count_dropped(n);
                 continue;
             }
-            let mut block = std::mem::take(&mut buf);
-            block.truncate(n);
+            let block = if n < want / 2 {
+                // A short read (a pipe hands over at most its 64 KiB): copy it into a
+                // recycled block and keep this full-length one, instead of handing it over
+                // and zero-filling it to full length again before the next read.
+                let mut small = self.recycled.try_recv().unwrap_or_default();
+                small.clear();
+                small.extend_from_slice(buf.get(..n).unwrap_or(&[]));
+                small
+            } else {
+                let mut block = std::mem::take(&mut buf);
+                block.truncate(n);
+                block
+            };
             if self.deliver(block) == Flow::Stop {
                 return Ok(());
             }

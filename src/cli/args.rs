@@ -696,6 +696,11 @@ pub struct BenchArgs {
     /// paced at --rate with a 50 ms FIFO at the source, counting lost samples.
     #[arg(long, value_enum, default_value = "both", value_name = "WHICH")]
     pub live: LiveChoice,
+    /// Channels: 1, or 2 for two interleaved channels averaged with their cross-spectrum
+    /// (as `--cross-channel 1` reads them); --rate is then the rate of each channel.
+    #[arg(long, default_value_t = 1, value_name = "N",
+          value_parser = clap::value_parser!(u64).range(1..=2))]
+    pub channels: u64,
     /// Internal: be the generator process of another `stillpoint bench` (raw little-endian
     /// f32 to stdout, or to the first client of a loopback TCP listener whose port is
     /// printed on stdout first) for --seconds.

@@ -35,6 +35,14 @@ struct BenchOutput {
     headroom: f64,
     /// headroom > 1.
     keeps_up: bool,
+    /// Channels measured (`--channels`): 2 adds the cross-spectral averager.
+    channels: usize,
+    /// Median throughput of the two-channel cross-spectral averager, samples per second
+    /// *per channel* (`--channels 2`).
+    cross_throughput_samples_per_s: Option<f64>,
+    /// cross / single-channel throughput on the same samples per channel (ideal 0.5:
+    /// twice the transforms).
+    cross_ratio: Option<f64>,
     /// Median FFT-only floor on one thread, samples per second.
     fft_floor_samples_per_s: f64,
     /// throughput / floor (1 = as fast as the bare FFT on one thread).
@@ -57,7 +65,7 @@ struct BenchOutput {
 pub fn run(args: &BenchArgs) -> Result<ExitCode> {
     if let Some(to) = args.emit {
         let rate = args.emit_paced.then_some(args.rate);
-        bench_live::run_generator(to, rate, args.seconds)?;
+        bench_live::run_generator(to, rate, args.seconds, args.channels as usize)?;
         return Ok(ExitCode::SUCCESS);
     }
     let welch_args = super::args::WelchArgs {
@@ -76,15 +84,23 @@ pub fn run(args: &BenchArgs) -> Result<ExitCode> {
     let slice_s = args.seconds / (2 * RUNS) as f64;
     let mut welch_rates = Vec::with_capacity(RUNS);
     let mut floor_rates = Vec::with_capacity(RUNS);
+    let mut cross_rates = Vec::with_capacity(RUNS);
+    let channels = args.channels as usize;
     for _ in 0..RUNS {
         let report = bench::compare(&welch, slice_s, threads)?;
         welch_rates.push(report.welch.samples_per_s);
         floor_rates.push(report.fft_floor.samples_per_s);
+        // Interleaved with the single-channel runs, so both see the same machine load.
+        if channels == 2 {
+            cross_rates.push(bench::cross_throughput(&welch, slice_s, threads)?.samples_per_s);
+        }
     }
+    let cross_throughput = (channels == 2).then(|| median(&mut cross_rates));
     let throughput = median(&mut welch_rates);
     let floor = median(&mut floor_rates);
     let plot_prep_ms = crate::model::bench_plot_prep(RUNS).as_secs_f64() * 1e3;
-    let headroom = throughput / args.rate;
+    // With two channels the rate is per channel and the cross-spectral averager must keep up.
+    let headroom = cross_throughput.unwrap_or(throughput) / args.rate;
     let transports: &[LiveTransport] = match args.live {
         LiveChoice::None => &[],
         LiveChoice::Pipe => &[LiveTransport::Pipe],
@@ -98,7 +114,7 @@ pub fn run(args: &BenchArgs) -> Result<ExitCode> {
         for rate in [None, Some(args.rate)] {
             // A live path this machine cannot run (no loopback, no process spawning) is
             // reported, not fatal: the averager's figures still stand.
-            match bench_live::measure(transport, &welch, threads, rate, live_s) {
+            match bench_live::measure(transport, &welch, threads, rate, live_s, channels) {
                 Ok(run) => live.push(run),
                 Err(e) => {
                     let text = format!("live {transport:?} measurement failed: {e:#}");
@@ -116,6 +132,9 @@ pub fn run(args: &BenchArgs) -> Result<ExitCode> {
         threads,
         runs: RUNS,
         throughput_samples_per_s: throughput,
+        channels,
+        cross_throughput_samples_per_s: cross_throughput,
+        cross_ratio: cross_throughput.map(|c| c / throughput.max(1e-300)),
         headroom,
         keeps_up: headroom > 1.0,
         fft_floor_samples_per_s: floor,
@@ -187,6 +206,14 @@ fn write_text(out: &mut dyn Write, r: &BenchOutput) -> io::Result<()> {
         r.fft_floor_samples_per_s / 1e6,
         r.ratio_to_floor
     )?;
+    if let (Some(cross), Some(ratio)) = (r.cross_throughput_samples_per_s, r.cross_ratio) {
+        writeln!(
+            out,
+            "  two channels + cross-spectrum {:.1} MS/s per channel → {:.2}× the one-channel figure (ideal 0.5)",
+            cross / 1e6,
+            ratio
+        )?;
+    }
     writeln!(
         out,
         "Window plot preparation (10⁶-bin spectrum → screen columns): {:.2} ms per frame ({} a 60 fps frame of {:.1} ms)",
@@ -202,9 +229,14 @@ fn write_text(out: &mut dyn Write, r: &BenchOutput) -> io::Result<()> {
         writeln!(
             out,
             "Live path: raw f32 from a generator process → acquisition thread → averager \
-             ({} thread{})",
+             ({} thread{}{})",
             r.threads,
-            if r.threads == 1 { "" } else { "s" }
+            if r.threads == 1 { "" } else { "s" },
+            if r.channels == 2 {
+                "; two interleaved channels with cross-spectrum, rates per channel"
+            } else {
+                ""
+            }
         )?;
     }
     for run in &r.live {

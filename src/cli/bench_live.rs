@@ -42,9 +42,9 @@ const ACCEPT_TIMEOUT: Duration = Duration::from_secs(20);
 /// What the generator process reports on its stderr when it ends (one JSON line).
 #[derive(Debug, Clone, Copy, Default, Serialize, Deserialize)]
 pub struct GeneratorReport {
-    /// Samples written to the pipe or socket.
+    /// Samples (frames, with several channels) written to the pipe or socket.
     pub samples_written: u64,
-    /// Samples the simulated digitiser produced but could not hold (paced runs only).
+    /// Samples (frames) the simulated digitiser produced but could not hold (paced runs only).
     pub samples_lost: u64,
     /// Wall time from the first write to the last, s.
     pub elapsed_s: f64,
@@ -57,13 +57,15 @@ pub struct LiveRun {
     pub transport: &'static str,
     /// Requested rate of a paced run (Hz); `None`: as fast as possible.
     pub paced_rate_hz: Option<f64>,
-    /// Samples that went through the Welch averager.
+    /// Interleaved channels in the stream (2: averaged with their cross-spectrum).
+    pub channels: usize,
+    /// Samples (per channel) that went through the averager.
     pub samples_averaged: u64,
     /// Wall time from starting the source to the last segment averaged, s.
     pub elapsed_s: f64,
-    /// samples_averaged / elapsed_s.
+    /// samples_averaged / elapsed_s (per channel).
     pub samples_per_s: f64,
-    /// Samples the generator lost because its FIFO overflowed (paced runs).
+    /// Samples (per channel) the generator lost because its FIFO overflowed (paced runs).
     pub samples_lost_at_source: u64,
     /// Blocks the acquisition thread dropped (always 0: the headless path blocks instead).
     pub dropped_blocks: u64,
@@ -73,17 +75,23 @@ pub struct LiveRun {
 
 /// Runs the generator (`stillpoint bench --emit pipe|tcp`): raw little-endian f32 to stdout
 /// (`pipe`) or to the first TCP client of a loopback listener whose port is printed on
-/// stdout first, paced at `rate` or (`None`) as fast as possible, for `seconds`.
+/// stdout first, paced at `rate` or (`None`) as fast as possible, for `seconds`; `channels`
+/// interleaved channels (`rate` and the report in frames).
 ///
 /// # Errors
 /// The listener cannot be made or nobody connects; a write fails other than by the reader
 /// going away.
-pub fn run_generator(to: LiveTransport, rate: Option<f64>, seconds: f64) -> Result<()> {
+pub fn run_generator(
+    to: LiveTransport,
+    rate: Option<f64>,
+    seconds: f64,
+    channels: usize,
+) -> Result<()> {
     let report = match to {
         LiveTransport::Pipe => {
             let stdout = io::stdout();
             let mut out = stdout.lock();
-            generate(&mut out, rate, seconds)?
+            generate(&mut out, rate, seconds, channels)?
         }
         LiveTransport::Tcp => {
             let listener = TcpListener::bind("127.0.0.1:0").context("cannot listen on loopback")?;
@@ -95,7 +103,7 @@ pub fn run_generator(to: LiveTransport, rate: Option<f64>, seconds: f64) -> Resu
                 out.flush().context("cannot write the port")?;
             }
             let mut stream = accept_one(&listener)?;
-            let report = generate(&mut stream, rate, seconds)?;
+            let report = generate(&mut stream, rate, seconds, channels)?;
             let _ = stream.shutdown(std::net::Shutdown::Both);
             report
         }
@@ -128,18 +136,36 @@ fn accept_one(listener: &TcpListener) -> Result<TcpStream> {
 
 /// Writes f32 samples: unpaced (`rate` = None) until `seconds` pass or the reader goes away;
 /// paced: `rate × seconds` samples on a clock, with a FIFO of [`FIFO_SECONDS`].
-fn generate(out: &mut dyn Write, rate: Option<f64>, seconds: f64) -> Result<GeneratorReport> {
+///
+/// With `channels` > 1 the stream is interleaved frames: `rate` is frames per second, and
+/// writes and losses are whole frames (a digitiser loses frames, never half of one); the
+/// report counts frames.
+fn generate(
+    out: &mut dyn Write,
+    rate: Option<f64>,
+    seconds: f64,
+    channels: usize,
+) -> Result<GeneratorReport> {
     let samples = crate::dsp::bench::synthetic_samples(BUFFER_SAMPLES, 7);
     let bytes: Vec<u8> = samples
         .iter()
         .flat_map(|&s| (s as f32).to_le_bytes())
         .collect();
-    let chunk_bytes = CHUNK_SAMPLES * 4;
+    let channels = channels.max(1);
+    let frame_bytes = 4 * channels;
+    // Frames per write (the FIFO's least size, so its time does not shrink with channels);
+    // the looped buffer is a whole number of frames.
+    let chunk_frames = CHUNK_SAMPLES;
+    let bytes = bytes
+        .get(..bytes.len() - bytes.len() % frame_bytes)
+        .unwrap_or(&[])
+        .to_vec();
+    let chunk_bytes = chunk_frames * frame_bytes;
     let mut report = GeneratorReport::default();
     let mut offset = 0_usize;
     let start = Instant::now();
     let total = rate.map(|r| (r * seconds) as u64);
-    let fifo = rate.map_or(0, |r| (r * FIFO_SECONDS).max(CHUNK_SAMPLES as f64) as u64);
+    let fifo = rate.map_or(0, |r| (r * FIFO_SECONDS).max(chunk_frames as f64) as u64);
     // Paced: samples produced by the clock so far, whether written or lost.
     let mut produced_done = 0_u64;
     loop {
@@ -157,23 +183,25 @@ fn generate(out: &mut dyn Write, rate: Option<f64>, seconds: f64) -> Result<Gene
                     produced_done += backlog - fifo;
                 }
                 let backlog = produced - produced_done;
-                if backlog < (CHUNK_SAMPLES as u64).min(total - produced_done) {
+                if backlog < (chunk_frames as u64).min(total - produced_done) {
                     std::thread::sleep(Duration::from_micros(100));
                     continue;
                 }
-                (backlog as usize).min(CHUNK_SAMPLES)
+                (backlog as usize).min(chunk_frames)
             }
             _ => {
                 if now >= seconds {
                     break;
                 }
-                CHUNK_SAMPLES
+                chunk_frames
             }
         };
-        if offset + want * 4 > bytes.len() {
+        if offset + want * frame_bytes > bytes.len() {
             offset = 0;
         }
-        let piece = bytes.get(offset..offset + want * 4).unwrap_or(&[]);
+        let piece = bytes
+            .get(offset..offset + want * frame_bytes)
+            .unwrap_or(&[]);
         offset = (offset + chunk_bytes) % bytes.len();
         match out.write_all(piece) {
             Ok(()) => {}
@@ -201,7 +229,15 @@ struct Link {
     reader: Box<dyn SampleReader>,
 }
 
-fn start_link(transport: LiveTransport, rate: Option<f64>, seconds: f64) -> Result<Link> {
+/// Starts the generator and opens the receiving reader; with `channels` 2 the generator's
+/// stream is read as interleaved pairs (its sample rate is `channels × rate`) and the reader
+/// delivers both channels.
+fn start_link(
+    transport: LiveTransport,
+    rate: Option<f64>,
+    seconds: f64,
+    channels: usize,
+) -> Result<Link> {
     let exe = std::env::current_exe().context("cannot find this program to start the generator")?;
     let mut command = Command::new(exe);
     command
@@ -213,6 +249,8 @@ fn start_link(transport: LiveTransport, rate: Option<f64>, seconds: f64) -> Resu
         })
         .arg("--seconds")
         .arg(seconds.to_string())
+        .arg("--channels")
+        .arg(channels.to_string())
         .stdin(Stdio::null())
         .stdout(Stdio::piped())
         .stderr(Stdio::piped());
@@ -236,12 +274,16 @@ fn start_link(transport: LiveTransport, rate: Option<f64>, seconds: f64) -> Resu
             let format = RawFormat {
                 sample_format: SampleFormat::F32,
                 endian: Endian::Little,
-                channels: 1,
+                channels,
                 channel: 0,
                 sample_rate_hz: nominal_rate,
                 volts_per_unit: 1.0,
             };
-            Box::new(RawReader::new(stdout, format)?)
+            let mut reader = RawReader::new(stdout, format)?;
+            if channels == 2 {
+                reader.pair_with(1)?;
+            }
+            Box::new(reader)
         }
         LiveTransport::Tcp => {
             let mut line = String::new();
@@ -257,6 +299,8 @@ fn start_link(transport: LiveTransport, rate: Option<f64>, seconds: f64) -> Resu
             )));
             config.sample_format = Some(SampleFormat::F32);
             config.rate_hz = Some(nominal_rate);
+            config.channels = channels;
+            config.cross_channel = (channels == 2).then_some(1);
             match acquire::open(&config) {
                 Ok(reader) => reader,
                 Err(e) => {
@@ -300,14 +344,19 @@ pub fn measure(
     threads: usize,
     rate: Option<f64>,
     seconds: f64,
+    channels: usize,
 ) -> Result<LiveRun> {
-    let Link { mut child, reader } = start_link(transport, rate, seconds)?;
+    let Link { mut child, reader } = start_link(transport, rate, seconds, channels)?;
     let stop_after = match rate {
         Some(_) => None,
         None => Some(Duration::from_secs_f64(seconds)),
     };
     let start = Instant::now();
-    let streamed = pipeline::average_stream(reader, welch, threads, stop_after);
+    let streamed = if channels == 2 {
+        super::cross::average_cross_stream(reader, welch, threads, stop_after)
+    } else {
+        pipeline::average_stream(reader, welch, threads, stop_after)
+    };
     let elapsed_s = start.elapsed().as_secs_f64();
     let streamed = match streamed {
         Ok(s) => s,
@@ -324,6 +373,7 @@ pub fn measure(
             LiveTransport::Tcp => "tcp",
         },
         paced_rate_hz: rate,
+        channels,
         samples_averaged: streamed.samples_averaged,
         elapsed_s,
         samples_per_s: streamed.samples_averaged as f64 / elapsed_s.max(1e-9),

@@ -179,6 +179,66 @@ fn feed(
     }
 }
 
+/// Averages the two channels `reader` delivers (it must be paired, see
+/// [`crate::acquire::SampleReader::pair_with`]) through the same acquisition thread and
+/// [`CrossWelch`] as `spectrum --cross-channel`, until the stream ends or `stop_after` has
+/// passed (for `stillpoint bench --channels 2`). `samples_averaged` counts samples per
+/// channel.
+///
+/// # Errors
+/// Invalid settings; the stream fails.
+pub(crate) fn average_cross_stream(
+    reader: Box<dyn acquire::SampleReader>,
+    welch: &crate::dsp::WelchConfig,
+    threads: usize,
+    stop_after: Option<std::time::Duration>,
+) -> Result<pipeline::Streamed> {
+    let mut averager = CrossWelch::new(welch.clone())?.with_threads(threads);
+    let mut options = pipeline::headless_options(welch.segment, welch.hop(), threads);
+    options.block_samples = options.block_samples.saturating_mul(2);
+    let acquisition = Acquisition::spawn(reader, options, None)?;
+    let deadline = stop_after.map(|d| std::time::Instant::now() + d);
+    let mut frames: u64 = 0;
+    loop {
+        let event = match deadline {
+            Some(deadline) => match acquisition.events().recv_deadline(deadline) {
+                Ok(event) => event,
+                Err(crossbeam_channel::RecvTimeoutError::Timeout) => break,
+                Err(crossbeam_channel::RecvTimeoutError::Disconnected) => {
+                    anyhow::bail!("the acquisition thread ended without saying why")
+                }
+            },
+            None => match acquisition.events().recv() {
+                Ok(event) => event,
+                Err(_) => anyhow::bail!("the acquisition thread ended without saying why"),
+            },
+        };
+        match event {
+            AcqEvent::Block(block) => {
+                let half = block.len() / 2;
+                let (a, b) = block.split_at(half);
+                averager.push(a, b.get(..half).unwrap_or(b));
+                frames += half as u64;
+                acquisition.recycle(block);
+                if averager.is_complete() {
+                    break;
+                }
+            }
+            AcqEvent::Gap { .. } => averager.discard_pending(),
+            AcqEvent::Status(_) => {}
+            AcqEvent::Stopped(None) => break,
+            AcqEvent::Stopped(Some(error)) => return Err(error.into()),
+        }
+    }
+    drop(acquisition);
+    averager.flush();
+    Ok(pipeline::Streamed {
+        samples_averaged: frames,
+        segments: averager.segments(),
+        dropped_blocks: 0,
+    })
+}
+
 /// `stillpoint spectrum --cross-channel J`.
 ///
 /// # Errors

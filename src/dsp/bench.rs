@@ -158,6 +158,50 @@ pub fn fft_floor(config: &WelchConfig, duration_s: f64) -> Result<Throughput> {
     })
 }
 
+/// Measures the two-channel cross-spectral averager ([`super::cross::CrossWelch`]: both
+/// PSDs and the cross-spectral density) for about `duration_s` seconds of wall time on
+/// `threads` worker threads. `samples` and `samples_per_s` count samples *per channel*, so
+/// they compare directly with [`welch_throughput`] (ideal: half of it, twice the work).
+///
+/// # Errors
+/// Invalid settings.
+pub fn cross_throughput(
+    config: &WelchConfig,
+    duration_s: f64,
+    threads: usize,
+) -> Result<Throughput> {
+    let mut config = config.clone();
+    config.max_averages = None;
+    config.averaging = super::Averaging::Linear;
+    let mut cross = super::cross::CrossWelch::new(config.clone())?.with_threads(threads);
+    let a = synthetic_samples(record_len(&config), 1);
+    let b = synthetic_samples(a.len(), 2);
+    let per_pass = ((a.len() - config.segment) / config.hop() + 1) as u64;
+    let start = Instant::now();
+    let mut segments = 0u64;
+    let mut passes = 0u64;
+    loop {
+        cross.push(&a, &b);
+        segments += per_pass;
+        passes += 1;
+        cross.discard_pending();
+        if start.elapsed().as_secs_f64() >= duration_s {
+            break;
+        }
+    }
+    cross.flush();
+    let elapsed_s = start.elapsed().as_secs_f64().max(1e-9);
+    std::hint::black_box(cross.spectrum());
+    let samples = passes * a.len() as u64;
+    Ok(Throughput {
+        samples,
+        segments,
+        elapsed_s,
+        samples_per_s: samples as f64 / elapsed_s,
+        threads: threads.clamp(1, 64),
+    })
+}
+
 /// Runs both measurements, each for about `duration_s`.
 ///
 /// # Errors
@@ -184,6 +228,8 @@ mod tests {
         assert!(r.welch.samples_per_s.is_finite() && r.welch.samples_per_s > 0.0);
         assert!(r.cost_over_floor.is_finite() && r.cost_over_floor > 0.0);
         assert!(welch_throughput(&WelchConfig::new(0.0, 256), 0.01, 1).is_err());
+        let c = cross_throughput(&config, 0.02, 2).unwrap();
+        assert!(c.segments > 0 && c.samples_per_s.is_finite() && c.samples_per_s > 0.0);
         let x = synthetic_samples(1000, 3);
         assert!(x.iter().all(|v| (-1.0..1.0).contains(v)));
     }

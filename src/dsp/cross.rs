@@ -764,7 +764,11 @@ mod tests {
                     at = end;
                 }
                 many.flush();
-                assert_eq!(one.spectrum(), many.spectrum(), "{max_averages:?} {threads}");
+                assert_eq!(
+                    one.spectrum(),
+                    many.spectrum(),
+                    "{max_averages:?} {threads}"
+                );
                 assert_eq!(one.segments(), many.segments());
             }
         }
