@@ -430,7 +430,9 @@ fn below_floor_recovery_and_pulls_over_many_seeds() {
         mode_band_hz: Some((60.0, 440.0)),
         ..AnalysisOptions::default()
     };
-    let seeds = 40;
+    // 100 seeds: the sd of a pull is then known to ±7 % (40 seeds gave 1.07/1.24/1.32 on
+    // the first seeds by chance; 160 seeds give 1.08/0.99/0.98).
+    let seeds = 100;
     let (mut ok, mut pulls) = (0, [Vec::new(), Vec::new(), Vec::new()]);
     for seed in 0..seeds {
         let mut rng = SplitMix(1000 + seed);
@@ -494,8 +496,8 @@ fn below_floor_recovery_and_pulls_over_many_seeds() {
             "pull {name}: mean {mean:+.3}, sd {sd:.3}, 1σ coverage {covered:.2} ({} seeds)",
             v.len()
         );
-        assert!(mean.abs() < 0.4, "{name} pull mean {mean}");
-        assert!((0.7..1.35).contains(&sd), "{name} pull sd {sd}");
+        assert!(mean.abs() < 0.35, "{name} pull mean {mean}");
+        assert!((0.8..1.25).contains(&sd), "{name} pull sd {sd}");
         assert!((0.52..0.85).contains(&covered), "{name} coverage {covered}");
     }
     eprintln!("recovered {ok} of {seeds} (f within 3σ, γ within 25 %, area within 20 %)");
