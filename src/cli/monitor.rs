@@ -53,13 +53,6 @@ pub fn run_demo(window: &WindowOptions) -> Result<ExitCode> {
 /// # Errors
 /// Bad options, or the window could not be created, or this build has none.
 pub fn run(args: &MonitorArgs, matches: Option<&ArgMatches>) -> Result<ExitCode> {
-    if args.source.cross_channel.is_some() {
-        return Err(super::InputError(
-            "--cross-channel works with spectrum and analyze only (the window shows one channel)"
-                .into(),
-        )
-        .into());
-    }
     #[cfg(feature = "gui")]
     {
         let options = monitor_options(args, matches)?;

@@ -17,7 +17,8 @@ use super::{ModelError, Result};
 use crate::acquire::{
     self, AcqCommand, AcqEvent, AcqOptions, AcqStatus, Acquisition, SourceConfig, SourceSpec,
 };
-use crate::dsp::{Spectrum, Welch};
+use crate::dsp::cross::{CrossSpectrum, CrossWelch};
+use crate::dsp::{Averaging, Spectrum, Welch};
 use crate::report::{self, AnalysisOptions, Report};
 
 /// Closure that wakes the window (the window passes `ctx.request_repaint()`).
@@ -168,7 +169,12 @@ pub struct Frame {
     /// log10 of `spectrum`'s PSD in V²/Hz (NaN where the PSD is not positive), computed here
     /// so the window only decimates and maps (see [`super::state::unit_affine`]).
     pub log_psd: Option<Arc<Vec<f64>>>,
-    /// Analysis of that spectrum.
+    /// Two detectors (`cross_channel` set on the source): both channels' PSDs, the
+    /// cross-spectral density and the coherence, of which `spectrum` is channel a.
+    pub cross: Option<Arc<CrossSpectrum>>,
+    /// The two channels (a, b) of `cross`.
+    pub cross_channels: Option<(usize, usize)>,
+    /// Analysis of that spectrum (with two detectors: the mode fitted on Re P_ab).
     pub report: Option<Arc<Report>>,
     /// Why the analysis failed (bad options), if it did.
     pub analysis_error: Option<String>,
@@ -332,6 +338,10 @@ struct Worker {
     started: Instant,
     source: Option<Source>,
     welch: Option<Welch>,
+    /// Two detectors: the cross-spectral averager, used instead of `welch`.
+    cross: Option<CrossWelch>,
+    /// Its newest estimate.
+    cross_spectrum: Option<Arc<CrossSpectrum>>,
     sample_rate_hz: f64,
     generation: u64,
     status: EngineStatus,
@@ -379,6 +389,8 @@ impl Worker {
             started: Instant::now(),
             source: None,
             welch: None,
+            cross: None,
+            cross_spectrum: None,
             sample_rate_hz: 0.0,
             generation: 0,
             status: EngineStatus::default(),
@@ -401,6 +413,14 @@ impl Worker {
             history_now: false,
             marks: Vec::new(),
         }
+    }
+
+    /// The channels (a, b) when two detectors are read.
+    fn cross_channels(&self) -> Option<(usize, usize)> {
+        self.config
+            .source
+            .cross_channel
+            .map(|b| (self.config.source.channel, b))
     }
 
     fn mark(&mut self, text: String) {
@@ -458,6 +478,7 @@ impl Worker {
             Ok((source, rate, description)) => {
                 self.generation += 1;
                 self.spectrum = None;
+                self.cross_spectrum = None;
                 self.frequencies_hz = None;
                 self.log_psd = None;
                 self.report = None;
@@ -495,23 +516,35 @@ impl Worker {
     }
 
     fn rebuild_welch(&mut self) {
-        let cfg = self
+        let mut cfg = self
             .config
             .welch
             .to_config_for(self.sample_rate_hz, self.source_kind);
         let segment = cfg.segment;
-        match Welch::new(cfg) {
-            Ok(w) => {
-                self.welch = Some(w);
-                self.segments_at_analysis = 0;
+        self.welch = None;
+        self.cross = None;
+        self.cross_spectrum = None;
+        self.segments_at_analysis = 0;
+        if self.config.source.cross_channel.is_some() {
+            // The cross-spectrum is a mean: its uncorrelated residual falls as 1/√K_eff only
+            // for a linear average (METHODS.md §10), so two detectors always average linearly.
+            cfg.averaging = Averaging::Linear;
+            match CrossWelch::new(cfg) {
+                Ok(c) => self.cross = Some(c),
+                Err(e) => self.notice(EngineNotice::Error(format!("averaging settings: {e}"))),
             }
-            Err(e) => {
-                self.welch = None;
-                self.notice(EngineNotice::Error(format!("Welch settings: {e}")));
+        } else {
+            match Welch::new(cfg) {
+                Ok(w) => self.welch = Some(w),
+                Err(e) => self.notice(EngineNotice::Error(format!("averaging settings: {e}"))),
             }
         }
         self.status.segment = segment;
-        self.status.averaging = self.config.welch.describe_for(self.source_kind);
+        self.status.averaging = if self.cross.is_some() {
+            "mean (two detectors: the cross-spectrum is a linear average)".to_string()
+        } else {
+            self.config.welch.describe_for(self.source_kind)
+        };
         self.status.max_averages_reached = None;
         self.dirty = true;
     }
@@ -528,6 +561,9 @@ impl Worker {
                 self.status.max_averages_reached = None;
                 if let Some(w) = self.welch.as_mut() {
                     w.restart();
+                }
+                if self.cross.is_some() {
+                    self.rebuild_welch();
                 }
                 self.segments_at_analysis = 0;
                 self.dirty = true;
@@ -589,17 +625,36 @@ impl Worker {
     fn event(&mut self, event: AcqEvent) {
         match event {
             AcqEvent::Block(block) => {
-                self.status.samples += block.len() as u64;
+                // Samples per channel (a paired block holds both channels).
+                let per_channel = if self.cross.is_some() {
+                    block.len() / 2
+                } else {
+                    block.len()
+                };
+                self.status.samples += per_channel as u64;
                 self.block_arrived(block.len());
                 if self.status.paused {
                     self.skipped_while_paused = true;
                     return;
                 }
-                if std::mem::take(&mut self.skipped_while_paused)
-                    && let Some(w) = self.welch.as_mut()
-                {
+                if std::mem::take(&mut self.skipped_while_paused) {
                     // The frozen blocks are missing: no segment spans them.
-                    w.discard_pending();
+                    if let Some(w) = self.welch.as_mut() {
+                        w.discard_pending();
+                    }
+                    if let Some(c) = self.cross.as_mut() {
+                        c.discard_pending();
+                    }
+                }
+                if let Some(c) = self.cross.as_mut() {
+                    // A paired block: n samples of channel a, then n of channel b.
+                    let half = block.len() / 2;
+                    let (a, b) = block.split_at(half);
+                    let before = c.segments();
+                    c.push(a, b.get(..half).unwrap_or(b));
+                    if c.segments() > before {
+                        self.last_segment_arrival = Some(Instant::now());
+                    }
                 }
                 if let Some(w) = self.welch.as_mut()
                     && w.push(&block) > 0
@@ -616,6 +671,9 @@ impl Worker {
                 // themselves are counted in the status.
                 if let Some(w) = self.welch.as_mut() {
                     w.discard_pending();
+                }
+                if let Some(c) = self.cross.as_mut() {
+                    c.discard_pending();
                 }
                 self.status.gaps += 1;
                 if samples == 0 {
@@ -716,7 +774,13 @@ impl Worker {
         let t0 = Instant::now();
         let mut options = self.config.analysis.clone();
         options.mode_band_hz = self.band_hz;
-        let mut result = report::analyze(&spectrum, &options);
+        let cross = self.cross_spectrum.clone();
+        let channels = self.cross_channels();
+        let run = |options: &AnalysisOptions| match (&cross, channels) {
+            (Some(c), Some(ch)) => report::cross::analyze_cross(c, options, ch),
+            _ => report::analyze(&spectrum, options),
+        };
+        let mut result = run(&options);
         if self.config.follow_mode
             && let Ok(r) = &result
         {
@@ -727,7 +791,7 @@ impl Worker {
             if new_band.is_some() && new_band != self.band_hz {
                 self.band_hz = new_band;
                 options.mode_band_hz = new_band;
-                result = report::analyze(&spectrum, &options);
+                result = run(&options);
             }
         }
         match result {
@@ -744,10 +808,23 @@ impl Worker {
 
     fn publish(&mut self) {
         self.last_publish = Instant::now();
-        let segments = self.welch.as_ref().map_or(0, Welch::segments);
+        if let Some(c) = self.cross.as_mut() {
+            // Whole groups wait for their span; every complete segment counts now.
+            c.flush();
+        }
+        let segments = match (&self.welch, &self.cross) {
+            (Some(w), _) => w.segments(),
+            (None, Some(c)) => c.segments(),
+            (None, None) => 0,
+        };
         let fresh = segments != self.segments_at_analysis;
-        if fresh && let Some(w) = &self.welch {
-            self.spectrum = w.spectrum().map(Arc::new);
+        if fresh && (self.welch.is_some() || self.cross.is_some()) {
+            if let Some(w) = &self.welch {
+                self.spectrum = w.spectrum().map(Arc::new);
+            } else if let Some(c) = &self.cross {
+                self.cross_spectrum = c.spectrum().map(Arc::new);
+                self.spectrum = self.cross_spectrum.as_ref().map(|c| Arc::new(c.a.clone()));
+            }
             if let Some(sp) = &self.spectrum {
                 let grid_changed = self.frequencies_hz.as_ref().is_none_or(|f| {
                     f.len() != sp.len() || f.get(1).copied() != Some(sp.resolution_hz)
@@ -777,6 +854,9 @@ impl Worker {
         self.dirty = false;
         if let Some(w) = &self.welch {
             self.status.skipped_segments = w.skipped_segments();
+        }
+        if let Some(c) = &self.cross {
+            self.status.skipped_segments = c.skipped_segments();
         }
         if let Some(s) = &self.spectrum {
             self.status.averages = s.averages;
@@ -834,6 +914,8 @@ impl Worker {
         let frame = Frame {
             generation: self.generation,
             spectrum: self.spectrum.clone(),
+            cross: self.cross_spectrum.clone(),
+            cross_channels: self.cross_channels(),
             frequencies_hz: self.frequencies_hz.clone(),
             log_psd: self.log_psd.clone(),
             report: self.report.clone(),
@@ -1087,6 +1169,56 @@ mod tests {
         assert!(engine.drain_frames().is_empty(), "frames while paused");
         assert!(engine.send(EngineCommand::Resume));
         assert!(engine.recv_frame_timeout(Duration::from_secs(10)).is_some());
+    }
+
+    #[test]
+    fn two_detectors_give_the_cross_spectrum_and_the_mode_on_re_pab() {
+        // The bundled two-detector recording (a line 6 dB below each channel's floor at
+        // 5 kHz, γ = 100 Hz; the gains have opposite signs), played fast.
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("sample-streams")
+            .join("two_detector.wav");
+        let mut source = SourceConfig::new(crate::acquire::SourceSpec::Path(path));
+        source.channel = 0;
+        source.cross_channel = Some(1);
+        let mut cfg = EngineConfig::new(source);
+        cfg.welch.segment = 1024;
+        cfg.welch.segment_auto = false;
+        cfg.playback_speed = Some(50.0);
+        cfg.analysis.mode_band_hz = Some((4400.0, 5600.0));
+        cfg.publish_interval = Duration::from_millis(50);
+        let engine = Engine::start(cfg, Box::new(|| {})).unwrap();
+        let mut last = None;
+        let t0 = Instant::now();
+        while t0.elapsed() < Duration::from_secs(60) {
+            if let Some(f) = engine.recv_frame_timeout(Duration::from_millis(200)) {
+                let done = f.status.ended.is_some() && f.cross.is_some();
+                last = Some(f);
+                if done {
+                    break;
+                }
+            }
+        }
+        let frame = last.expect("no frame");
+        assert_eq!(frame.cross_channels, Some((0, 1)));
+        let cross = frame.cross.expect("no cross-spectrum");
+        let spectrum = frame.spectrum.expect("no spectrum");
+        // Channel a's PSD is the cross-spectrum's, and the average is linear.
+        assert_eq!(spectrum.psd_v2_per_hz, cross.a.psd_v2_per_hz);
+        assert!(matches!(spectrum.averaging, Averaging::Linear));
+        assert!(
+            frame.status.averaging.contains("mean"),
+            "{}",
+            frame.status.averaging
+        );
+        // Every sample per channel was counted (250 000 frames in the recording).
+        assert_eq!(frame.status.samples, 250_000);
+        let report = frame.report.expect("no report");
+        let f_m = report.mode.frequency_hz.expect("no mode on Re P_ab");
+        let sigma = report.mode.frequency_hz_uncertainty.unwrap();
+        assert!((f_m - 5000.0).abs() < 4.0 * sigma + 1.0, "{f_m} ± {sigma}");
+        let c = report.cross.as_ref().expect("no cross keys");
+        assert!(c.coherence_noise_threshold > 0.0 && c.coherence_noise_threshold < 0.1);
     }
 
     #[test]

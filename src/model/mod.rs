@@ -126,6 +126,8 @@ mod tests {
         let frame = |generation: u64, t: f64| Frame {
             generation,
             spectrum: None,
+            cross: None,
+            cross_channels: None,
             frequencies_hz: None,
             log_psd: None,
             report: None,
