@@ -25,10 +25,10 @@ use eframe::egui;
 use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
 use stillpoint::acquire::{SampleFormat, SourceConfig, SourceSpec};
+use stillpoint::analysis::AnalysisOptions;
 use stillpoint::cli::args::{Cli, Command};
 use stillpoint::dsp::Welch;
 use stillpoint::model::{AveragingChoice, Engine, EngineConfig, LiveState, WelchSettings};
-use stillpoint::report::AnalysisOptions;
 use stillpoint::ui::{MonitorOptions, StillpointApp};
 
 const DEADLINE: Duration = Duration::from_secs(60);

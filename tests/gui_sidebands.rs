@@ -12,8 +12,8 @@ use eframe::egui;
 use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
 use stillpoint::acquire::{SourceConfig, SourceSpec};
+use stillpoint::analysis::AnalysisOptions;
 use stillpoint::model::CalibrationMethod;
-use stillpoint::report::AnalysisOptions;
 use stillpoint::ui::{MonitorOptions, StillpointApp};
 
 fn quick(mut o: MonitorOptions) -> MonitorOptions {

@@ -310,14 +310,14 @@ fn thermal_at_bath_is_the_symmetrised_quantum_form() {
         enbw_hz: df,
         psd_v2_per_hz: psd,
     };
-    let opts = stillpoint::report::AnalysisOptions {
+    let opts = stillpoint::analysis::AnalysisOptions {
         m_per_v: Some(1.0),
         mass_kg: Some(m),
         bath_temperature_k: Some(t),
         mode_band_hz: Some((f - 600.0, f + 600.0)),
         ..Default::default()
     };
-    let r = stillpoint::report::analyze(&s, &opts).unwrap();
+    let r = stillpoint::analysis::analyze(&s, &opts).unwrap();
     let fm = r.mode.frequency_hz.unwrap();
     let g = 2.0 * PI * r.mode.linewidth_hz.unwrap();
     let om_fit = 2.0 * PI * fm;
@@ -734,7 +734,7 @@ fn t7_calibration_round_trip() {
         enbw_hz: enbw,
         psd_v2_per_hz: psd,
     };
-    let opts = stillpoint::report::AnalysisOptions {
+    let opts = stillpoint::analysis::AnalysisOptions {
         tone_frequency_hz: Some(f_mod),
         pm_depth_rad: Some(beta),
         freq_pull_hz_per_m: Some(pull),
@@ -743,7 +743,7 @@ fn t7_calibration_round_trip() {
         mode_band_hz: Some((1e6 - 500.0, 1e6 + 500.0)),
         ..Default::default()
     };
-    let r = stillpoint::report::analyze(&s, &opts).unwrap();
+    let r = stillpoint::analysis::analyze(&s, &opts).unwrap();
     assert_eq!(r.calibration.method.as_deref(), Some("tone"));
     close(
         r.calibration.tone_power_v2.unwrap(),
@@ -887,7 +887,7 @@ fn bin_correlation_agrees_with_dsp() {
 /// Bad physics input: NaN never reaches the report; impossible options are refused.
 #[test]
 fn bad_physics_input() {
-    use stillpoint::report::{AnalysisError, AnalysisOptions, analyze};
+    use stillpoint::analysis::{AnalysisError, AnalysisOptions, analyze};
     let mut rng = Rng::new(1);
     let s = synthetic_spectrum(10_000.0, 4096, 20.0, &mut rng, |f| {
         1e-9 + oscillator::oscillator_psd(f, 1e-6, 2_000.0, 10.0)

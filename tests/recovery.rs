@@ -12,10 +12,10 @@ use std::f64::consts::PI;
 
 use realfft::RealFftPlanner;
 use realfft::num_complex::Complex64;
+use stillpoint::analysis::{AnalysisOptions, analyze};
 use stillpoint::dsp::{Spectrum, WelchConfig, welch::welch};
 use stillpoint::physics::oscillator::{lorentzian_psd, oscillator_psd, x_zpf_m};
 use stillpoint::physics::{calibration, fit, occupancy, peaks, sideband};
-use stillpoint::report::{AnalysisOptions, analyze};
 
 struct Rng(u64);
 impl Rng {

@@ -17,8 +17,9 @@ use super::{ModelError, Result};
 use crate::acquire::{
     self, AcqCommand, AcqEvent, AcqOptions, AcqStatus, Acquisition, SourceConfig, SourceSpec,
 };
+use crate::analysis::{self, AnalysisOptions};
 use crate::dsp::{Spectrum, Welch};
-use crate::report::{self, AnalysisOptions, Report};
+use crate::report::Report;
 
 /// Closure that wakes the window (the window passes `ctx.request_repaint()`).
 pub type Waker = Box<dyn Fn() + Send + Sync>;
@@ -716,7 +717,7 @@ impl Worker {
         let t0 = Instant::now();
         let mut options = self.config.analysis.clone();
         options.mode_band_hz = self.band_hz;
-        let mut result = report::analyze(&spectrum, &options);
+        let mut result = analysis::analyze(&spectrum, &options);
         if self.config.follow_mode
             && let Ok(r) = &result
         {
@@ -727,7 +728,7 @@ impl Worker {
             if new_band.is_some() && new_band != self.band_hz {
                 self.band_hz = new_band;
                 options.mode_band_hz = new_band;
-                result = report::analyze(&spectrum, &options);
+                result = analysis::analyze(&spectrum, &options);
             }
         }
         match result {
