@@ -18,6 +18,7 @@ pub mod analysis;
 pub mod cli;
 pub mod dsp;
 pub mod figure;
+pub mod io;
 pub mod model;
 pub mod npy_writer;
 pub mod physics;

@@ -337,7 +337,7 @@ fn interrupted_save_is_recovered_from_temporary_metadata() {
     assert_eq!(l.meta.label, "new");
     assert!(l.warnings[0].contains("interrupted"), "{:?}", l.warnings);
     assert_eq!(
-        snapshot::remove_stale_temp_files(&dir.path().join("s.json")).unwrap(),
+        stillpoint::io::atomic::remove_stale_temp_files(&dir.path().join("s.json")).unwrap(),
         1
     );
     // Without the temporary file: the data still load, flagged as modified.
@@ -450,8 +450,9 @@ fn kill_mid_save_leaves_a_complete_snapshot() {
         }
     }
     assert!(versions_seen.iter().any(|v| *v > 0.0), "{versions_seen:?}");
-    let removed = snapshot::remove_stale_temp_files(&dir.path().join("big.json")).unwrap()
-        + snapshot::remove_stale_temp_files(&dir.path().join("big.csv")).unwrap();
+    let removed = stillpoint::io::atomic::remove_stale_temp_files(&dir.path().join("big.json"))
+        .unwrap()
+        + stillpoint::io::atomic::remove_stale_temp_files(&dir.path().join("big.csv")).unwrap();
     // After cleaning, the snapshot still loads.
     load(&path).unwrap();
     println!(
