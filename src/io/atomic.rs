@@ -230,7 +230,7 @@ impl Drop for PendingFile {
 }
 
 /// fsync of a directory so a rename survives a power cut (Unix; best effort elsewhere).
-fn sync_dir(dir: &Path) {
+pub(crate) fn sync_dir(dir: &Path) {
     #[cfg(unix)]
     {
         if let Ok(d) = File::open(dir) {
@@ -270,7 +270,9 @@ where
 
 /// Removes temporary files left beside `target` by interrupted saves (names
 /// `.NAME.*.tmp` for `target`'s file name NAME); returns how many were removed. Do not call
-/// while another process may be saving the same file.
+/// while another process may be saving the same file. For a snapshot use
+/// [`crate::snapshot::remove_stale_temp_files`], which first finishes a save killed between
+/// its two renames (its temporary JSON is then the only copy of the matching metadata).
 ///
 /// # Errors
 /// The folder cannot be read.

@@ -7,12 +7,14 @@
 //!
 //! Writes are atomic ([`PendingFile`]: temporary file in the same folder with a unique name,
 //! write, flush, fsync, rename, fsync of the folder on Unix). A save prepares both files
-//! before moving either into place, CSV first, then JSON. An existing snapshot is never
-//! replaced unless `overwrite` is true. If a save is killed between the two renames, the new
-//! CSV sits beside the old JSON; [`load`] sees the hash mismatch and uses the complete,
-//! fsynced temporary JSON of that save instead, so a load always yields one whole snapshot.
-//! Temporary files `.NAME.json.….tmp` / `.NAME.csv.….tmp` left by killed saves are harmless
-//! and can be removed with [`remove_stale_temp_files`].
+//! before moving either into place, CSV first, then JSON; the JSON carries the CSV's FNV-1a
+//! hash, which ties the pair together. An existing snapshot is never replaced unless
+//! `overwrite` is true. A save killed between the two renames leaves the new CSV beside the
+//! old JSON and the new JSON complete (fsynced) in its temporary file: the save's journal.
+//! [`load`] sees the hash mismatch and uses that JSON, so a load always yields one whole
+//! snapshot (the old pair when the kill came before the CSV rename, the new pair after it);
+//! [`remove_stale_temp_files`] first finishes such a save (moves that JSON into place) and
+//! only then deletes the temporary files, so cleaning never leaves a mixed pair behind.
 //!
 //! Loading gives one-line errors for damaged files (bad JSON, missing columns, non-numeric or
 //! non-finite values, a row count or frequency grid that does not match the metadata).
@@ -33,7 +35,7 @@ use std::time::SystemTime;
 use serde::{Deserialize, Serialize};
 
 use crate::dsp::{Averaging, Detrend, Spectrum, WindowKind};
-use crate::io::atomic::{AtomicError, PendingFile, parent_dir, temp_prefix};
+use crate::io::atomic::{AtomicError, PendingFile, parent_dir, sync_dir, temp_prefix};
 use crate::io::fnv1a64;
 use crate::report::Report;
 use spectrum_csv::{parse_csv, truncate};
@@ -340,6 +342,19 @@ pub fn save(
     info: &SnapshotInfo,
     overwrite: bool,
 ) -> Result<Snapshot> {
+    save_until(path, spectrum, info, overwrite, None)?.ok_or_else(|| {
+        SnapshotError::Invalid("the save stopped before it was complete".to_string())
+    })
+}
+
+/// [`save`], stopping after `stop` (crash tests); `Ok(None)` when it stopped.
+fn save_until(
+    path: &Path,
+    spectrum: &Spectrum,
+    info: &SnapshotInfo,
+    overwrite: bool,
+    stop: Option<SaveStep>,
+) -> Result<Option<Snapshot>> {
     check_spectrum(spectrum)?;
     let m_per_v = info.calibration.as_ref().map(|c| c.m_per_v);
     if let Some(c) = &info.calibration
@@ -414,9 +429,17 @@ pub fn save(
             }
         }
     };
+    if stop == Some(SaveStep::BothPrepared) {
+        std::mem::forget((pending_csv, pending_json));
+        return Ok(None);
+    }
     pending_csv
         .commit(overwrite)
         .map_err(|e| commit_err(&csv_path, e))?;
+    if stop == Some(SaveStep::DataInPlace) {
+        std::mem::forget(pending_json);
+        return Ok(None);
+    }
     if let Err(e) = pending_json.commit(overwrite) {
         if !overwrite {
             // We created the CSV a moment ago; do not leave half a snapshot behind.
@@ -424,14 +447,40 @@ pub fn save(
         }
         return Err(commit_err(&json_path, e));
     }
-    Ok(Snapshot {
+    Ok(Some(Snapshot {
         meta,
         spectrum: spectrum.clone(),
         psd_m2_per_hz: m_per_v
             .map(|c| spectrum.psd_v2_per_hz.iter().map(|p| p * (c * c)).collect()),
         path: json_path,
         warnings: Vec::new(),
-    })
+    }))
+}
+
+/// Where [`save_killed_after`] stops a save, as if the process were killed there.
+#[doc(hidden)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SaveStep {
+    /// Both temporary files written and fsynced, neither in place.
+    BothPrepared,
+    /// The new CSV renamed into place, the new JSON still in its temporary file: the window
+    /// in which the pair on disk is mixed (new data, old metadata).
+    DataInPlace,
+}
+
+/// A save (with `overwrite`) that stops after `step` and leaves its temporary files as a
+/// killed process would: for the crash tests, which can then hit each window deliberately.
+///
+/// # Errors
+/// As [`save`].
+#[doc(hidden)]
+pub fn save_killed_after(
+    path: &Path,
+    spectrum: &Spectrum,
+    info: &SnapshotInfo,
+    step: SaveStep,
+) -> Result<()> {
+    save_until(path, spectrum, info, true, Some(step)).map(|_| ())
 }
 
 fn read_limited(path: &Path, limit: u64) -> Result<Vec<u8>> {
@@ -514,6 +563,64 @@ pub fn parse_meta(bytes: &[u8], path: &Path) -> Result<SnapshotMeta> {
     Ok(meta)
 }
 
+/// The complete metadata of a save of `json_path` killed between its two renames: a
+/// temporary `.NAME.json.….tmp` whose hash is `hash` (the data file in place) and whose data
+/// file is `data_file`. Returns its path and contents.
+fn journal_meta(json_path: &Path, hash: &str, data_file: &str) -> Option<(PathBuf, SnapshotMeta)> {
+    temp_metadata_candidates(json_path)
+        .into_iter()
+        .find_map(|p| {
+            let bytes = read_limited(&p, MAX_JSON_BYTES).ok()?;
+            let m = parse_meta(&bytes, json_path).ok()?;
+            (m.data_fnv1a64 == hash && m.data_file == data_file).then_some((p, m))
+        })
+}
+
+/// Finishes a save of the snapshot at `path` that was killed between its two renames (the
+/// new CSV beside the old or no JSON, the new JSON complete in its temporary file) by moving
+/// that JSON into place. Returns whether there was one to finish. Do not call while another
+/// process may be saving the same snapshot.
+///
+/// # Errors
+/// The rename failed.
+pub fn complete_interrupted_save(path: &Path) -> io::Result<bool> {
+    let (json_path, csv_path) = snapshot_paths(path);
+    let Ok(csv) = read_limited(&csv_path, MAX_CSV_BYTES) else {
+        return Ok(false);
+    };
+    let hash = format!("{:016x}", fnv1a64(&csv));
+    let current = read_limited(&json_path, MAX_JSON_BYTES)
+        .and_then(|b| parse_meta(&b, &json_path))
+        .ok();
+    if current.as_ref().is_some_and(|m| m.data_fnv1a64 == hash) {
+        return Ok(false);
+    }
+    let data_file = csv_path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let Some((journal, _)) = journal_meta(&json_path, &hash, &data_file) else {
+        return Ok(false);
+    };
+    fs::rename(&journal, &json_path)?;
+    sync_dir(&parent_dir(&json_path));
+    Ok(true)
+}
+
+/// Removes the temporary files left beside the snapshot at `path` (`NAME`, `NAME.json` or
+/// `NAME.csv`) by killed saves, after finishing a save killed between its renames
+/// ([`complete_interrupted_save`]), so the pair on disk is whole before its journal goes.
+/// Returns how many files were removed. Do not call while another process may be saving it.
+///
+/// # Errors
+/// The folder cannot be read, or the rename failed.
+pub fn remove_stale_temp_files(path: &Path) -> io::Result<usize> {
+    complete_interrupted_save(path)?;
+    let (json_path, csv_path) = snapshot_paths(path);
+    Ok(crate::io::atomic::remove_stale_temp_files(&json_path)?
+        + crate::io::atomic::remove_stale_temp_files(&csv_path)?)
+}
+
 /// Temporary metadata files of interrupted saves of `json_path` (`.NAME.json.….tmp`).
 fn temp_metadata_candidates(json_path: &Path) -> Vec<PathBuf> {
     let Some(name) = json_path
@@ -557,13 +664,7 @@ pub fn load(path: &Path) -> Result<Snapshot> {
         // A save killed between its two renames leaves the new CSV beside the old JSON, and
         // the new JSON complete in a temporary file: use it (module docs). Otherwise the CSV
         // was edited after saving: load it if it still fits the metadata, with a warning.
-        let recovered = temp_metadata_candidates(&json_path)
-            .into_iter()
-            .filter_map(|p| {
-                let bytes = read_limited(&p, MAX_JSON_BYTES).ok()?;
-                parse_meta(&bytes, &json_path).ok()
-            })
-            .find(|m| m.data_fnv1a64 == hash && m.data_file == meta.data_file);
+        let recovered = journal_meta(&json_path, &hash, &meta.data_file).map(|(_, m)| m);
         match recovered {
             Some(m) => {
                 warnings.push(
