@@ -15,12 +15,14 @@
 //!   [`units::tone_power`].
 //! - [`cross`]: [`cross::CrossWelch`], cross-spectral density and coherence of two
 //!   channels (scipy.signal.csd / coherence conventions, METHODS.md §10).
+//! - [`median`](mod@median): numpy's median, in place.
 //! - [`bench`](mod@bench): Welch throughput and the FFT-only floor, for `stillpoint bench`.
 
 pub mod bench;
 pub mod cross;
 mod defaults;
 mod error;
+pub mod median;
 pub mod units;
 pub mod welch;
 pub mod window;

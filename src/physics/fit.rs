@@ -238,21 +238,11 @@ impl Model for ModeModel<'_> {
     }
 }
 
-/// Median of a slice (copies; NaN-free input assumed).
+/// Median of the finite values of a slice (copies; [`crate::dsp::median::median`]); NaN
+/// when there are none.
 pub(crate) fn median(values: &[f64]) -> f64 {
     let mut v: Vec<f64> = values.iter().copied().filter(|x| x.is_finite()).collect();
-    if v.is_empty() {
-        return f64::NAN;
-    }
-    let mid = v.len() / 2;
-    v.select_nth_unstable_by(mid, f64::total_cmp);
-    let hi = v[mid];
-    if v.len() % 2 == 1 {
-        hi
-    } else {
-        let lo = v[..mid].iter().copied().fold(f64::NEG_INFINITY, f64::max);
-        0.5 * (lo + hi)
-    }
+    crate::dsp::median::median(&mut v).unwrap_or(f64::NAN)
 }
 
 /// Checks a band against a spectrum and returns the inclusive bin range.

@@ -60,6 +60,9 @@ pub struct Peak {
     pub new_since_reference: Option<bool>,
 }
 
+/// The upper middle value (element n/2 of the sorted values), not numpy's mean of the two
+/// middle values ([`crate::dsp::median::median`]): the running floor's estimator as written,
+/// kept so that the reported stray-peak heights do not move.
 fn median_in_place(v: &mut [f64]) -> f64 {
     if v.is_empty() {
         return f64::NAN;
