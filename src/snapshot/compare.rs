@@ -5,6 +5,7 @@ use serde::{Deserialize, Serialize};
 
 use super::{Result, SnapshotError};
 use crate::dsp::Spectrum;
+use crate::physics::peaks::new_since_reference;
 use crate::report::PeakReport;
 
 /// Ratio and difference of a spectrum against a reference.
@@ -136,23 +137,109 @@ pub fn excess_bands(comparison: &Comparison, threshold_db: f64) -> Vec<ExcessBan
     bands
 }
 
-/// Marks each current peak `new_since_reference = Some(true)` unless a reference peak lies
-/// within `max(tolerance_hz, (linewidth_a + linewidth_b)/2)` of it. Returns how many are new.
+/// Marks each current peak new or known against a reference snapshot's peaks by the one rule
+/// [`crate::physics::peaks::new_since_reference`] (`min_tolerance_hz`: 3 Δf, as `analyze
+/// --reference` uses). Returns how many are new.
 pub fn mark_new_peaks(
     current: &mut [PeakReport],
     reference: &[PeakReport],
-    tolerance_hz: f64,
+    min_tolerance_hz: f64,
 ) -> usize {
+    let reference_hz: Vec<f64> = reference.iter().map(|r| r.frequency_hz).collect();
     let mut new = 0;
     for p in current.iter_mut() {
-        let known = reference.iter().any(|r| {
-            let tol = tolerance_hz.max(0.5 * (p.linewidth_hz + r.linewidth_hz));
-            (p.frequency_hz - r.frequency_hz).abs() <= tol
-        });
-        p.new_since_reference = Some(!known);
-        if !known {
-            new += 1;
-        }
+        let is_new = new_since_reference(
+            p.frequency_hz,
+            p.linewidth_hz,
+            min_tolerance_hz,
+            &reference_hz,
+        );
+        p.new_since_reference = Some(is_new);
+        new += usize::from(is_new);
     }
     new
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::dsp::{Averaging, Detrend, WindowKind};
+    use crate::physics::peaks::{PeakOptions, find_peaks};
+
+    /// The window's marks (peaks found, then marked against a snapshot's peaks) equal
+    /// `analyze --reference`'s (peaks found with the reference frequencies).
+    #[test]
+    fn window_and_cli_mark_the_same_peaks_new() {
+        let bins = 8193;
+        let mut psd = vec![1e-6; bins];
+        // Lines of 1, 4 and 40 bins FWHM, 20–30 dB over the floor.
+        for (centre, width, height) in [
+            (1000.0, 1.0, 1e-3),
+            (3000.0, 4.0, 1e-4),
+            (6000.0, 40.0, 3e-4),
+        ] {
+            for (k, p) in psd.iter_mut().enumerate() {
+                let x = (k as f64 - centre) / (0.5 * width);
+                *p += height / (1.0 + x * x);
+            }
+        }
+        let spectrum = Spectrum {
+            sample_rate_hz: 2.0 * (bins - 1) as f64,
+            segment: 2 * (bins - 1),
+            overlap: 0.5,
+            window: WindowKind::Hann,
+            detrend: Detrend::Mean,
+            averaging: Averaging::Linear,
+            averages: 100,
+            k_eff: 95.0,
+            resolution_hz: 1.0,
+            enbw_hz: 1.5,
+            psd_v2_per_hz: psd,
+        };
+        // Reference peaks: one exactly there, one 2.5 bins off (within 3 Δf), one 30 bins off
+        // a 40-bin line (within its width), one far from any line.
+        let reference_hz = vec![1000.0, 3002.5, 6030.0, 7500.0];
+        let cli = find_peaks(
+            &spectrum,
+            &PeakOptions {
+                reference_hz: reference_hz.clone(),
+                ..PeakOptions::default()
+            },
+        );
+        assert_eq!(cli.len(), 3, "{cli:?}");
+        let report = |p: &crate::physics::peaks::Peak| PeakReport {
+            frequency_hz: p.frequency_hz,
+            height_over_floor_db: p.height_over_floor_db,
+            linewidth_hz: p.linewidth_hz,
+            new_since_reference: None,
+        };
+        let mut window: Vec<PeakReport> = find_peaks(&spectrum, &PeakOptions::default())
+            .iter()
+            .map(report)
+            .collect();
+        let reference: Vec<PeakReport> = reference_hz
+            .iter()
+            .map(|&f| PeakReport {
+                frequency_hz: f,
+                linewidth_hz: 1.0,
+                ..PeakReport::default()
+            })
+            .collect();
+        mark_new_peaks(&mut window, &reference, 3.0 * spectrum.resolution_hz);
+        let window_marks: Vec<Option<bool>> =
+            window.iter().map(|p| p.new_since_reference).collect();
+        let cli_marks: Vec<Option<bool>> = cli.iter().map(|p| p.new_since_reference).collect();
+        assert_eq!(window_marks, cli_marks);
+        assert!(cli.iter().all(|p| p.new_since_reference == Some(false)));
+        // Without the matching reference lines all three are new, by both paths.
+        let far = [7500.0];
+        for p in &cli {
+            assert!(new_since_reference(
+                p.frequency_hz,
+                p.linewidth_hz,
+                3.0,
+                &far
+            ));
+        }
+    }
 }
