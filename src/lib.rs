@@ -6,16 +6,19 @@
 //! Pipeline: [`acquire`] reads detector voltage (WAV, raw binary, growing file, stdin, TCP,
 //! the built-in demo) on its own thread → [`dsp`] Welch averager (one-sided PSD, V²/Hz) →
 //! [`physics`] calibration, mode fit, quantum references, sidebands, stray peaks →
-//! [`report`] (the `analyze` JSON) and [`snapshot`] (saved spectra) → [`model`] (live state
-//! for the window, no egui) → `ui` (eframe/egui_plot, only with the `gui` feature).
+//! [`analysis`] (the `analyze` pipeline, filling the [`report`] contract types) and
+//! [`snapshot`] (saved spectra) → [`model`] (live state for the window, no egui) → `ui`
+//! (eframe/egui_plot, only with the `gui` feature).
 //!
 //! Conventions: SI units everywhere, names carry their unit (`frequency_hz`, `mass_kg`);
 //! every spectral density is single-sided in ordinary frequency (∫₀^∞ S df = variance).
 
 pub mod acquire;
+pub mod analysis;
 pub mod cli;
 pub mod dsp;
 pub mod figure;
+pub mod io;
 pub mod model;
 pub mod npy_writer;
 pub mod physics;

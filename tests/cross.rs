@@ -18,9 +18,9 @@ use std::path::{Path, PathBuf};
 
 use realfft::RealFftPlanner;
 use realfft::num_complex::Complex;
+use stillpoint::analysis::AnalysisOptions;
 use stillpoint::dsp::cross::{CrossWelch, coherence_noise_threshold};
 use stillpoint::dsp::{WelchConfig, WindowKind};
-use stillpoint::report::AnalysisOptions;
 use stillpoint::report::cross::analyze_cross;
 use util::{SplitMix, assert_clean_failure, assert_success, read_csv, read_json, run, s};
 

@@ -15,6 +15,7 @@ use std::net::TcpListener;
 use std::path::Path;
 use std::thread;
 use std::time::{Duration, Instant};
+use stillpoint::synth::rng::splitmix64;
 
 use stillpoint::acquire::{
     AcqCommand, AcqEvent, AcqOptions, AcqStatus, Acquisition, SampleFormat, SourceConfig,
@@ -31,11 +32,7 @@ fn samples(n: usize, seed: u64) -> Vec<f64> {
     let mut state = seed;
     (0..n)
         .map(|_| {
-            state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
-            let mut z = state;
-            z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-            z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-            z ^= z >> 31;
+            let z = splitmix64(&mut state);
             (z >> 11) as f64 / (1u64 << 53) as f64 * 2.0 - 1.0
         })
         .collect()

@@ -6,13 +6,16 @@
 
 #![cfg(feature = "gui")]
 
-use std::time::{Duration, Instant};
+use std::time::Duration;
 
 use eframe::egui;
-use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
 use stillpoint::dsp::units::DensityUnit;
-use stillpoint::ui::{MonitorOptions, StillpointApp};
+use stillpoint::ui::MonitorOptions;
+
+#[path = "common/gui.rs"]
+mod gui_util;
+use gui_util::{harness, has_spectrum, step_until};
 
 fn demo_options() -> MonitorOptions {
     let mut o = MonitorOptions::demo();
@@ -26,39 +29,9 @@ fn demo_options() -> MonitorOptions {
     o
 }
 
-fn harness() -> Harness<'static, StillpointApp> {
-    Harness::builder()
-        .with_size(egui::vec2(1360.0, 900.0))
-        .build_eframe(|cc| StillpointApp::new(cc, demo_options()))
-}
-
-/// Steps frames (with short sleeps, so the engine thread runs) until `done` or `timeout`.
-fn step_until(
-    h: &mut Harness<'static, StillpointApp>,
-    timeout: Duration,
-    done: impl Fn(&StillpointApp) -> bool,
-) -> bool {
-    let t0 = Instant::now();
-    while t0.elapsed() < timeout {
-        h.step();
-        if done(h.state()) {
-            return true;
-        }
-        std::thread::sleep(Duration::from_millis(20));
-    }
-    false
-}
-
-fn has_spectrum(app: &StillpointApp) -> bool {
-    app.live()
-        .frame
-        .as_ref()
-        .is_some_and(|f| f.spectrum.is_some() && f.report.is_some())
-}
-
 #[test]
 fn demo_window_end_to_end() {
-    let mut h = harness();
+    let mut h = harness(demo_options());
     assert!(
         step_until(&mut h, Duration::from_secs(60), has_spectrum),
         "no spectrum from the demo; messages: {:?}",

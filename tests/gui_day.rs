@@ -25,11 +25,15 @@ use eframe::egui;
 use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
 use stillpoint::acquire::{SampleFormat, SourceConfig, SourceSpec};
+use stillpoint::analysis::AnalysisOptions;
 use stillpoint::cli::args::{Cli, Command};
 use stillpoint::dsp::Welch;
 use stillpoint::model::{AveragingChoice, Engine, EngineConfig, LiveState, WelchSettings};
-use stillpoint::report::AnalysisOptions;
 use stillpoint::ui::{MonitorOptions, StillpointApp};
+
+#[path = "common/gui.rs"]
+mod gui_util;
+use gui_util::{has_spectrum, wait_for};
 
 const DEADLINE: Duration = Duration::from_secs(60);
 
@@ -49,36 +53,7 @@ fn demo_options() -> MonitorOptions {
 fn harness(mut options: MonitorOptions) -> Harness<'static, StillpointApp> {
     // No session journal in the user's folder from a test.
     options.no_journal = true;
-    Harness::builder()
-        .with_size(egui::vec2(1360.0, 900.0))
-        .build_eframe(move |cc| StillpointApp::new(cc, options))
-}
-
-/// Steps frames (with short sleeps, so the engine thread runs) until `done`.
-fn step_until(
-    h: &mut Harness<'static, StillpointApp>,
-    what: &str,
-    done: impl Fn(&StillpointApp) -> bool,
-) {
-    let t0 = Instant::now();
-    while t0.elapsed() < DEADLINE {
-        h.step();
-        if done(h.state()) {
-            return;
-        }
-        std::thread::sleep(Duration::from_millis(20));
-    }
-    panic!(
-        "timed out waiting for {what}; messages: {:?}",
-        h.state().messages()
-    );
-}
-
-fn has_spectrum(app: &StillpointApp) -> bool {
-    app.live()
-        .frame
-        .as_ref()
-        .is_some_and(|f| f.spectrum.is_some() && f.report.is_some())
+    gui_util::harness(options)
 }
 
 const SOURCE_FIELD: &str = "source path (.wav or raw), '-' for stdin, or tcp://HOST:PORT:";
@@ -91,7 +66,7 @@ fn type_into(h: &mut Harness<'static, StillpointApp>, label: &str, text: &str) {
 #[test]
 fn a_failed_open_leaves_the_running_source_untouched() {
     let mut h = harness(demo_options());
-    step_until(&mut h, "the demo's history", |a| {
+    wait_for(&mut h, DEADLINE, "the demo's history", |a| {
         has_spectrum(a) && a.live().waterfall.rows().len() >= 2
     });
     let dir = tempfile::tempdir().unwrap();
@@ -124,7 +99,7 @@ fn a_failed_open_leaves_the_running_source_untouched() {
             type_into(&mut h, "rate (Hz)", "100000");
         }
         h.get_by_label("Open source").click();
-        step_until(&mut h, "the open error", |a| {
+        wait_for(&mut h, DEADLINE, "the open error", |a| {
             a.messages().last().is_some_and(|m| {
                 m.error
                     && m.text.contains("cannot open source")
@@ -143,7 +118,7 @@ fn a_failed_open_leaves_the_running_source_untouched() {
         );
         // The running source goes on: its history is kept and frames keep coming.
         assert!(app.live().waterfall.rows().len() >= rows_before);
-        step_until(&mut h, "frames after the failed open", |a| {
+        wait_for(&mut h, DEADLINE, "frames after the failed open", |a| {
             a.live().frames_applied > frames_before + 2 && has_spectrum(a)
         });
         assert!(h.state().live().waterfall.rows().len() >= rows_before);
@@ -153,7 +128,7 @@ fn a_failed_open_leaves_the_running_source_untouched() {
 #[test]
 fn letter_shortcuts_never_act_on_typed_text() {
     let mut h = harness(demo_options());
-    step_until(&mut h, "a spectrum", has_spectrum);
+    wait_for(&mut h, DEADLINE, "a spectrum", has_spectrum);
     h.run_steps(2);
     let unit = h.state().state().unit;
     // Typing into a field after a missed click: nothing happens but the text.
@@ -218,7 +193,7 @@ fn setting_the_band_keeps_the_history_and_the_fields_show_the_band_in_use() {
     });
     o.analysis = Some(AnalysisOptions::default());
     let mut h = harness(o);
-    step_until(&mut h, "an automatic band and history", |a| {
+    wait_for(&mut h, DEADLINE, "an automatic band and history", |a| {
         a.live().frame.as_ref().is_some_and(|f| f.band_hz.is_some())
             && a.live().waterfall.rows().len() >= 3
     });
@@ -240,7 +215,7 @@ fn setting_the_band_keeps_the_history_and_the_fields_show_the_band_in_use() {
     type_into(&mut h, "band high (Hz)", &format!("{:.1}", centre + half));
     h.get_by_label("Apply calibration").click();
     h.run_steps(2);
-    step_until(&mut h, "rows after the band change", |a| {
+    wait_for(&mut h, DEADLINE, "rows after the band change", |a| {
         a.live().waterfall.rows().len() >= rows + 2
     });
     let live = h.state().live();
@@ -256,7 +231,7 @@ fn setting_the_band_keeps_the_history_and_the_fields_show_the_band_in_use() {
 #[test]
 fn messages_expire_are_bounded_and_corrected_errors_go() {
     let mut h = harness(demo_options());
-    step_until(&mut h, "a spectrum", has_spectrum);
+    wait_for(&mut h, DEADLINE, "a spectrum", has_spectrum);
     let field = "snapshot path (JSON; the CSV is written beside it):";
     for i in 0..6 {
         type_into(&mut h, field, &format!("/nonexistent/stillpoint/{i}.json"));
@@ -314,7 +289,7 @@ fn a_recording_ends_on_the_whole_record_like_the_cli_and_replays() {
     o.fresh_settings = true;
     o.speed = Some(16.0);
     let mut h = harness(o);
-    step_until(&mut h, "the end of the recording", |a| {
+    wait_for(&mut h, DEADLINE, "the end of the recording", |a| {
         a.live()
             .status()
             .is_some_and(|s| s.ended.is_some() && s.averages > 0)
@@ -374,12 +349,12 @@ fn a_recording_ends_on_the_whole_record_like_the_cli_and_replays() {
     // Replay: plays again from the start and ends again.
     let samples = h.state().live().status().unwrap().samples;
     h.get_by_label("Replay").click();
-    step_until(&mut h, "the replay to start", |a| {
+    wait_for(&mut h, DEADLINE, "the replay to start", |a| {
         a.live()
             .status()
             .is_some_and(|s| s.ended.is_none() && s.samples < samples)
     });
-    step_until(&mut h, "the replay to end", |a| {
+    wait_for(&mut h, DEADLINE, "the replay to end", |a| {
         a.live().status().is_some_and(|s| s.ended.is_some())
     });
 }
@@ -394,7 +369,7 @@ fn the_at_most_k_stop_is_shown() {
     w.max_averages = Some(3);
     o.welch = Some(w);
     let mut h = harness(o);
-    step_until(&mut h, "K segments", |a| {
+    wait_for(&mut h, DEADLINE, "K segments", |a| {
         a.live()
             .status()
             .is_some_and(|s| s.max_averages_reached == Some(3))

@@ -11,13 +11,15 @@
 #![cfg(feature = "gui")]
 
 use std::path::{Path, PathBuf};
-use std::time::{Duration, Instant};
+use std::time::Duration;
 
-use eframe::egui;
-use egui_kittest::Harness;
 use stillpoint::model::journal::{self, JournalHeader, JournalWriter};
 use stillpoint::model::trend::{TRACK_COLUMNS, TRACK_HEADER, TrendRow};
 use stillpoint::ui::{MonitorOptions, StillpointApp};
+
+#[path = "common/gui.rs"]
+mod gui_util;
+use gui_util::{harness, wait_for};
 
 const DEADLINE: Duration = Duration::from_secs(90);
 
@@ -31,31 +33,6 @@ fn options(journal_dir: &Path) -> MonitorOptions {
     o
 }
 
-fn harness(options: MonitorOptions) -> Harness<'static, StillpointApp> {
-    Harness::builder()
-        .with_size(egui::vec2(1360.0, 900.0))
-        .build_eframe(move |cc| StillpointApp::new(cc, options))
-}
-
-fn step_until(
-    h: &mut Harness<'static, StillpointApp>,
-    what: &str,
-    done: impl Fn(&StillpointApp) -> bool,
-) {
-    let t0 = Instant::now();
-    while t0.elapsed() < DEADLINE {
-        h.step();
-        if done(h.state()) {
-            return;
-        }
-        std::thread::sleep(Duration::from_millis(20));
-    }
-    panic!(
-        "timed out waiting for {what}; messages: {:?}",
-        h.state().messages()
-    );
-}
-
 fn journal_rows(app: &StillpointApp) -> usize {
     app.journal_path()
         .and_then(|p| journal::read_journal(p).ok())
@@ -67,12 +44,14 @@ fn the_journal_appears_and_grows_one_line_per_trend_point() {
     let dir = tempfile::tempdir().unwrap();
     let folder = dir.path().join("journal");
     let mut h = harness(options(&folder));
-    step_until(&mut h, "a journal with 2 points", |a| journal_rows(a) >= 2);
+    wait_for(&mut h, DEADLINE, "a journal with 2 points", |a| {
+        journal_rows(a) >= 2
+    });
     let path = h.state().journal_path().unwrap().to_path_buf();
     assert!(path.starts_with(&folder), "{}", path.display());
     assert_eq!(journal::list_journals(&folder), vec![path.clone()]);
     let first = journal::read_journal(&path).unwrap();
-    step_until(&mut h, "more points", |a| {
+    wait_for(&mut h, DEADLINE, "more points", |a| {
         journal_rows(a) >= first.rows.len() + 2
     });
     let later = journal::read_journal(&path).unwrap();
@@ -146,7 +125,9 @@ fn a_journal_reopens_beside_the_live_trends_and_exports_like_track() {
     let dir = tempfile::tempdir().unwrap();
     let folder = dir.path().join("journal");
     let mut h = harness(options(&folder));
-    step_until(&mut h, "a journal with 3 points", |a| journal_rows(a) >= 3);
+    wait_for(&mut h, DEADLINE, "a journal with 3 points", |a| {
+        journal_rows(a) >= 3
+    });
     let path = h.state().journal_path().unwrap().to_path_buf();
     // A copy with a cut last line, as after a kill.
     let copy = dir.path().join("copy.csv");
@@ -221,20 +202,20 @@ fn a_journal_folder_that_cannot_be_written_is_a_message_and_the_live_view_goes_o
     let blocked: PathBuf = dir.path().join("not-a-folder");
     std::fs::write(&blocked, "x").unwrap();
     let mut h = harness(options(&blocked));
-    step_until(&mut h, "the journal error", |a| {
+    wait_for(&mut h, DEADLINE, "the journal error", |a| {
         a.messages()
             .iter()
             .any(|m| m.error && m.text.contains("journal"))
     });
     assert!(h.state().journal_path().is_none());
     let frames = h.state().live().frames_applied;
-    step_until(&mut h, "more frames", |a| {
+    wait_for(&mut h, DEADLINE, "more frames", |a| {
         a.live().frames_applied > frames + 3
     });
     // Choosing a folder that works starts a journal there.
     let good = dir.path().join("good");
     h.state_mut().set_journal_folder(good.clone());
-    step_until(&mut h, "a journal in the new folder", |a| {
+    wait_for(&mut h, DEADLINE, "a journal in the new folder", |a| {
         journal_rows(a) >= 1
     });
     assert!(h.state().journal_path().unwrap().starts_with(&good));

@@ -6,15 +6,17 @@
 #![allow(clippy::unwrap_used)]
 #![cfg(feature = "gui")]
 
-use std::time::{Duration, Instant};
+use std::time::Duration;
 
-use eframe::egui;
-use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
 use stillpoint::acquire::{SourceConfig, SourceSpec};
+use stillpoint::analysis::AnalysisOptions;
 use stillpoint::model::CalibrationMethod;
-use stillpoint::report::AnalysisOptions;
-use stillpoint::ui::{MonitorOptions, StillpointApp};
+use stillpoint::ui::MonitorOptions;
+
+#[path = "common/gui.rs"]
+mod gui_util;
+use gui_util::{harness, step_until};
 
 fn quick(mut o: MonitorOptions) -> MonitorOptions {
     o.fresh_settings = true;
@@ -33,28 +35,6 @@ fn quick(mut o: MonitorOptions) -> MonitorOptions {
         o.welch = Some(stillpoint::model::WelchSettings::from_config(&w));
     }
     o
-}
-
-fn harness(o: MonitorOptions) -> Harness<'static, StillpointApp> {
-    Harness::builder()
-        .with_size(egui::vec2(1360.0, 900.0))
-        .build_eframe(move |cc| StillpointApp::new(cc, o))
-}
-
-fn step_until(
-    h: &mut Harness<'static, StillpointApp>,
-    timeout: Duration,
-    done: impl Fn(&StillpointApp) -> bool,
-) -> bool {
-    let t0 = Instant::now();
-    while t0.elapsed() < timeout {
-        h.step();
-        if done(h.state()) {
-            return true;
-        }
-        std::thread::sleep(Duration::from_millis(20));
-    }
-    false
 }
 
 #[test]

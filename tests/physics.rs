@@ -6,6 +6,7 @@
 #![allow(clippy::unwrap_used)] // test helpers outside #[test] functions
 
 use std::f64::consts::PI;
+use stillpoint::synth::rng::splitmix64;
 
 use stillpoint::dsp::{Averaging, Detrend, Spectrum, WindowKind};
 use stillpoint::physics::constants::{BOLTZMANN_J_PER_K, HBAR_J_S};
@@ -72,11 +73,7 @@ impl Rng {
         Self(seed.wrapping_mul(0x9E37_79B9_7F4A_7C15) ^ 0xD1B5_4A32_D192_ED03)
     }
     pub fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
+        splitmix64(&mut self.0)
     }
     pub fn uniform(&mut self) -> f64 {
         ((self.next_u64() >> 11) as f64 + 0.5) / (1u64 << 53) as f64
@@ -310,14 +307,14 @@ fn thermal_at_bath_is_the_symmetrised_quantum_form() {
         enbw_hz: df,
         psd_v2_per_hz: psd,
     };
-    let opts = stillpoint::report::AnalysisOptions {
+    let opts = stillpoint::analysis::AnalysisOptions {
         m_per_v: Some(1.0),
         mass_kg: Some(m),
         bath_temperature_k: Some(t),
         mode_band_hz: Some((f - 600.0, f + 600.0)),
         ..Default::default()
     };
-    let r = stillpoint::report::analyze(&s, &opts).unwrap();
+    let r = stillpoint::analysis::analyze(&s, &opts).unwrap();
     let fm = r.mode.frequency_hz.unwrap();
     let g = 2.0 * PI * r.mode.linewidth_hz.unwrap();
     let om_fit = 2.0 * PI * fm;
@@ -734,7 +731,7 @@ fn t7_calibration_round_trip() {
         enbw_hz: enbw,
         psd_v2_per_hz: psd,
     };
-    let opts = stillpoint::report::AnalysisOptions {
+    let opts = stillpoint::analysis::AnalysisOptions {
         tone_frequency_hz: Some(f_mod),
         pm_depth_rad: Some(beta),
         freq_pull_hz_per_m: Some(pull),
@@ -743,7 +740,7 @@ fn t7_calibration_round_trip() {
         mode_band_hz: Some((1e6 - 500.0, 1e6 + 500.0)),
         ..Default::default()
     };
-    let r = stillpoint::report::analyze(&s, &opts).unwrap();
+    let r = stillpoint::analysis::analyze(&s, &opts).unwrap();
     assert_eq!(r.calibration.method.as_deref(), Some("tone"));
     close(
         r.calibration.tone_power_v2.unwrap(),
@@ -858,26 +855,44 @@ fn chi2_median_ratio_matches_scipy() {
 }
 
 /// Our analytic ρ_bin agrees with the dsp module's direct sums (helper B's implementation).
+/// ρ_bin(l) = |Σ_j w_j² e^{−2πijl/N}|² / (Σ_j w_j²)² summed directly over the window's
+/// samples (METHODS.md §2): the naive reference for the exact cosine-sum values.
+fn naive_bin_correlation(w: &[f64], lag: usize) -> f64 {
+    let n = w.len();
+    let (mut re, mut im, mut s2) = (0.0, 0.0, 0.0);
+    for (j, &wj) in w.iter().enumerate() {
+        let w2 = wj * wj;
+        let phase = -2.0 * PI * ((j * lag) % n) as f64 / n as f64;
+        re += w2 * phase.cos();
+        im += w2 * phase.sin();
+        s2 += w2;
+    }
+    (re * re + im * im) / (s2 * s2)
+}
+
 #[test]
-fn bin_correlation_agrees_with_dsp() {
+fn bin_correlation_agrees_with_the_direct_sum() {
     for w in [
         WindowKind::Hann,
         WindowKind::Hamming,
         WindowKind::BlackmanHarris,
         WindowKind::FlatTop,
     ] {
+        let samples = w.samples(4096);
         let ours = window_stats::bin_correlation(w);
-        for lag in 1..=6 {
-            let theirs = w.bin_correlation(4096, lag);
+        let mut sum = 0.0;
+        for lag in 1..=10 {
+            let direct = naive_bin_correlation(&samples, lag);
+            sum += direct;
             let mine = ours.get(lag - 1).copied().unwrap_or(0.0);
             assert!(
-                (mine - theirs).abs() < 1e-9,
-                "{w:?} lag {lag}: {mine} vs {theirs}"
+                (mine - direct).abs() < 1e-9,
+                "{w:?} lag {lag}: {mine} vs {direct}"
             );
         }
         close(
             window_stats::error_inflation(w),
-            w.fit_error_inflation(4096),
+            (1.0 + 2.0 * sum).sqrt(),
             1e-9,
             "inflation",
         );
@@ -887,7 +902,7 @@ fn bin_correlation_agrees_with_dsp() {
 /// Bad physics input: NaN never reaches the report; impossible options are refused.
 #[test]
 fn bad_physics_input() {
-    use stillpoint::report::{AnalysisError, AnalysisOptions, analyze};
+    use stillpoint::analysis::{AnalysisError, AnalysisOptions, analyze};
     let mut rng = Rng::new(1);
     let s = synthetic_spectrum(10_000.0, 4096, 20.0, &mut rng, |f| {
         1e-9 + oscillator::oscillator_psd(f, 1e-6, 2_000.0, 10.0)

@@ -9,13 +9,14 @@
 #![allow(clippy::unwrap_used)] // test helpers outside #[test] functions
 
 use std::f64::consts::PI;
+use stillpoint::synth::rng::splitmix64;
 
 use realfft::RealFftPlanner;
 use realfft::num_complex::Complex64;
+use stillpoint::analysis::{AnalysisOptions, analyze};
 use stillpoint::dsp::{Spectrum, WelchConfig, welch::welch};
 use stillpoint::physics::oscillator::{lorentzian_psd, oscillator_psd, x_zpf_m};
 use stillpoint::physics::{calibration, fit, occupancy, peaks, sideband};
-use stillpoint::report::{AnalysisOptions, analyze};
 
 struct Rng(u64);
 impl Rng {
@@ -23,11 +24,7 @@ impl Rng {
         Self(seed.wrapping_mul(0x9E37_79B9_7F4A_7C15) ^ 0x1234_5678_9ABC_DEF1)
     }
     fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
+        splitmix64(&mut self.0)
     }
     fn uniform(&mut self) -> f64 {
         ((self.next_u64() >> 11) as f64 + 0.5) / (1u64 << 53) as f64

@@ -1,6 +1,7 @@
 //! Snapshots: exact round trip (bit-identical f64 through the CSV), refusal to overwrite,
-//! one-line errors for damaged files, crash safety under SIGKILL mid-save (a child process —
-//! this test binary re-invoked — saves in a loop and is killed), comparison helpers, and a
+//! one-line errors for damaged files, crash safety (a save stopped after each step in
+//! process; under SIGKILL a child process — this test binary re-invoked — saving in a loop,
+//! and once killed deliberately between its two renames), comparison helpers, and a
 //! property test that arbitrary bytes never make the loader panic.
 #![allow(clippy::unwrap_used)] // helpers outside #[test] functions unwrap too
 
@@ -11,7 +12,7 @@ use proptest::prelude::*;
 use stillpoint::dsp::{Averaging, Detrend, Spectrum, WindowKind};
 use stillpoint::report::{PeakReport, Report};
 use stillpoint::snapshot::{
-    self, SnapshotCalibration, SnapshotError, SnapshotInfo, compare, excess_bands, load,
+    self, SaveStep, SnapshotCalibration, SnapshotError, SnapshotInfo, compare, excess_bands, load,
     mark_new_peaks, read_spectrum_csv, save, snapshot_paths, write_spectrum_csv,
 };
 use stillpoint::synth::rng::Rng;
@@ -337,7 +338,7 @@ fn interrupted_save_is_recovered_from_temporary_metadata() {
     assert_eq!(l.meta.label, "new");
     assert!(l.warnings[0].contains("interrupted"), "{:?}", l.warnings);
     assert_eq!(
-        snapshot::remove_stale_temp_files(&dir.path().join("s.json")).unwrap(),
+        stillpoint::io::atomic::remove_stale_temp_files(&dir.path().join("s.json")).unwrap(),
         1
     );
     // Without the temporary file: the data still load, flagged as modified.
@@ -347,6 +348,8 @@ fn interrupted_save_is_recovered_from_temporary_metadata() {
 }
 
 const CHILD_ENV: &str = "STILLPOINT_SNAPSHOT_CRASH_DIR";
+/// Set for the child of the deliberate round (see [`crash_child`]).
+const STOP_ENV: &str = "STILLPOINT_SNAPSHOT_CRASH_STOP";
 const CRASH_BINS: usize = 200_001;
 
 /// The child: save large snapshots over one name in a loop until killed. Each version's data
@@ -357,8 +360,28 @@ fn crash_child() {
     let Ok(dir) = std::env::var(CHILD_ENV) else {
         return;
     };
-    let path = PathBuf::from(dir).join("big");
+    let path = PathBuf::from(&dir).join("big");
     let mut s = spectrum(CRASH_BINS, 99);
+    if std::env::var(STOP_ENV).is_ok() {
+        // The deliberate round: two whole saves, then a third stopped with its CSV in place
+        // and its JSON still in the temporary file; wait there to be killed.
+        for version in 1_u64..=3 {
+            for p in s.psd_v2_per_hz.iter_mut().skip(1) {
+                *p = version as f64;
+            }
+            let mut i = info(version % 2 == 0);
+            i.label = version.to_string();
+            if version < 3 {
+                save(&path, &s, &i, true).unwrap();
+            } else {
+                snapshot::save_killed_after(&path, &s, &i, SaveStep::DataInPlace).unwrap();
+            }
+        }
+        std::fs::write(Path::new(&dir).join("stopped"), b"").unwrap();
+        loop {
+            std::thread::sleep(Duration::from_millis(50));
+        }
+    }
     for version in 1_u64.. {
         for p in s.psd_v2_per_hz.iter_mut().skip(1) {
             *p = version as f64;
@@ -450,14 +473,118 @@ fn kill_mid_save_leaves_a_complete_snapshot() {
         }
     }
     assert!(versions_seen.iter().any(|v| *v > 0.0), "{versions_seen:?}");
-    let removed = snapshot::remove_stale_temp_files(&dir.path().join("big.json")).unwrap()
-        + snapshot::remove_stale_temp_files(&dir.path().join("big.csv")).unwrap();
-    // After cleaning, the snapshot still loads.
-    load(&path).unwrap();
+    // Cleaning finishes a save killed between its renames before deleting its journal: the
+    // snapshot still loads, as the same version.
+    let before = load(&path).unwrap().meta.label;
+    let removed = snapshot::remove_stale_temp_files(&path).unwrap();
+    let after = load(&path).unwrap();
+    assert_eq!(after.meta.label, before);
+    assert!(after.warnings.is_empty(), "{:?}", after.warnings);
+
+    // The deliberate round: a child killed while its new CSV sits beside the old JSON
+    // (version 3, uncalibrated, over version 2, calibrated: a mixed pair would not load).
+    let _ = std::fs::remove_file(dir.path().join("stopped"));
+    let mut child = std::process::Command::new(&exe)
+        .args([
+            "crash_child",
+            "--exact",
+            "--ignored",
+            "--nocapture",
+            "--test-threads=1",
+        ])
+        .env(CHILD_ENV, dir.path())
+        .env(STOP_ENV, "1")
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
+    let t0 = Instant::now();
+    while !dir.path().join("stopped").exists() {
+        assert!(
+            t0.elapsed() < Duration::from_secs(120),
+            "child never stopped"
+        );
+        std::thread::sleep(Duration::from_millis(5));
+    }
+    child.kill().unwrap();
+    child.wait().unwrap();
+    let loaded = load(&path).unwrap();
+    assert_eq!(loaded.meta.label, "3");
+    assert!(loaded.psd_m2_per_hz.is_none());
+    assert!(loaded.spectrum.psd_v2_per_hz[1..].iter().all(|p| *p == 3.0));
+    assert!(
+        loaded.warnings[0].contains("interrupted"),
+        "{:?}",
+        loaded.warnings
+    );
+    snapshot::remove_stale_temp_files(&path).unwrap();
+    let loaded = load(&path).unwrap();
+    assert_eq!(loaded.meta.label, "3");
+    assert!(loaded.warnings.is_empty(), "{:?}", loaded.warnings);
     println!(
         "save {save_time:?}; versions {versions_seen:?}; rounds killed mid-write: \
          {killed_mid_save}; temporary files removed: {removed}"
     );
+}
+
+/// A save stopped after each of its steps (as by a kill there) leaves a whole pair: the old
+/// one before the CSV rename, the new one after it (its JSON then taken from the journal);
+/// cleaning the temporary files keeps that same pair and leaves no mixed one behind.
+#[test]
+fn a_save_stopped_at_any_step_leaves_a_whole_pair() {
+    let steps = [
+        (Some(SaveStep::BothPrepared), "old"),
+        (Some(SaveStep::DataInPlace), "new"),
+        (None, "new"),
+    ];
+    for (step, want) in steps {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("pair");
+        let mut old = spectrum(513, 5);
+        old.psd_v2_per_hz.iter_mut().skip(1).for_each(|p| *p = 0.5);
+        let mut new = old.clone();
+        new.psd_v2_per_hz.iter_mut().skip(1).for_each(|p| *p = 7.0);
+        let mut old_info = info(false);
+        old_info.label = "old".to_string();
+        let mut new_info = info(true);
+        new_info.label = "new".to_string();
+        save(&path, &old, &old_info, false).unwrap();
+        match step {
+            Some(s) => snapshot::save_killed_after(&path, &new, &new_info, s).unwrap(),
+            None => {
+                save(&path, &new, &new_info, true).unwrap();
+            }
+        }
+        let check = |cleaned: bool| {
+            let l = load(&path).unwrap_or_else(|e| panic!("{step:?} cleaned {cleaned}: {e}"));
+            assert_eq!(l.meta.label, want, "{step:?} cleaned {cleaned}");
+            let (value, calibrated) = if want == "new" {
+                (7.0, true)
+            } else {
+                (0.5, false)
+            };
+            assert!(l.spectrum.psd_v2_per_hz[1..].iter().all(|p| *p == value));
+            assert_eq!(l.psd_m2_per_hz.is_some(), calibrated);
+            assert_eq!(l.meta.calibration.is_some(), calibrated);
+            if cleaned {
+                assert!(l.warnings.is_empty(), "{step:?}: {:?}", l.warnings);
+            }
+        };
+        check(false);
+        snapshot::remove_stale_temp_files(&path).unwrap();
+        check(true);
+        let temps = std::fs::read_dir(dir.path())
+            .unwrap()
+            .filter(|e| {
+                e.as_ref()
+                    .unwrap()
+                    .file_name()
+                    .to_string_lossy()
+                    .ends_with(".tmp")
+            })
+            .count();
+        assert_eq!(temps, 0, "{step:?}");
+    }
 }
 
 proptest! {

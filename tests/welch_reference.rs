@@ -11,6 +11,7 @@
 #![allow(clippy::unwrap_used)] // test helpers outside #[test] functions unwrap too
 
 use std::path::PathBuf;
+use stillpoint::synth::rng::splitmix64;
 
 use stillpoint::dsp::welch::welch;
 use stillpoint::dsp::{Averaging, Detrend, Welch, WelchConfig, WindowKind};
@@ -32,11 +33,7 @@ struct Rng(u64);
 
 impl Rng {
     fn uniform(&mut self) -> f64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^= z >> 31;
+        let z = splitmix64(&mut self.0);
         ((z >> 11) as f64 + 0.5) / (1u64 << 53) as f64
     }
 

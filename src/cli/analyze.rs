@@ -9,8 +9,9 @@ use std::process::ExitCode;
 
 use anyhow::{Context, Result};
 
+use crate::analysis;
 use crate::figure;
-use crate::report::{self, Report};
+use crate::report::Report;
 
 use super::args::{AnalyzeArgs, FigureSizeArg};
 use super::{InputError, config, note, output, pipeline, warn};
@@ -42,7 +43,7 @@ pub fn run(args: &AnalyzeArgs) -> Result<ExitCode> {
         super::cross::run_analyze(args, &options)?
     } else {
         let run = pipeline::compute_spectrum(&args.source, &args.welch)?;
-        (report::analyze(&run.spectrum, &options)?, run)
+        (analysis::analyze(&run.spectrum, &options)?, run)
     };
     for warning in run.warnings.iter().rev() {
         if !report.warnings.contains(warning) {

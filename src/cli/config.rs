@@ -3,8 +3,8 @@
 //! Shared by the headless commands and `monitor` (the window).
 
 use crate::acquire::{SourceConfig, SourceSpec};
+use crate::analysis::AnalysisOptions;
 use crate::dsp::{Averaging, WelchConfig};
-use crate::report::AnalysisOptions;
 
 use super::InputError;
 use super::args::{
@@ -217,7 +217,7 @@ pub fn calibration_kind(args: &CalibrationArgs) -> Result<CalibrationKind> {
     Ok(CalibrationKind::None)
 }
 
-/// The analysis options for [`crate::report::analyze`].
+/// The analysis options for [`crate::analysis::analyze`].
 ///
 /// # Errors
 /// Incomplete calibration options (see [`calibration_kind`]).

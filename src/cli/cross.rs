@@ -329,7 +329,7 @@ pub fn cross_csv(cross: &CrossSpectrum, m_per_v: Option<(f64, f64)>) -> Result<S
 /// Bad options or input, an impossible analysis input.
 pub fn run_analyze(
     args: &AnalyzeArgs,
-    options: &report::AnalysisOptions,
+    options: &crate::analysis::AnalysisOptions,
 ) -> Result<(report::Report, pipeline::SpectrumRun)> {
     let run = compute_cross(&args.source, &args.welch)?;
     let report = analyze_cross(&run.cross, options, run.channels)?;

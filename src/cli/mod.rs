@@ -26,8 +26,8 @@ use std::process::ExitCode;
 use clap::{CommandFactory, FromArgMatches};
 
 use crate::acquire::AcquireError;
+use crate::analysis::AnalysisError;
 use crate::dsp::DspError;
-use crate::report::AnalysisError;
 use crate::synth::SynthError;
 
 pub use args::{Cli, Command};

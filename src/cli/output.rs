@@ -1,5 +1,5 @@
 //! Output files of the headless commands: atomic replacement through
-//! [`crate::snapshot::write_atomic`] (an existing file is only ever replaced by a complete
+//! [`crate::io::atomic::write_atomic`] (an existing file is only ever replaced by a complete
 //! result, keeping its permissions) and `-` for stdout.
 //!
 //! Before any sample is read, [`check_output_for`] makes sure the result can be written: the
@@ -16,7 +16,7 @@ use std::path::Path;
 use anyhow::{Context, Result};
 
 use crate::acquire::SourceSpec;
-use crate::snapshot::AtomicError;
+use crate::io::atomic::AtomicError;
 
 use super::{InputError, note, warn};
 
@@ -55,7 +55,7 @@ pub fn write_atomically(
             .with_context(|| format!("cannot write {}", path.display()))?;
         return Ok(());
     }
-    crate::snapshot::write_atomic(path, true, |out| write(out)).map_err(|e| match e {
+    crate::io::atomic::write_atomic(path, true, |out| write(out)).map_err(|e| match e {
         AtomicError::Io(e) | AtomicError::Inner(e) => {
             anyhow::Error::from(e).context(format!("cannot write {}", path.display()))
         }
@@ -122,7 +122,7 @@ pub fn check_output_path(path: &Path) -> Result<()> {
             .map_err(|e| InputError(format!("cannot write to {}: {e}", path.display())))?;
         return Ok(());
     }
-    crate::snapshot::check_can_write(path).map_err(|e| {
+    crate::io::atomic::check_can_write(path).map_err(|e| {
         let why = if e.kind() == io::ErrorKind::InvalidFilename {
             format!(
                 "the name is too long for the file system ({} bytes)",
@@ -183,7 +183,7 @@ fn same_file(a: &Path, b: &Path) -> bool {
 /// Removes the temporary files that earlier runs writing `path` left when they were killed
 /// (their process no longer exists), with a note; reports those whose process may still run.
 fn clean_stale_temporaries(path: &Path) {
-    let Ok(found) = crate::snapshot::stale_temp_files(path) else {
+    let Ok(found) = crate::io::atomic::stale_temp_files(path) else {
         return;
     };
     let own = std::process::id();

@@ -6,7 +6,7 @@ use std::process::ExitCode;
 
 use anyhow::Result;
 
-use crate::report::{self, AnalysisOptions};
+use crate::analysis::{self, AnalysisOptions};
 use crate::snapshot;
 
 use super::args::{HeterodyneArgs, SpectrumArgs};
@@ -66,7 +66,7 @@ fn calibrate(
         CalibrationKind::None => Ok(None),
         CalibrationKind::Given => Ok(options.m_per_v),
         CalibrationKind::Tone | CalibrationKind::Equipartition => {
-            let report = report::analyze(spectrum, options)?;
+            let report = analysis::analyze(spectrum, options)?;
             match report.calibration.m_per_v {
                 Some(c) if c.is_finite() && c > 0.0 => Ok(Some(c)),
                 _ => {

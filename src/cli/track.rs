@@ -1,13 +1,13 @@
 //! `stillpoint track`: a long record or a live stream cut into consecutive intervals of
 //! `--every` seconds of samples, each analysed on its own exactly as `analyze` analyses a
 //! record (its own Welch average of the segments wholly inside it, then
-//! [`report::analyze`]), one CSV row per interval; optionally each interval's PSD as a row
+//! [`analysis::analyze`]), one CSV row per interval; optionally each interval's PSD as a row
 //! of a float32 `.npy` waterfall with its axes in a `.json` beside it.
 //!
 //! Data flow: acquisition thread → this thread (cuts the stream at interval boundaries,
 //! feeds the shared Welch averager with its worker threads, flushes and restarts it at
 //! each boundary) → a bounded channel of interval spectra → the `track-analysis` thread
-//! ([`report::analyze`], band following, rows out). The Welch of interval i + 1 runs while
+//! ([`analysis::analyze`], band following, rows out). The Welch of interval i + 1 runs while
 //! interval i is analysed and written, so the intervals cost little more than `spectrum`.
 //! Memory: the averager's (as `spectrum`), two interval spectra in the channel, and the
 //! interval times kept for the waterfall's `.json` (16 bytes per interval).
@@ -31,10 +31,11 @@ use anyhow::{Context, Result};
 use crossbeam_channel::{Receiver, Sender};
 
 use crate::acquire::{self, AcqEvent, AcquireError, Acquisition, ReaderStats};
+use crate::analysis::{self, AnalysisOptions};
 use crate::dsp::{Averaging, Spectrum, Welch};
 use crate::model::trend::{TRACK_HEADER, TrendRow};
 use crate::npy_writer::NpyWriter;
-use crate::report::{self, AnalysisOptions, Report};
+use crate::report::Report;
 
 use super::args::TrackArgs;
 use super::config::{self, CalibrationKind};
@@ -657,7 +658,7 @@ impl Analyst {
             Some(spectrum) => {
                 let mut options = self.options.clone();
                 options.mode_band_hz = band;
-                let report = report::analyze(spectrum, &options)?;
+                let report = analysis::analyze(spectrum, &options)?;
                 if !self.first_notes_shown {
                     self.first_notes_shown = true;
                     for text in &report.notes {

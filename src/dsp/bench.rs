@@ -7,6 +7,7 @@
 //! no detrend, no accumulation). Both report input samples per second, counting each
 //! segment as the `D` new samples it consumes, so the two figures compare directly.
 
+use crate::synth::rng::splitmix64;
 use std::time::Instant;
 
 use realfft::RealFftPlanner;
@@ -45,11 +46,7 @@ pub fn synthetic_samples(len: usize, seed: u64) -> Vec<f64> {
     let mut s = seed;
     (0..len)
         .map(|_| {
-            s = s.wrapping_add(0x9E37_79B9_7F4A_7C15);
-            let mut z = s;
-            z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-            z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-            z ^= z >> 31;
+            let z = splitmix64(&mut s);
             (z >> 11) as f64 / (1u64 << 52) as f64 - 1.0
         })
         .collect()

@@ -11,16 +11,17 @@
 //!   fit-error inflation factor.
 //! - [`welch`]: [`Welch`] (push blocks of any size; linear, exponential, median, max-hold;
 //!   restart; NaN/Inf segments skipped; optional worker threads) and the [`Spectrum`] it fills.
-//! - [`units`]: [`units::DensityUnit`] conversions, band variance/rms, cumulative rms,
-//!   [`units::tone_power`].
+//! - [`units`]: [`units::DensityUnit`] conversions, band variance/rms, cumulative rms.
 //! - [`cross`]: [`cross::CrossWelch`], cross-spectral density and coherence of two
 //!   channels (scipy.signal.csd / coherence conventions, METHODS.md §10).
+//! - [`median`](mod@median): numpy's median, in place.
 //! - [`bench`](mod@bench): Welch throughput and the FFT-only floor, for `stillpoint bench`.
 
 pub mod bench;
 pub mod cross;
 mod defaults;
 mod error;
+pub mod median;
 pub mod units;
 pub mod welch;
 pub mod window;

@@ -1,5 +1,5 @@
-//! Display units of spectral densities, integrated rms over a band, cumulative rms, and the
-//! robust reading of a tone's power from a PSD (METHODS.md §1 "Reading a pure tone").
+//! Display units of spectral densities, integrated rms over a band and cumulative rms. (The
+//! robust reading of a tone's power, METHODS.md §1, is `physics::calibration::read_tone`.)
 //!
 //! Every input is a one-sided PSD in V²/Hz as [`Spectrum`] holds it. A calibration is given as
 //! metres per volt `c`; displacement densities are `c² S_VV` (m²/Hz) and `c √S_VV` (m/√Hz).
@@ -172,129 +172,6 @@ pub fn cumulative_rms(spectrum: &Spectrum, direction: Cumulation) -> Vec<f64> {
     out
 }
 
-/// The noise floor B under a tone.
-#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
-pub enum ToneFloor {
-    /// No floor subtracted (B = 0).
-    None,
-    /// A given floor, V²/Hz.
-    Given(f64),
-    /// Estimated: the mean PSD of the `4M` bins on each side just outside the summed range
-    /// (bins k₀ ± (M+1) … k₀ ± (5M), where they exist).
-    Local,
-}
-
-/// A tone read from a PSD.
-#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
-pub struct ToneReading {
-    /// Bin k₀ of the highest PSD near the requested frequency.
-    pub peak_bin: usize,
-    /// Its frequency k₀ Δf.
-    pub peak_frequency_hz: f64,
-    /// Tone power `A_rms² = Σ_{|k−k₀|≤M} (PSD_k − B) Δf` (V²).
-    pub power_v2: f64,
-    /// The floor B used (V²/Hz).
-    pub floor_v2_per_hz: f64,
-    /// Half-width M (bins) of the sum ([`super::WindowKind::tone_half_width_bins`]).
-    pub half_width_bins: usize,
-    /// Bins actually summed (fewer than 2M + 1 near DC or Nyquist).
-    pub bins_summed: usize,
-}
-
-impl ToneReading {
-    /// Rms amplitude `√max(power, 0)` (V).
-    pub fn rms_v(&self) -> f64 {
-        self.power_v2.max(0.0).sqrt()
-    }
-}
-
-/// Bin of the highest PSD within ±`search_bins` of the bin nearest `frequency_hz`.
-///
-/// # Errors
-/// [`DspError::Band`] if the frequency is not finite or lies outside 0 … Nyquist (+½ bin).
-pub fn peak_bin_near(spectrum: &Spectrum, frequency_hz: f64, search_bins: usize) -> Result<usize> {
-    let df = spectrum.resolution_hz;
-    let top = spectrum.len().saturating_sub(1);
-    if spectrum.is_empty()
-        || df.is_nan()
-        || df <= 0.0
-        || !frequency_hz.is_finite()
-        || frequency_hz < 0.0
-        || frequency_hz > (top as f64 + 0.5) * df
-    {
-        return Err(DspError::Band(format!(
-            "tone frequency {frequency_hz} Hz lies outside the spectrum (0 to {} Hz)",
-            spectrum.frequency_hz(top)
-        )));
-    }
-    let centre = spectrum.bin_of(frequency_hz);
-    let lo = centre.saturating_sub(search_bins);
-    let hi = (centre + search_bins).min(top);
-    let mut best = centre;
-    let mut best_value = f64::NEG_INFINITY;
-    for k in lo..=hi {
-        let v = spectrum.psd_v2_per_hz.get(k).copied().unwrap_or(0.0);
-        if v > best_value {
-            best_value = v;
-            best = k;
-        }
-    }
-    Ok(best)
-}
-
-/// Reads the power of a tone near `frequency_hz` (METHODS.md §1, robust reading, any window):
-/// finds the peak bin k₀ within ±M bins of the nominal bin, then sums
-/// `Σ_{|k−k₀|≤M} (PSD_k − B) Δf` with M = `spectrum.window.tone_half_width_bins()` (3 for
-/// Hann, Hamming, Blackman–Harris and rectangular, 5 for the flat-top; ≥ 99.99 % of the tone
-/// power at the worst offset for the tapered windows; the rectangular window's slow side lobes
-/// leak several per cent outside ±3 bins, so do not read tones with it). Use this, not the
-/// peak PSD × Δf.
-///
-/// # Errors
-/// [`DspError::Band`] if the frequency lies outside the spectrum, or a given floor is not
-/// finite.
-pub fn tone_power(spectrum: &Spectrum, frequency_hz: f64, floor: ToneFloor) -> Result<ToneReading> {
-    let m = spectrum.window.tone_half_width_bins();
-    let k0 = peak_bin_near(spectrum, frequency_hz, m)?;
-    let top = spectrum.len().saturating_sub(1);
-    let lo = k0.saturating_sub(m);
-    let hi = (k0 + m).min(top);
-    let psd = &spectrum.psd_v2_per_hz;
-    let b = match floor {
-        ToneFloor::None => 0.0,
-        ToneFloor::Given(b) if b.is_finite() => b,
-        ToneFloor::Given(b) => {
-            return Err(DspError::Band(format!(
-                "tone floor must be a finite PSD, got {b}"
-            )));
-        }
-        ToneFloor::Local => {
-            let mut sum = 0.0;
-            let mut count = 0usize;
-            let below = k0.saturating_sub(5 * m)..k0.saturating_sub(m + 1).max(1).min(k0);
-            let above = (k0 + m + 1)..=(k0 + 5 * m).min(top);
-            // Skip DC (it carries the removed trend, not the noise floor).
-            for k in below.chain(above).filter(|&k| k > 0 && k <= top) {
-                if let Some(v) = psd.get(k) {
-                    sum += v;
-                    count += 1;
-                }
-            }
-            if count == 0 { 0.0 } else { sum / count as f64 }
-        }
-    };
-    let slice = psd.get(lo..=hi).unwrap_or(&[]);
-    let power = slice.iter().map(|p| p - b).sum::<f64>() * spectrum.resolution_hz;
-    Ok(ToneReading {
-        peak_bin: k0,
-        peak_frequency_hz: spectrum.frequency_hz(k0),
-        power_v2: power,
-        floor_v2_per_hz: b,
-        half_width_bins: m,
-        bins_summed: slice.len(),
-    })
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -385,41 +262,5 @@ mod tests {
         let var: f64 = x.iter().zip(&w).map(|(a, b)| (a * b).powi(2)).sum::<f64>() / s2;
         let total = band_variance(&s, 0.0, 50.0).unwrap();
         assert!((total - var).abs() < 1e-12 * var, "{total} vs {var}");
-    }
-
-    #[test]
-    fn tone_power_reads_an_off_bin_tone() {
-        // METHODS.md §1: rms 0.3 at bin 123.4, Σ_{±M} PSD Δf ≈ 0.09 for every window.
-        let n = 1024;
-        let x: Vec<f64> = (0..8 * n)
-            .map(|i| {
-                0.3 * 2f64.sqrt() * (2.0 * std::f64::consts::PI * 123.4 * i as f64 / n as f64).sin()
-                    + 1e-3 * (((i * 7919) % 1000) as f64 / 1000.0 - 0.5)
-            })
-            .collect();
-        for window in WindowKind::ALL {
-            let mut c = WelchConfig::new(n as f64, n);
-            c.window = window;
-            let s = welch(&x, &c).unwrap();
-            let r = tone_power(&s, 123.0, ToneFloor::Local).unwrap();
-            assert_eq!(r.bins_summed, 2 * window.tone_half_width_bins() + 1);
-            // The rectangular window leaks far beyond ±3 bins (sinc side lobes): only roughly.
-            let tol = if window == WindowKind::Rectangular {
-                0.1
-            } else {
-                1e-3
-            };
-            assert!(
-                ((r.power_v2 - 0.09) / 0.09).abs() < tol,
-                "{window:?}: {}",
-                r.power_v2
-            );
-            assert!(r.floor_v2_per_hz >= 0.0);
-        }
-        let s = welch(&x, &WelchConfig::new(n as f64, n)).unwrap();
-        assert!(tone_power(&s, 1e9, ToneFloor::None).is_err());
-        assert!(tone_power(&s, 123.0, ToneFloor::Given(f64::INFINITY)).is_err());
-        let near_dc = tone_power(&s, 1.0, ToneFloor::None).unwrap();
-        assert!(near_dc.bins_summed < 7);
     }
 }

@@ -251,7 +251,7 @@ impl Spectrum {
 
     /// Power spectrum `PS_k = PSD_k × ENBW` (V_rms²): the rms² of a tone centred on bin k
     /// (METHODS.md §1; off-centre tones read low by the window's scallop loss — use
-    /// [`super::units::tone_power`] instead). Never use it for noise.
+    /// [`crate::physics::calibration::read_tone`] instead). Never use it for noise.
     pub fn power_spectrum_v2(&self) -> Vec<f64> {
         self.psd_v2_per_hz
             .iter()

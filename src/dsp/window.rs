@@ -146,23 +146,6 @@ impl WindowKind {
     pub fn k_eff(self, n: usize, hop: usize, segments: usize) -> f64 {
         k_eff_from_window(&self.samples(n), hop, segments)
     }
-
-    /// Correlation coefficient of the power estimates of bins k and k + `lag` (Gaussian
-    /// noise): `ρ_bin(l) = |Σ_j w_j² e^{−2πi jl/N}|² / (Σ_j w_j²)²` (METHODS.md §2).
-    /// Hann: 4/9 at l = 1, 1/36 at l = 2, 0 beyond.
-    pub fn bin_correlation(self, n: usize, lag: usize) -> f64 {
-        bin_correlation(&self.samples(n), lag)
-    }
-
-    /// `√(1 + 2 Σ_{l≥1} ρ_bin(l))`: the factor by which a least-squares fit that treats the
-    /// bins of one spectrum as independent understates its parameter errors (METHODS.md §2;
-    /// ×1.39 for Hann, ×1.66 for Blackman–Harris, 1 for rectangular). The sum runs over
-    /// l = 1 … 2(terms − 1) (w² is a cosine sum of that order, so ρ_bin vanishes beyond;
-    /// for very short windows it is cut at N/2).
-    pub fn fit_error_inflation(self, n: usize) -> f64 {
-        let w = self.samples(n);
-        fit_error_inflation(&w, self.terms())
-    }
 }
 
 /// Largest length at which the amplitude response is scanned.
@@ -384,32 +367,6 @@ fn k_eff_from_window(w: &[f64], hop: usize, segments: usize) -> f64 {
     k_eff_from_rho2(&overlap_correlations_squared(w, hop), segments)
 }
 
-fn bin_correlation(w: &[f64], lag: usize) -> f64 {
-    let n = w.len();
-    if n == 0 {
-        return 0.0;
-    }
-    let (mut re, mut im, mut s2) = (0.0, 0.0, 0.0);
-    for (j, &wj) in w.iter().enumerate() {
-        let w2 = wj * wj;
-        let r = (j as u128 * lag as u128 % n as u128) as f64;
-        let phase = -2.0 * PI * r / n as f64;
-        re += w2 * phase.cos();
-        im += w2 * phase.sin();
-        s2 += w2;
-    }
-    if s2 == 0.0 {
-        return 0.0;
-    }
-    (re * re + im * im) / (s2 * s2)
-}
-
-fn fit_error_inflation(w: &[f64], terms: usize) -> f64 {
-    let max_lag = (2 * terms.saturating_sub(1)).min(w.len() / 2);
-    let sum: f64 = (1..=max_lag).map(|l| bin_correlation(w, l)).sum();
-    (1.0 + 2.0 * sum).sqrt()
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -458,12 +415,5 @@ mod tests {
             let expect = 18.0 * kf * kf / (19.0 * kf - 1.0);
             assert!((WindowKind::Hann.k_eff(n, 512, k) - expect).abs() < 1e-9 * expect);
         }
-        // METHODS.md §2: ρ_bin = 4/9, 1/36, 0; inflation √(1 + 2(4/9 + 1/36)) ≈ 1.39.
-        assert!((WindowKind::Hann.bin_correlation(n, 1) - 4.0 / 9.0).abs() < 1e-12);
-        assert!((WindowKind::Hann.bin_correlation(n, 2) - 1.0 / 36.0).abs() < 1e-12);
-        assert!(WindowKind::Hann.bin_correlation(n, 3) < 1e-25);
-        let infl = WindowKind::Hann.fit_error_inflation(n);
-        assert!((infl - (1.0f64 + 2.0 * (4.0 / 9.0 + 1.0 / 36.0)).sqrt()).abs() < 1e-12);
-        assert!((WindowKind::Rectangular.fit_error_inflation(n) - 1.0).abs() < 1e-12);
     }
 }

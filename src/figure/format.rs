@@ -66,6 +66,26 @@ pub fn significant(value: f64, digits: usize) -> String {
     }
 }
 
+/// The rounding rule for a value with its uncertainty (common practice in physics
+/// reporting): σ to two significant digits, the value to the same decimal place. Returns
+/// (value, σ, place) with both rounded at 10^place, the place of σ's second significant
+/// digit; a σ that rounds up to three digits (0.996 → 1.0) moves the place one up. Used by
+/// the figures ([`with_uncertainty`]) and the window (`model::format::format_uncertain`).
+/// `sigma` must be finite and positive.
+#[allow(clippy::cast_possible_truncation)] // |log10| of a finite f64 is < 400
+pub fn round_to_uncertainty(value: f64, sigma: f64) -> (f64, f64, i32) {
+    let mut place = decade(sigma) - 1;
+    if (sigma / 10_f64.powi(place)).round() >= 100.0 {
+        place += 1;
+    }
+    let step = 10_f64.powi(place);
+    (
+        (value / step).round() * step,
+        (sigma / step).round() * step,
+        place,
+    )
+}
+
 /// `value ± sigma` with σ to two significant digits and the value to the same place;
 /// `value` alone (6 significant digits) when σ is missing, zero or not finite.
 pub fn with_uncertainty(value: f64, sigma: Option<f64>) -> String {
@@ -75,12 +95,7 @@ pub fn with_uncertainty(value: f64, sigma: Option<f64>) -> String {
     if !value.is_finite() {
         return "—".to_string();
     }
-    // Round σ to two significant digits first: that may change its decade (0.996 → 1.0).
-    let mut place = decade(sigma) - 1;
-    let rounded_sigma = (sigma / 10_f64.powi(place)).round() * 10_f64.powi(place);
-    if decade(rounded_sigma) - 1 > place {
-        place += 1;
-    }
+    let (rounded_value, rounded_sigma, place) = round_to_uncertainty(value, sigma);
     let e = if value == 0.0 {
         decade(sigma)
     } else {
@@ -92,9 +107,7 @@ pub fn with_uncertainty(value: f64, sigma: Option<f64>) -> String {
     let unit = 10_f64.powi(shift);
     #[allow(clippy::cast_sign_loss)] // clamped at 0
     let decimals = (shift - place).max(0) as usize;
-    // The value rounded at σ's second significant digit (83412.7 ± 1234 → 83400 ± 1200).
-    let step = 10_f64.powi(place);
-    let v = (value / step).round() * step / unit;
+    let v = rounded_value / unit;
     let s = rounded_sigma / unit;
     let body = format!("{v:.decimals$} ± {s:.decimals$}");
     if scaled {

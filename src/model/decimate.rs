@@ -7,6 +7,7 @@
 //! with a pointer, so the cost is linear in the number of bins inside the view with no
 //! logarithm per bin.
 
+use crate::synth::rng::splitmix64;
 use std::time::{Duration, Instant};
 
 /// Min/max decimation of `(freqs[k], values[k])` onto `pixel_columns` columns evenly spaced in
@@ -186,11 +187,7 @@ pub fn bench_plot_prep(runs: usize) -> Duration {
     let values: Vec<f64> = (0..n)
         .map(|k| {
             // splitmix64 noise, a few narrow lines
-            state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
-            let mut z = state;
-            z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-            z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-            z ^= z >> 31;
+            let z = splitmix64(&mut state);
             let u = (z >> 11) as f64 / (1u64 << 53) as f64;
             let line = if k % 99_991 == 0 { 1e3 } else { 1.0 };
             (1e-12 * line * (0.5 + u)).log10()

@@ -17,9 +17,10 @@ use super::{ModelError, Result};
 use crate::acquire::{
     self, AcqCommand, AcqEvent, AcqOptions, AcqStatus, Acquisition, SourceConfig, SourceSpec,
 };
+use crate::analysis::{self, AnalysisOptions};
 use crate::dsp::cross::{CrossSpectrum, CrossWelch};
 use crate::dsp::{Averaging, Spectrum, Welch};
-use crate::report::{self, AnalysisOptions, Report};
+use crate::report::Report;
 
 /// Closure that wakes the window (the window passes `ctx.request_repaint()`).
 pub type Waker = Box<dyn Fn() + Send + Sync>;
@@ -777,8 +778,8 @@ impl Worker {
         let cross = self.cross_spectrum.clone();
         let channels = self.cross_channels();
         let run = |options: &AnalysisOptions| match (&cross, channels) {
-            (Some(c), Some(ch)) => report::cross::analyze_cross(c, options, ch),
-            _ => report::analyze(&spectrum, options),
+            (Some(c), Some(ch)) => crate::report::cross::analyze_cross(c, options, ch),
+            _ => analysis::analyze(&spectrum, options),
         };
         let mut result = run(&options);
         if self.config.follow_mode

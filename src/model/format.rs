@@ -3,7 +3,7 @@
 //! rates one way ("250 kS/s"), large counts grouped by thousands, and the readable UTC
 //! date-time used to name files. No egui here, so the rules are unit-tested.
 
-use crate::figure::format::superscript;
+use crate::figure::format::{round_to_uncertainty, superscript};
 
 /// `value` with `sig` significant digits: plain between 10⁻³ and 10⁷, else `m × 10ⁿ`.
 pub fn format_significant(value: f64, sig: usize) -> String {
@@ -41,15 +41,7 @@ pub fn format_uncertain(value: f64, sigma: Option<f64>) -> String {
     let Some(sigma) = sigma.filter(|s| s.is_finite() && *s > 0.0) else {
         return format_significant(value, 4);
     };
-    // Decimal place of σ's second significant digit (10^d); σ rounding up to three digits
-    // (99.7 → 100) moves it one place.
-    let mut d = sigma.log10().floor() as i32 - 1;
-    if (sigma / 10f64.powi(d)).round() >= 100.0 {
-        d += 1;
-    }
-    let step = 10f64.powi(d);
-    let s = (sigma / step).round() * step;
-    let v = (value / step).round() * step;
+    let (v, s, d) = round_to_uncertainty(value, sigma);
     let top = v.abs().max(s);
     let e = top.log10().floor() as i32;
     if (-3..7).contains(&e) {

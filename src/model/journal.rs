@@ -216,12 +216,12 @@ impl JournalWriter {
     fn write_header(&self) -> Result<(), JournalError> {
         let text = serde_json::to_string_pretty(&self.header)
             .map_err(|e| io_at(&self.header_path)(io::Error::other(e)))?;
-        crate::snapshot::write_atomic(&self.header_path, true, |out| {
+        crate::io::atomic::write_atomic(&self.header_path, true, |out| {
             out.write_all(text.as_bytes())?;
             out.write_all(b"\n")
         })
         .map_err(|e| match e {
-            crate::snapshot::AtomicError::Io(e) | crate::snapshot::AtomicError::Inner(e) => {
+            crate::io::atomic::AtomicError::Io(e) | crate::io::atomic::AtomicError::Inner(e) => {
                 io_at(&self.header_path)(e)
             }
         })

@@ -7,9 +7,9 @@ use std::path::PathBuf;
 
 use serde::{Deserialize, Serialize};
 
+use crate::analysis::AnalysisOptions;
 use crate::dsp::units::DensityUnit;
 use crate::dsp::{Averaging, Detrend, WelchConfig, WindowKind};
-use crate::report::AnalysisOptions;
 
 /// Display units in the order the unit button cycles through them.
 pub const UNIT_CYCLE: [DensityUnit; 6] = [

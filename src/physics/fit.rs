@@ -238,21 +238,11 @@ impl Model for ModeModel<'_> {
     }
 }
 
-/// Median of a slice (copies; NaN-free input assumed).
+/// Median of the finite values of a slice (copies; [`crate::dsp::median::median`]); NaN
+/// when there are none.
 pub(crate) fn median(values: &[f64]) -> f64 {
     let mut v: Vec<f64> = values.iter().copied().filter(|x| x.is_finite()).collect();
-    if v.is_empty() {
-        return f64::NAN;
-    }
-    let mid = v.len() / 2;
-    v.select_nth_unstable_by(mid, f64::total_cmp);
-    let hi = v[mid];
-    if v.len() % 2 == 1 {
-        hi
-    } else {
-        let lo = v[..mid].iter().copied().fold(f64::NEG_INFINITY, f64::max);
-        0.5 * (lo + hi)
-    }
+    crate::dsp::median::median(&mut v).unwrap_or(f64::NAN)
 }
 
 /// Checks a band against a spectrum and returns the inclusive bin range.
@@ -298,33 +288,8 @@ pub fn fit_mode_with(
     band_hz: (f64, f64),
     options: &FitOptions,
 ) -> Result<ModeFit> {
-    let (k_lo, k_hi) = band_bins(spectrum, band_hz, "mode band")?;
+    let (freqs, data, bins) = band_data(spectrum, band_hz, options, false)?;
     let df = spectrum.resolution_hz;
-    let mut freqs = Vec::with_capacity(k_hi.saturating_sub(k_lo) + 1);
-    let mut data = Vec::with_capacity(freqs.capacity());
-    let mut bins = Vec::with_capacity(freqs.capacity());
-    for k in k_lo..=k_hi {
-        let f = k as f64 * df;
-        if options.exclude_hz.iter().any(|&(a, b)| f >= a && f <= b) {
-            continue;
-        }
-        let Some(&d) = spectrum.psd_v2_per_hz.get(k) else {
-            continue;
-        };
-        if d.is_finite() && d >= 0.0 {
-            freqs.push(f);
-            data.push(d);
-            bins.push(k);
-        }
-    }
-    let n_par = if options.sloped_background { 5 } else { 4 };
-    if data.len() < n_par + 4 {
-        return Err(PhysicsError::NoMode(format!(
-            "the band holds only {} usable bins (need at least {})",
-            data.len(),
-            n_par + 4
-        )));
-    }
     let k_eff = if spectrum.k_eff.is_finite() && spectrum.k_eff > 0.0 {
         spectrum.k_eff
     } else {
@@ -553,6 +518,116 @@ pub(crate) fn initial_guess(freqs: &[f64], data: &[f64], df: f64) -> Option<(f64
     Some((floor.max(1e-300), area, freqs[i_pk], width))
 }
 
+/// Why no solution came out of the solver, as a [`PhysicsError::NoMode`].
+fn no_fit(last_err: SolveFailure) -> PhysicsError {
+    PhysicsError::NoMode(match last_err {
+        SolveFailure::BadStart => "the fit could not start from the data".to_string(),
+        SolveFailure::NotConverged => "the fit did not converge".to_string(),
+        SolveFailure::Singular => "the fit is degenerate (line not constrained)".to_string(),
+    })
+}
+
+/// The usable bins of `band_hz` outside `options.exclude_hz`: (frequencies, values, bin
+/// indices), values finite (and ≥ 0 unless `signed`), at least 4 more than the parameters.
+fn band_data(
+    spectrum: &Spectrum,
+    band_hz: (f64, f64),
+    options: &FitOptions,
+    signed: bool,
+) -> Result<(Vec<f64>, Vec<f64>, Vec<usize>)> {
+    let (k_lo, k_hi) = band_bins(spectrum, band_hz, "mode band")?;
+    let df = spectrum.resolution_hz;
+    let mut freqs = Vec::with_capacity(k_hi.saturating_sub(k_lo) + 1);
+    let mut data = Vec::with_capacity(freqs.capacity());
+    let mut bins = Vec::with_capacity(freqs.capacity());
+    for k in k_lo..=k_hi {
+        let f = k as f64 * df;
+        if options.exclude_hz.iter().any(|&(a, b)| f >= a && f <= b) {
+            continue;
+        }
+        let Some(&d) = spectrum.psd_v2_per_hz.get(k) else {
+            continue;
+        };
+        if d.is_finite() && (signed || d >= 0.0) {
+            freqs.push(f);
+            data.push(d);
+            bins.push(k);
+        }
+    }
+    let n_par = if options.sloped_background { 5 } else { 4 };
+    if data.len() < n_par + 4 {
+        return Err(PhysicsError::NoMode(format!(
+            "the band holds only {} usable bins (need at least {})",
+            data.len(),
+            n_par + 4
+        )));
+    }
+    Ok((freqs, data, bins))
+}
+
+/// The fit's result from the solver's parameters (B, A, f_m, γ[, slope]) and covariance:
+/// the covariance scaled by χ²_red and the window's bin-correlation inflation², Q and the
+/// peak through their gradients in (A, f_m, γ), the background at f_m (with its slope).
+fn mode_fit_from(
+    sol: &lsq::Solution,
+    inflation: f64,
+    options: &FitOptions,
+    band_hz: (f64, f64),
+    bins: usize,
+    enbw_hz: f64,
+) -> ModeFit {
+    let f_ref = 0.5 * (band_hz.0 + band_hz.1);
+    let n = sol.params.len();
+    let chi2_red = sol.chi2 / sol.dof.max(1) as f64;
+    let var_scale = chi2_red * inflation * inflation;
+    let cov =
+        |a: usize, b: usize| sol.covariance.get(a * n + b).copied().unwrap_or(0.0) * var_scale;
+    let p = &sol.params;
+    let (b, a, c, w) = (p[0], p[1], p[2], p[3]);
+    let sd = |k: usize| cov(k, k).max(0.0).sqrt();
+    // Derived quantities through their gradients in (A, f_m, γ) = indices 1, 2, 3.
+    let propagate = |g: [f64; 3]| {
+        let idx = [1usize, 2, 3];
+        let mut v = 0.0;
+        for (i, gi) in idx.iter().zip(g) {
+            for (j, gj) in idx.iter().zip(g) {
+                v += gi * gj * cov(*i, *j);
+            }
+        }
+        v.max(0.0).sqrt()
+    };
+    let q = c / w;
+    let peak = 2.0 * a / (PI * w);
+    let mut bg = b;
+    let mut bg_sigma = sd(0);
+    let mut slope = None;
+    if options.sloped_background {
+        let x = c - f_ref;
+        bg = b + p[4] * x;
+        bg_sigma = (cov(0, 0) + x * x * cov(4, 4) + 2.0 * x * cov(0, 4))
+            .max(0.0)
+            .sqrt();
+        slope = Some(Estimate::new(p[4], sd(4)));
+    }
+    ModeFit {
+        frequency_hz: Estimate::new(c, sd(2)),
+        linewidth_hz: Estimate::new(w, sd(3)),
+        quality_factor: Estimate::new(q, propagate([0.0, 1.0 / w, -c / (w * w)])),
+        area: Estimate::new(a, sd(1)),
+        peak_psd: Estimate::new(peak, propagate([2.0 / (PI * w), 0.0, -peak / w])),
+        background_psd: Estimate::new(bg, bg_sigma),
+        background_slope_per_hz: slope,
+        line_shape: options.line_shape,
+        reduced_chi2: chi2_red,
+        bins,
+        band_hz,
+        error_inflation: inflation,
+        resolution_limited: w < 5.0 * enbw_hz,
+        slope_reference_hz: f_ref,
+        linewidth_fit_hz: None,
+    }
+}
+
 #[allow(clippy::too_many_arguments)]
 fn fit_bins(
     freqs: &[f64],
@@ -590,62 +665,8 @@ fn fit_bins(
             Err(e) => last_err = e,
         }
     }
-    let sol = best.ok_or_else(|| {
-        PhysicsError::NoMode(match last_err {
-            SolveFailure::BadStart => "the fit could not start from the data".to_string(),
-            SolveFailure::NotConverged => "the fit did not converge".to_string(),
-            SolveFailure::Singular => "the fit is degenerate (line not constrained)".to_string(),
-        })
-    })?;
-    let n = model.n_params();
-    let chi2_red = sol.chi2 / sol.dof.max(1) as f64;
-    let var_scale = chi2_red * inflation * inflation;
-    let cov =
-        |a: usize, b: usize| sol.covariance.get(a * n + b).copied().unwrap_or(0.0) * var_scale;
-    let p = &sol.params;
-    let (b, a, c, w) = (p[0], p[1], p[2], p[3]);
-    let sd = |k: usize| cov(k, k).max(0.0).sqrt();
-    // Derived quantities through their gradients in (A, f_m, γ) = indices 1, 2, 3.
-    let propagate = |g: [f64; 3]| {
-        let idx = [1usize, 2, 3];
-        let mut v = 0.0;
-        for (i, gi) in idx.iter().zip(g) {
-            for (j, gj) in idx.iter().zip(g) {
-                v += gi * gj * cov(*i, *j);
-            }
-        }
-        v.max(0.0).sqrt()
-    };
-    let q = c / w;
-    let peak = 2.0 * a / (PI * w);
-    let mut bg = b;
-    let mut bg_sigma = sd(0);
-    let mut slope = None;
-    if options.sloped_background {
-        let x = c - f_ref;
-        bg = b + p[4] * x;
-        bg_sigma = (cov(0, 0) + x * x * cov(4, 4) + 2.0 * x * cov(0, 4))
-            .max(0.0)
-            .sqrt();
-        slope = Some(Estimate::new(p[4], sd(4)));
-    }
-    let fit = ModeFit {
-        frequency_hz: Estimate::new(c, sd(2)),
-        linewidth_hz: Estimate::new(w, sd(3)),
-        quality_factor: Estimate::new(q, propagate([0.0, 1.0 / w, -c / (w * w)])),
-        area: Estimate::new(a, sd(1)),
-        peak_psd: Estimate::new(peak, propagate([2.0 / (PI * w), 0.0, -peak / w])),
-        background_psd: Estimate::new(bg, bg_sigma),
-        background_slope_per_hz: slope,
-        line_shape: options.line_shape,
-        reduced_chi2: chi2_red,
-        bins: data.len(),
-        band_hz,
-        error_inflation: inflation,
-        resolution_limited: w < 5.0 * enbw_hz,
-        slope_reference_hz: f_ref,
-        linewidth_fit_hz: None,
-    };
+    let sol = best.ok_or_else(|| no_fit(last_err))?;
+    let fit = mode_fit_from(&sol, inflation, options, band_hz, data.len(), enbw_hz);
     let detection = fit.area.sigma;
     accept(fit, Some(0.25 * df), detection, options.min_significance)
 }
@@ -781,32 +802,9 @@ pub fn fit_mode_given_variance(
     options: &FitOptions,
     variance: &dyn Fn(usize, f64) -> f64,
 ) -> Result<ModeFit> {
-    let (k_lo, k_hi) = band_bins(data, band_hz, "mode band")?;
+    let (freqs, values, bins) = band_data(data, band_hz, options, true)?;
     let df = data.resolution_hz;
-    let mut freqs = Vec::new();
-    let mut values = Vec::new();
-    let mut bins = Vec::new();
-    for k in k_lo..=k_hi {
-        let f = k as f64 * df;
-        if options.exclude_hz.iter().any(|&(a, b)| f >= a && f <= b) {
-            continue;
-        }
-        if let Some(&d) = data.psd_v2_per_hz.get(k)
-            && d.is_finite()
-        {
-            freqs.push(f);
-            values.push(d);
-            bins.push(k);
-        }
-    }
     let n_par = if options.sloped_background { 5 } else { 4 };
-    if values.len() < n_par + 4 {
-        return Err(PhysicsError::NoMode(format!(
-            "the band holds only {} usable bins (need at least {})",
-            values.len(),
-            n_par + 4
-        )));
-    }
     let (b0, a0, f0, w0) = signed_guess(&freqs, &values, df)
         .ok_or_else(|| PhysicsError::NoMode("no peak above the background".into()))?;
     let scale_max = values.iter().fold(0.0f64, |m, v| m.max(v.abs()));
@@ -887,60 +885,17 @@ pub fn fit_mode_given_variance(
         }
     }
     let Some((sol, _)) = best else {
-        return Err(PhysicsError::NoMode(match last_err {
-            SolveFailure::BadStart => "the fit could not start from the data".to_string(),
-            SolveFailure::NotConverged => "the fit did not converge".to_string(),
-            SolveFailure::Singular => "the fit is degenerate (line not constrained)".to_string(),
-        }));
+        return Err(no_fit(last_err));
     };
-    let n = sol.params.len();
-    let chi2_red = sol.chi2 / sol.dof.max(1) as f64;
     let inflation = window_stats::error_inflation(data.window);
-    let var_scale = chi2_red * inflation * inflation;
-    let cov =
-        |a: usize, b: usize| sol.covariance.get(a * n + b).copied().unwrap_or(0.0) * var_scale;
-    let sd = |k: usize| cov(k, k).max(0.0).sqrt();
-    let propagate = |g: [f64; 3]| {
-        let mut v = 0.0;
-        for (i, gi) in (1..4).zip(g) {
-            for (j, gj) in (1..4).zip(g) {
-                v += gi * gj * cov(i, j);
-            }
-        }
-        v.max(0.0).sqrt()
-    };
-    let p = &sol.params;
-    let (b, a, c, w) = (p[0], p[1], p[2], p[3]);
-    let peak = 2.0 * a / (PI * w);
-    let (bg, bg_sigma, slope) = if options.sloped_background {
-        let x = c - f_ref;
-        (
-            b + p[4] * x,
-            (cov(0, 0) + x * x * cov(4, 4) + 2.0 * x * cov(0, 4))
-                .max(0.0)
-                .sqrt(),
-            Some(Estimate::new(p[4], sd(4))),
-        )
-    } else {
-        (b, sd(0), None)
-    };
-    let fit = ModeFit {
-        frequency_hz: Estimate::new(c, sd(2)),
-        linewidth_hz: Estimate::new(w, sd(3)),
-        quality_factor: Estimate::new(c / w, propagate([0.0, 1.0 / w, -c / (w * w)])),
-        area: Estimate::new(a, sd(1)),
-        peak_psd: Estimate::new(peak, propagate([2.0 / (PI * w), 0.0, -peak / w])),
-        background_psd: Estimate::new(bg, bg_sigma),
-        background_slope_per_hz: slope,
-        line_shape: options.line_shape,
-        reduced_chi2: chi2_red,
-        bins: values.len(),
+    let fit = mode_fit_from(
+        &sol,
+        inflation,
+        options,
         band_hz,
-        error_inflation: inflation,
-        resolution_limited: w < 5.0 * data.enbw_hz,
-        slope_reference_hz: f_ref,
-        linewidth_fit_hz: None,
-    };
+        values.len(),
+        data.enbw_hz,
+    );
     let detection = fit.area.sigma;
     accept(fit, Some(0.25 * df), detection, options.min_significance)
 }

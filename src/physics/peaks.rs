@@ -22,10 +22,8 @@ pub struct PeakOptions {
     /// Frequency ranges (Hz) not searched (the mode band, the tone, sideband windows).
     pub exclude_hz: Vec<(f64, f64)>,
     /// Frequencies (Hz) of a reference snapshot's peaks; when non-empty each peak is marked
-    /// new or not.
+    /// new or not ([`new_since_reference`] with a tolerance floor of 3 Δf).
     pub reference_hz: Vec<f64>,
-    /// Match tolerance (Hz) against the reference; `None` = max(3 Δf, the peak's width).
-    pub tolerance_hz: Option<f64>,
     /// Keep at most this many peaks (the highest); default 500.
     pub max_peaks: usize,
 }
@@ -37,7 +35,6 @@ impl Default for PeakOptions {
             floor_window_bins: 129,
             exclude_hz: Vec::new(),
             reference_hz: Vec::new(),
-            tolerance_hz: None,
             max_peaks: 500,
         }
     }
@@ -60,6 +57,9 @@ pub struct Peak {
     pub new_since_reference: Option<bool>,
 }
 
+/// The upper middle value (element n/2 of the sorted values), not numpy's mean of the two
+/// middle values ([`crate::dsp::median::median`]): the running floor's estimator as written,
+/// kept so that the reported stray-peak heights do not move.
 fn median_in_place(v: &mut [f64]) -> f64 {
     if v.is_empty() {
         return f64::NAN;
@@ -67,6 +67,22 @@ fn median_in_place(v: &mut [f64]) -> f64 {
     let mid = v.len() / 2;
     v.select_nth_unstable_by(mid, f64::total_cmp);
     v[mid]
+}
+
+/// Whether a peak at `frequency_hz` (FWHM `linewidth_hz`) is new since a reference: no
+/// reference peak frequency lies within `max(min_tolerance_hz, linewidth_hz)` of it. The one
+/// rule for `analyze`'s `peaks[].new_since_reference` and the window's marks against a
+/// reference snapshot (both with `min_tolerance_hz` = 3 Δf).
+pub fn new_since_reference(
+    frequency_hz: f64,
+    linewidth_hz: f64,
+    min_tolerance_hz: f64,
+    reference_hz: &[f64],
+) -> bool {
+    let tolerance = min_tolerance_hz.max(linewidth_hz);
+    !reference_hz
+        .iter()
+        .any(|r| (r - frequency_hz).abs() <= tolerance)
 }
 
 /// Bins a spectrum's floor and lines may not use: outside the finite positive values, the
@@ -333,14 +349,12 @@ pub fn find_peaks(spectrum: &Spectrum, options: &PeakOptions) -> Vec<Peak> {
     peaks.sort_by(|a, b| a.frequency_hz.total_cmp(&b.frequency_hz));
     if !options.reference_hz.is_empty() {
         for p in &mut peaks {
-            let tol = options
-                .tolerance_hz
-                .unwrap_or_else(|| (3.0 * df).max(p.linewidth_hz));
-            let known = options
-                .reference_hz
-                .iter()
-                .any(|r| (r - p.frequency_hz).abs() <= tol);
-            p.new_since_reference = Some(!known);
+            p.new_since_reference = Some(new_since_reference(
+                p.frequency_hz,
+                p.linewidth_hz,
+                3.0 * df,
+                &options.reference_hz,
+            ));
         }
     }
     peaks

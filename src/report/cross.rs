@@ -12,7 +12,8 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::{AnalysisError, AnalysisOptions, Report};
+use super::Report;
+use crate::analysis::{self, AnalysisError, AnalysisOptions};
 use crate::dsp::cross::{CrossSpectrum, coherence_noise_threshold};
 use crate::physics::calibration::{self, Calibration, CalibrationMethod, ToneOptions};
 use crate::physics::fit::{self, FitOptions, ModeFit};
@@ -64,7 +65,7 @@ pub struct CrossReport {
 /// Runs the two-detector analysis on a cross-spectrum of channels `channels = (a, b)`.
 ///
 /// # Errors
-/// [`AnalysisError::Input`] for impossible options (as [`super::analyze`]) and for
+/// [`AnalysisError::Input`] for impossible options (as [`analysis::analyze`]) and for
 /// `--carrier` (sideband thermometry is a single-channel analysis).
 pub fn analyze_cross(
     cross: &CrossSpectrum,
@@ -76,7 +77,7 @@ pub fn analyze_cross(
             "--carrier (sideband thermometry) is not available with --cross-channel".into(),
         ));
     }
-    super::validate(&cross.a, options)?;
+    analysis::validate(&cross.a, options)?;
     let spectrum_b = cross.spectrum_b();
     // Welch keys and stray peaks from channel a, as a single-channel run would give them.
     let peaks_only = AnalysisOptions {
@@ -84,7 +85,7 @@ pub fn analyze_cross(
         reference_peaks_hz: options.reference_peaks_hz.clone(),
         ..AnalysisOptions::default()
     };
-    let mut report = super::analyze(&cross.a, &peaks_only)?;
+    let mut report = analysis::analyze(&cross.a, &peaks_only)?;
     report.notes.clear();
     let df = cross.a.resolution_hz;
     let tone_exclusion = options.tone_frequency_hz.map(|f| {
@@ -151,9 +152,10 @@ pub fn analyze_cross(
     let mut per_channel: Option<(Calibration, Calibration)> = None;
     let mut cal: Option<Calibration> = None;
     if let Some(c) = options.m_per_v {
-        let given = calibration::given(c).map_err(super::input)?;
+        let given = calibration::given(c).map_err(analysis::input)?;
         per_channel = Some((given.clone(), given));
-    } else if let (Some(f_tone), Some(x)) = (options.tone_frequency_hz, super::tone_rms_m(options)?)
+    } else if let (Some(f_tone), Some(x)) =
+        (options.tone_frequency_hz, analysis::tone_rms_m(options)?)
     {
         let read = |s: &crate::dsp::Spectrum, which: &str| {
             calibration::read_tone(s, f_tone, &ToneOptions::default(), None)
@@ -175,7 +177,7 @@ pub fn analyze_cross(
                 Estimate::new(mass, options.mass_uncertainty_kg.unwrap_or(0.0)),
                 Estimate::new(t, options.bath_temperature_uncertainty_k.unwrap_or(0.0)),
             )
-            .map_err(super::input)?,
+            .map_err(analysis::input)?,
         );
         notes.push("calibration: equipartition on the cross-spectrum's line area assumes the mode is thermalised to the bath; the occupancy then equals the bath occupancy by construction".into());
     }
@@ -203,9 +205,9 @@ pub fn analyze_cross(
 
     // --- mode.*, quantum.* ---
     if let Some(m) = &mode_fit {
-        super::fill_mode(&mut report.mode, m, cal.as_ref());
+        analysis::fill_mode(&mut report.mode, m, cal.as_ref());
     }
-    super::fill_quantum(&mut report, mode_fit.as_ref(), cal.as_ref(), options);
+    analysis::fill_quantum(&mut report, mode_fit.as_ref(), cal.as_ref(), options);
 
     // --- cross.* ---
     let mut out = CrossReport {
@@ -255,7 +257,7 @@ pub fn analyze_cross(
         }
     }
     report.cross = Some(out);
-    super::sanitize(&mut report);
+    analysis::sanitize(&mut report);
     sanitize_cross(&mut report);
     Ok(report)
 }

@@ -31,12 +31,13 @@
 //! cryostat (hours, ≫ 1/Γ_m); the demo's cryostat stage is a time-lapse
 //! ([`QuantumParams::cryostat_lab_hours`] of lab time shown in `cryostat_secs`).
 
-use std::f64::consts::{PI, SQRT_2, TAU};
+use std::f64::consts::{SQRT_2, TAU};
 
 use serde::{Deserialize, Serialize};
 
 use super::oscillator::{OscillatorParams, ThermalOscillator};
 use super::rng::Rng;
+use super::stream::{Tone, resonance_truth, tone_truth};
 use super::{Generator, Result, ScenarioConfig, SynthError};
 use crate::physics::constants::{BOLTZMANN_J_PER_K, HBAR_J_S};
 
@@ -348,31 +349,6 @@ impl QuantumParams {
     }
 }
 
-struct Phasor {
-    step_cycles: f64,
-    phase_cycles: f64,
-    amplitude_v: f64,
-}
-
-impl Phasor {
-    fn new(frequency_hz: f64, rms_v: f64, fs: f64, phases: &mut Rng) -> Self {
-        Self {
-            step_cycles: frequency_hz / fs,
-            phase_cycles: phases.uniform(),
-            amplitude_v: SQRT_2 * rms_v,
-        }
-    }
-
-    fn next_sample(&mut self) -> f64 {
-        let v = self.amplitude_v * (TAU * self.phase_cycles).sin();
-        self.phase_cycles += self.step_cycles;
-        if self.phase_cycles >= 1.0 {
-            self.phase_cycles -= 1.0;
-        }
-        v
-    }
-}
-
 /// The `quantum` scenario's sample stream.
 pub(crate) struct QuantumStream {
     config: ScenarioConfig,
@@ -386,7 +362,7 @@ pub(crate) struct QuantumStream {
     blue_rng: Rng,
     red_amp: f64,
     blue_amp: f64,
-    tones: Vec<Phasor>,
+    tones: Vec<Tone>,
     floor_sd_v: f64,
     floor_rng: Rng,
 }
@@ -399,7 +375,7 @@ impl QuantumStream {
         };
         let fs = config.sample_rate_hz;
         let mut phases = Rng::stream(config.seed, STREAM_PHASES);
-        let mut tones = vec![Phasor::new(
+        let mut tones = vec![Tone::new(
             params.carrier_hz,
             params.carrier_rms_v,
             fs,
@@ -409,8 +385,8 @@ impl QuantumStream {
             // Each PM line carries half the tone's equivalent power (module docs).
             let line_rms_v = config.tone_rms_m / config.m_per_v / SQRT_2;
             let (a, b) = params.red_blue_hz(config.tone_frequency_hz);
-            tones.push(Phasor::new(a, line_rms_v, fs, &mut phases));
-            tones.push(Phasor::new(b, line_rms_v, fs, &mut phases));
+            tones.push(Tone::new(a, line_rms_v, fs, &mut phases));
+            tones.push(Tone::new(b, line_rms_v, fs, &mut phases));
         }
         let p0 = params.state_at(config, 0.0, live);
         let (fr, fb) = params.red_blue_hz(p0.frequency_hz);
@@ -486,14 +462,9 @@ impl Generator for QuantumStream {
     }
 }
 
-/// Height of a Lorentzian of area `a` and FWHM `g`: 2a/(πg).
-pub(crate) fn lorentz_peak(area: f64, fwhm_hz: f64) -> f64 {
-    2.0 * area / (PI * fwhm_hz)
-}
-
 /// Every true value of a `quantum` record (validated configuration).
 pub(crate) fn truth(config: &ScenarioConfig, q: &QuantumParams) -> super::Truth {
-    use super::{PeakTruth, SidebandTruth, ToneTruth};
+    use super::{SidebandTruth, ToneTruth};
     let m2 = config.m_per_v * config.m_per_v;
     let floor = config.floor_v2_per_hz;
     let qt = q.truth(config);
@@ -508,26 +479,9 @@ pub(crate) fn truth(config: &ScenarioConfig, q: &QuantumParams) -> super::Truth 
         0.0
     };
     let line = |label: &str, f: f64, area: f64| {
-        let peak = lorentz_peak(area, p.linewidth_hz);
-        PeakTruth {
-            label: label.to_string(),
-            kind: "sideband".into(),
-            frequency_hz: f,
-            linewidth_hz: p.linewidth_hz,
-            area_v2: area,
-            peak_psd_v2_per_hz: Some(peak),
-            height_over_floor_db: (floor > 0.0).then(|| 10.0 * ((floor + peak) / floor).log10()),
-        }
+        resonance_truth(label, "sideband", f, p.linewidth_hz, area, floor)
     };
-    let tone_line = |label: &str, kind: &str, f: f64, power: f64| PeakTruth {
-        label: label.to_string(),
-        kind: kind.to_string(),
-        frequency_hz: f,
-        linewidth_hz: 0.0,
-        area_v2: power,
-        peak_psd_v2_per_hz: None,
-        height_over_floor_db: None,
-    };
+    let tone_line = tone_truth;
     let mut peaks = vec![
         tone_line(
             "heterodyne carrier",

@@ -24,14 +24,21 @@ const STREAM_RED: u64 = 4;
 const STREAM_BLUE: u64 = 5;
 const STREAM_STRAYS: u64 = 100;
 
-struct Tone {
+/// A sine of fixed frequency and rms with a random start phase (carrier, calibration tones,
+/// mains lines); also the `quantum` scenario's carrier and PM lines.
+pub(crate) struct Tone {
     step_cycles: f64,
     phase_cycles: f64,
     amplitude_v: f64,
 }
 
 impl Tone {
-    fn new(frequency_hz: f64, rms_v: f64, sample_rate_hz: f64, phases: &mut Rng) -> Self {
+    pub(crate) fn new(
+        frequency_hz: f64,
+        rms_v: f64,
+        sample_rate_hz: f64,
+        phases: &mut Rng,
+    ) -> Self {
         Self {
             step_cycles: frequency_hz / sample_rate_hz,
             phase_cycles: phases.uniform(),
@@ -39,7 +46,7 @@ impl Tone {
         }
     }
 
-    fn next_sample(&mut self) -> f64 {
+    pub(crate) fn next_sample(&mut self) -> f64 {
         let v = self.amplitude_v * (TAU * self.phase_cycles).sin();
         self.phase_cycles += self.step_cycles;
         if self.phase_cycles >= 1.0 {
@@ -105,6 +112,41 @@ fn red_blue(carrier_hz: f64, offset_hz: f64, lo_above: bool) -> (f64, f64) {
         (carrier_hz + offset_hz, carrier_hz - offset_hz)
     } else {
         (carrier_hz - offset_hz, carrier_hz + offset_hz)
+    }
+}
+
+/// The truth of a Lorentzian line of FWHM `g` and area `area` (V²) over a floor (V²/Hz):
+/// its peak 2·area/(πg) and height over the floor.
+pub(crate) fn resonance_truth(
+    label: &str,
+    kind: &str,
+    frequency_hz: f64,
+    g: f64,
+    area: f64,
+    floor: f64,
+) -> PeakTruth {
+    let peak = 2.0 * area / (PI * g);
+    PeakTruth {
+        label: label.to_string(),
+        kind: kind.to_string(),
+        frequency_hz,
+        linewidth_hz: g,
+        area_v2: area,
+        peak_psd_v2_per_hz: Some(peak),
+        height_over_floor_db: (floor > 0.0).then(|| 10.0 * ((floor + peak) / floor).log10()),
+    }
+}
+
+/// The truth of a pure tone of power `power` (V²).
+pub(crate) fn tone_truth(label: &str, kind: &str, frequency_hz: f64, power: f64) -> PeakTruth {
+    PeakTruth {
+        label: label.to_string(),
+        kind: kind.to_string(),
+        frequency_hz,
+        linewidth_hz: 0.0,
+        area_v2: power,
+        peak_psd_v2_per_hz: None,
+        height_over_floor_db: None,
     }
 }
 
@@ -269,26 +311,9 @@ pub(crate) fn truth(config: &ScenarioConfig) -> Truth {
         "the mode is a damped oscillator integrated exactly (2-D Ornstein-Uhlenbeck update) with variance x_zpf^2 (2n+1)".to_string(),
     ];
     let resonance = |label: &str, kind: &str, f: f64, g: f64, area: f64| {
-        let peak = 2.0 * area / (PI * g);
-        PeakTruth {
-            label: label.to_string(),
-            kind: kind.to_string(),
-            frequency_hz: f,
-            linewidth_hz: g,
-            area_v2: area,
-            peak_psd_v2_per_hz: Some(peak),
-            height_over_floor_db: (floor > 0.0).then(|| 10.0 * ((floor + peak) / floor).log10()),
-        }
+        resonance_truth(label, kind, f, g, area, floor)
     };
-    let tone_peak = |label: &str, kind: &str, f: f64, power: f64| PeakTruth {
-        label: label.to_string(),
-        kind: kind.to_string(),
-        frequency_hz: f,
-        linewidth_hz: 0.0,
-        area_v2: power,
-        peak_psd_v2_per_hz: None,
-        height_over_floor_db: None,
-    };
+    let tone_peak = tone_truth;
     let has_tone = config.tone_frequency_hz > 0.0 && config.tone_rms_m > 0.0;
     let tone = has_tone.then(|| {
         let rms_v = config.tone_rms_m / m_per_v;

@@ -7,7 +7,7 @@ use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 
 use super::{Result, ScenarioConfig, SynthError, Truth, WavFormat};
-use crate::snapshot::{AtomicError, write_atomic};
+use crate::io::atomic::{AtomicError, write_atomic};
 
 /// Samples generated per block while writing.
 const BLOCK_SAMPLES: usize = 1 << 16;

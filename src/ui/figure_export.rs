@@ -41,7 +41,7 @@ impl super::StillpointApp {
             Ok(b) => b,
             Err(e) => return self.error(super::MessageKind::Export, e.to_string()),
         };
-        let written = crate::snapshot::write_atomic(&path, false, |out| {
+        let written = crate::io::atomic::write_atomic(&path, false, |out| {
             std::io::Write::write_all(out, &bytes)
         });
         match written {
@@ -55,8 +55,8 @@ impl super::StillpointApp {
                     "cannot write {} ({}); an existing file is never replaced here",
                     path.display(),
                     match e {
-                        crate::snapshot::AtomicError::Io(e)
-                        | crate::snapshot::AtomicError::Inner(e) => e,
+                        crate::io::atomic::AtomicError::Io(e)
+                        | crate::io::atomic::AtomicError::Inner(e) => e,
                     }
                 ),
             ),

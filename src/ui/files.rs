@@ -155,14 +155,14 @@ pub fn write_png(path: &Path, image: &ColorImage, overwrite: bool) -> Result<(),
     let bytes: Vec<u8> = image.pixels.iter().flat_map(|c| c.to_array()).collect();
     let buffer = image::RgbaImage::from_raw(w as u32, h as u32, bytes)
         .ok_or_else(|| "the screenshot has an inconsistent size".to_string())?;
-    crate::snapshot::write_atomic(path, overwrite, |file| {
+    crate::io::atomic::write_atomic(path, overwrite, |file| {
         buffer
             .write_to(file, image::ImageFormat::Png)
             .map_err(|e| e.to_string())
     })
     .map_err(|e| match e {
-        crate::snapshot::AtomicError::Io(e) => format!("{}: {e}", path.display()),
-        crate::snapshot::AtomicError::Inner(e) => format!("{}: {e}", path.display()),
+        crate::io::atomic::AtomicError::Io(e) => format!("{}: {e}", path.display()),
+        crate::io::atomic::AtomicError::Inner(e) => format!("{}: {e}", path.display()),
     })
 }
 

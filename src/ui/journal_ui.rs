@@ -102,8 +102,8 @@ pub fn export_trends_csv(path: &Path, rows: &[TrendRow]) -> std::io::Result<()> 
 }
 
 fn write_file(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
-    crate::snapshot::write_atomic(path, true, |out| out.write_all(bytes)).map_err(|e| match e {
-        crate::snapshot::AtomicError::Io(e) | crate::snapshot::AtomicError::Inner(e) => e,
+    crate::io::atomic::write_atomic(path, true, |out| out.write_all(bytes)).map_err(|e| match e {
+        crate::io::atomic::AtomicError::Io(e) | crate::io::atomic::AtomicError::Inner(e) => e,
     })
 }
 

@@ -22,12 +22,12 @@ use std::time::{Duration, Instant};
 use eframe::egui::{self, Key, RichText};
 
 use crate::acquire::{SourceConfig, SourceSpec};
+use crate::analysis::AnalysisOptions;
 use crate::dsp::units::DensityUnit;
 use crate::model::{
     self, AppState, Engine, EngineCommand, EngineConfig, EngineNotice, LiveState, LoadedSnapshot,
     WelchSettings,
 };
-use crate::report::AnalysisOptions;
 
 /// How the window starts (the CLI's `stillpoint` and `stillpoint monitor SOURCE …`).
 #[derive(Debug, Clone, PartialEq)]

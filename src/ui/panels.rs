@@ -8,13 +8,13 @@ use super::axes::format_hz;
 use super::files::FileState;
 use super::theme;
 use crate::acquire::{Endian, SampleFormat, SourceConfig, SourceSpec};
+use crate::analysis::AnalysisOptions;
 use crate::dsp::{Detrend, WindowKind};
 use crate::model::format::{format_rate, format_significant, format_uncertain, window_words};
 use crate::model::state::unit_short;
 use crate::model::{
     AppState, AveragingChoice, CalibrationMethod, LiveState, LoadedSnapshot, WelchSettings,
 };
-use crate::report::AnalysisOptions;
 
 /// Text fields and choices being edited (applied on "Apply"/"Open").
 #[derive(Debug, Clone)]

@@ -14,10 +14,10 @@ use egui_plot::{Corner, Legend, Line, LineStyle, Plot, PlotPoints};
 use super::axes::{format_hz, format_sig, log_spacer, power_tick};
 use super::theme;
 use crate::acquire::{SourceConfig, SourceSpec};
+use crate::analysis::AnalysisOptions;
 use crate::dsp::{Averaging, WelchConfig};
 use crate::model::engine::Frame;
 use crate::model::{AppState, LiveState};
-use crate::report::AnalysisOptions;
 use crate::synth::ScenarioConfig;
 use crate::synth::quantum::QuantumPoint;
 

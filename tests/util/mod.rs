@@ -7,6 +7,7 @@ use std::fs;
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output, Stdio};
+use stillpoint::synth::rng::splitmix64;
 
 /// The `stillpoint` binary cargo built for these tests.
 pub fn bin() -> Command {
@@ -111,11 +112,7 @@ pub struct SplitMix(pub u64);
 impl SplitMix {
     /// Next 64 random bits.
     pub fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
+        splitmix64(&mut self.0)
     }
 
     /// Uniform in [0, 1).
