@@ -7,9 +7,9 @@
 //! them, and turns clicks and keys into [`UiCommand`]s applied after the frame.
 
 mod axes;
-mod cooldown;
 mod figure_export;
 mod files;
+mod history_view;
 pub mod journal_ui;
 mod panels;
 mod plot;
@@ -221,7 +221,7 @@ pub struct StillpointApp {
     commands: Vec<UiCommand>,
     ui: panels::PanelState,
     plot: plot::PlotState,
-    cooldown: cooldown::CooldownState,
+    history: history_view::HistoryViewState,
     sidebands: sideband_view::SidebandViewState,
     files: files::FileState,
     journal: journal_ui::JournalState,
@@ -314,7 +314,7 @@ impl StillpointApp {
             commands: Vec::new(),
             ui: panels::PanelState::new(&options.source),
             plot: plot::PlotState::default(),
-            cooldown: cooldown::CooldownState::default(),
+            history: history_view::HistoryViewState::default(),
             sidebands: sideband_view::SidebandViewState::default(),
             files: files::FileState::new(),
             journal: journal_ui::JournalState::new(journal_folder),
@@ -504,7 +504,7 @@ impl StillpointApp {
                         }
                         self.state.settings_source = Some(source_key(&cfg));
                         self.source = cfg;
-                        self.cooldown = cooldown::CooldownState::default();
+                        self.history = history_view::HistoryViewState::default();
                         self.plot.reset_view = true;
                     }
                     self.corrected(MessageKind::Source);
@@ -657,7 +657,7 @@ impl StillpointApp {
                     self.ui.sync_from(&self.state);
                     self.send_analysis();
                 }
-                self.cooldown = cooldown::CooldownState::default();
+                self.history = history_view::HistoryViewState::default();
                 self.sidebands = sideband_view::SidebandViewState::default();
                 self.plot.reset_view = true;
                 self.send(EngineCommand::OpenSource(demo.source));
@@ -1016,7 +1016,7 @@ impl eframe::App for StillpointApp {
                     );
                     self.commands.extend(cmds);
                     ui.separator();
-                    let cmds = files::snapshots_ui(
+                    let cmds = panels::snapshots_ui(
                         ui,
                         &mut self.files,
                         &mut self.snapshots,
@@ -1062,9 +1062,9 @@ impl eframe::App for StillpointApp {
                         .as_ref()
                         .and_then(|f| f.report.as_ref())
                         .and_then(|r| r.calibration.m_per_v);
-                    self.cooldown.colour_unit = Some((self.state.unit, m_per_v));
+                    self.history.colour_unit = Some((self.state.unit, m_per_v));
                     let compare = self.journal.opened.as_ref().map(|o| &o.trends);
-                    self.cooldown.ui(ui, &self.live, compare);
+                    self.history.ui(ui, &self.live, compare);
                 }
             });
         self.windows(&ctx);
