@@ -21,8 +21,8 @@ mod source;
 mod status;
 mod strays;
 
-pub use mode::mode_panel;
-pub use sidebands::sideband_panel;
+pub use mode::{mode_panel, notes_count, notes_panel};
+pub use sidebands::{has_sidebands, sideband_panel};
 pub use snapshots::snapshots_ui;
 pub use status::status_line;
 pub use strays::peaks_panel;
@@ -235,4 +235,19 @@ fn pm(value: Option<f64>, sigma: Option<f64>) -> String {
 /// A note under a panel: readable size, dark enough to read, wrapping in the panel.
 fn note(ui: &mut Ui, text: &str, colour: egui::Color32) {
     ui.add(egui::Label::new(RichText::new(text).size(13.0).color(colour)).wrap());
+}
+
+/// A section of the right panel: a collapsing header in the panel's title size. Its open
+/// state is kept by egui under `id` (remembered across sessions with the window's state).
+pub fn section(
+    ui: &mut Ui,
+    id: &str,
+    title: RichText,
+    default_open: bool,
+    body: impl FnOnce(&mut Ui),
+) {
+    egui::CollapsingHeader::new(title.strong().size(16.0))
+        .id_salt(id)
+        .default_open(default_open)
+        .show(ui, body);
 }

@@ -1,5 +1,6 @@
-//! The mode read-out of the right panel: f_m, γ, Q, n̄, T_eff, m/V with ± 1σ, and the notes
-//! of the analysis.
+//! The mode read-out of the right panel (f_m, γ, Q, n̄, T_eff, m/V with ± 1σ) and the
+//! analysis's notes and warnings (a section of their own, so long notes never push the
+//! snapshot controls out of reach).
 
 use eframe::egui::{self, RichText, Ui};
 
@@ -10,9 +11,9 @@ use crate::model::{AppState, LiveState};
 use crate::ui::axes::format_hz;
 use crate::ui::theme;
 
-/// The mode read-out (always visible): f_m, γ, Q, n̄, T_eff, m/V with ± 1σ.
+/// The mode read-out: f_m, γ, Q, n̄, T_eff, m/V with ± 1σ, the calibration in use and an
+/// analysis that failed.
 pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
-    ui.label(RichText::new("Mode").strong().size(16.0));
     let report = live.frame.as_ref().and_then(|f| f.report.clone());
     let m = report.as_ref().map(|r| r.mode.clone()).unwrap_or_default();
     let q = report
@@ -29,7 +30,7 @@ pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
         .show(ui, |ui| {
             let row = |ui: &mut Ui, name: &str, value: String| {
                 ui.label(name);
-                ui.label(RichText::new(value).monospace());
+                ui.add(egui::Label::new(RichText::new(value).monospace()).wrap());
                 ui.end_row();
             };
             row(
@@ -137,17 +138,31 @@ pub fn mode_panel(ui: &mut Ui, live: &LiveState, state: &AppState) {
             theme::WARN,
         );
     }
-    if let Some(frame) = &live.frame {
-        if let Some(e) = &frame.analysis_error {
-            note(ui, &window_words(&format!("analysis: {e}")), theme::ERROR);
-        }
-        if let Some(r) = &frame.report {
-            for n in r.notes.iter().take(4) {
-                note(ui, &window_words(n), theme::INK);
-            }
-            for w in r.warnings.iter().take(4) {
-                note(ui, &window_words(w), theme::WARN);
-            }
-        }
+    if let Some(e) = live.frame.as_ref().and_then(|f| f.analysis_error.as_ref()) {
+        note(ui, &window_words(&format!("analysis: {e}")), theme::ERROR);
+    }
+}
+
+/// (notes, warnings) of the newest analysis, for the section's title.
+pub fn notes_count(live: &LiveState) -> (usize, usize) {
+    live.frame
+        .as_ref()
+        .and_then(|f| f.report.as_ref())
+        .map_or((0, 0), |r| (r.notes.len(), r.warnings.len()))
+}
+
+/// The analysis's warnings (first, highlighted) and notes, in the window's words.
+pub fn notes_panel(ui: &mut Ui, live: &LiveState) {
+    let Some(r) = live.frame.as_ref().and_then(|f| f.report.as_ref()) else {
+        return;
+    };
+    if r.notes.is_empty() && r.warnings.is_empty() {
+        note(ui, "none", theme::PENCIL);
+    }
+    for w in r.warnings.iter().take(6) {
+        note(ui, &window_words(w), theme::WARN);
+    }
+    for n in r.notes.iter().take(6) {
+        note(ui, &window_words(n), theme::INK);
     }
 }

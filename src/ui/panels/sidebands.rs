@@ -17,14 +17,13 @@ pub fn sideband_panel(ui: &mut Ui, live: &LiveState) {
     else {
         return;
     };
-    ui.label(RichText::new("Sidebands").strong().size(16.0));
     egui::Grid::new("sb_grid")
         .num_columns(2)
         .striped(true)
         .show(ui, |ui| {
             let row = |ui: &mut Ui, name: &str, value: String| {
                 ui.label(name);
-                ui.label(RichText::new(value).monospace());
+                ui.add(egui::Label::new(RichText::new(value).monospace()).wrap());
                 ui.end_row();
             };
             row(
@@ -61,5 +60,12 @@ pub fn sideband_panel(ui: &mut Ui, live: &LiveState) {
     if let Some(c) = &sb.convention {
         note(ui, c, theme::INK);
     }
-    ui.separator();
+}
+
+/// True when the newest analysis has a sideband result (the section is shown only then).
+pub fn has_sidebands(live: &LiveState) -> bool {
+    live.frame
+        .as_ref()
+        .and_then(|f| f.report.as_ref())
+        .is_some_and(|r| r.sidebands.is_some())
 }

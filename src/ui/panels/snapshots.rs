@@ -16,7 +16,6 @@ pub fn snapshots_ui(
     state: &mut AppState,
 ) -> Vec<UiCommand> {
     let mut out = Vec::new();
-    ui.label(RichText::new("Snapshots").strong().size(16.0));
     let l1 = ui.label("snapshot path (JSON; the CSV is written beside it):");
     ui.add(
         egui::TextEdit::singleline(&mut files.snapshot_path)

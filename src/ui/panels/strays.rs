@@ -7,6 +7,10 @@ use crate::model::{LiveState, LoadedSnapshot};
 use crate::ui::axes::format_hz;
 use crate::ui::{UiCommand, theme};
 
+/// Height of the stray table before it scrolls (about six rows), so the sections below
+/// stay in reach.
+const STRAY_ROWS_HEIGHT: f32 = 132.0;
+
 /// Stray resonances: frequency, height over floor, width; new ones (against the reference
 /// snapshot) highlighted; clicking a row zooms the plot there.
 pub fn peaks_panel(
@@ -15,7 +19,6 @@ pub fn peaks_panel(
     reference: Option<&LoadedSnapshot>,
 ) -> Vec<UiCommand> {
     let mut out = Vec::new();
-    ui.label(RichText::new("Stray resonances").strong().size(16.0));
     let Some(frame) = &live.frame else {
         ui.label("waiting for a spectrum…");
         return out;
@@ -36,7 +39,7 @@ pub fn peaks_panel(
     }
     egui::ScrollArea::vertical()
         .id_salt("peaks_scroll")
-        .max_height(200.0)
+        .max_height(STRAY_ROWS_HEIGHT)
         .show(ui, |ui| {
             egui::Grid::new("peaks_grid")
                 .num_columns(3)
