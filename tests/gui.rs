@@ -158,3 +158,58 @@ fn demo_window_end_to_end() {
     assert_eq!(h.state().state().unit, DensityUnit::MPerRtHz);
     h.get_by_label("rms in fit band (m)");
 }
+
+/// Issue 14: the right panel has bounded width and collapsible sections. At 1280×800 and
+/// 1600×900, on the heterodyne demo with its sideband rows and two snapshots listed, the
+/// spectrum plot stays the largest part of the window (more than twice as wide as either
+/// side panel, at least a fifth of the window's area), and at 900 px height the snapshot
+/// buttons are in reach without scrolling.
+#[test]
+fn side_panels_leave_the_plot_the_largest_part() {
+    for (w, hgt) in [(1280.0, 800.0), (1600.0, 900.0)] {
+        let mut h = Harness::builder()
+            .with_size(egui::vec2(w, hgt))
+            .build_eframe(|cc| StillpointApp::new(cc, demo_options()));
+        let sidebands = |app: &StillpointApp| {
+            app.live()
+                .frame
+                .as_ref()
+                .and_then(|f| f.report.as_ref())
+                .is_some_and(|r| r.sidebands.is_some())
+        };
+        assert!(
+            step_until(&mut h, Duration::from_secs(60), sidebands),
+            "no sideband result from the demo"
+        );
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("a.json");
+        h.get_by_label("snapshot path (JSON; the CSV is written beside it):")
+            .set_text_value_accesskit(&path.display().to_string());
+        h.run_steps(2);
+        h.get_by_label("Save snapshot").click_accesskit();
+        h.run_steps(3);
+        h.get_by_label("Load snapshot").click_accesskit();
+        h.run_steps(3);
+        assert_eq!(h.state().snapshots().len(), 2, "{:?}", h.state().messages());
+        h.run_steps(4);
+        let l = h.state().layout();
+        let window = w * hgt;
+        assert!(
+            l.plot.width() > 2.0 * l.right.width() && l.plot.width() > 2.0 * l.left.width(),
+            "{w}×{hgt}: {l:?}"
+        );
+        assert!(l.plot.area() >= 0.2 * window, "{w}×{hgt}: {l:?}");
+        // The sideband rows are there, in the right panel.
+        assert!(
+            h.get_all_by_label("red (Stokes, n+1)")
+                .any(|n| l.right.contains(n.rect().center())),
+            "no sideband rows in the right panel: {l:?}"
+        );
+        if hgt >= 900.0 {
+            for label in ["Save snapshot", "Load snapshot"] {
+                let r = h.get_by_label(label).rect();
+                assert!(r.max.y <= l.right.max.y, "{label} at {r:?}, panel {l:?}");
+            }
+        }
+    }
+}

@@ -4,10 +4,10 @@
 
 use std::path::{Path, PathBuf};
 
-use eframe::egui::{self, ColorImage, RichText, Ui};
+use eframe::egui::{self, ColorImage};
 
-use super::{MessageKind, StillpointApp, UiCommand, theme};
-use crate::model::{AppState, LoadedSnapshot};
+use super::{MessageKind, StillpointApp};
+use crate::model::AppState;
 
 /// What the overwrite question is about.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
@@ -36,7 +36,8 @@ pub struct FileState {
     pub dialogs: bool,
     /// Shown when a dialog could not be opened.
     pub dialog_note: Option<String>,
-    compare: Option<(usize, usize)>,
+    /// The two snapshots compared (indices).
+    pub compare: Option<(usize, usize)>,
     /// Results of PNG exports, written by the screenshot callback (another thread).
     pub png_results: std::sync::Arc<std::sync::Mutex<Vec<Result<String, String>>>>,
 }
@@ -102,7 +103,8 @@ impl FileState {
         }
     }
 
-    fn browse_snapshot(&mut self, save: bool) {
+    /// Asks for a snapshot path with a dialog (`save`: a new file).
+    pub fn browse_snapshot(&mut self, save: bool) {
         if !self.dialogs {
             self.no_dialog();
             return;
@@ -164,156 +166,6 @@ pub fn write_png(path: &Path, image: &ColorImage, overwrite: bool) -> Result<(),
         crate::io::atomic::AtomicError::Io(e) => format!("{}: {e}", path.display()),
         crate::io::atomic::AtomicError::Inner(e) => format!("{}: {e}", path.display()),
     })
-}
-
-/// The snapshot list: save (typed path or dialog), load, overlay, reference, compare.
-pub fn snapshots_ui(
-    ui: &mut Ui,
-    files: &mut FileState,
-    snapshots: &mut Vec<LoadedSnapshot>,
-    reference: &mut Option<usize>,
-    state: &mut AppState,
-) -> Vec<UiCommand> {
-    let mut out = Vec::new();
-    ui.label(RichText::new("Snapshots").strong().size(16.0));
-    let l1 = ui.label("snapshot path (JSON; the CSV is written beside it):");
-    ui.add(
-        egui::TextEdit::singleline(&mut files.snapshot_path)
-            .hint_text("/path/to/snapshot.json")
-            .desired_width(f32::INFINITY),
-    )
-    .labelled_by(l1.id);
-    ui.horizontal(|ui| {
-        let l2 = ui.label("label");
-        ui.add(
-            egui::TextEdit::singleline(&mut files.snapshot_label)
-                .hint_text("e.g. 4 K, 20 µW")
-                .desired_width(150.0),
-        )
-        .labelled_by(l2.id);
-    });
-    ui.horizontal(|ui| {
-        if ui.button("Save snapshot").clicked() {
-            out.push(UiCommand::SaveSnapshot { overwrite: false });
-        }
-        if ui.button("Load snapshot").clicked() {
-            out.push(UiCommand::LoadSnapshot);
-        }
-        if ui.button("Browse…").clicked() {
-            files.browse_snapshot(files.snapshot_path.trim().is_empty());
-        }
-    });
-    if let Some(n) = &files.dialog_note {
-        ui.label(RichText::new(n).small().color(theme::WARN));
-    }
-    let mut remove = None;
-    for (i, s) in snapshots.iter_mut().enumerate() {
-        ui.horizontal(|ui| {
-            let colour = theme::SNAPSHOT_COLOURS[i % theme::SNAPSHOT_COLOURS.len()];
-            ui.label(RichText::new("■").color(colour));
-            ui.checkbox(&mut s.visible, &s.name);
-            if crate::model::state::unit_is_displacement(state.unit) && s.m_per_v.is_none() {
-                ui.label(RichText::new("volts only: not drawn in metres").color(theme::WARN))
-                    .on_hover_text(
-                        "this snapshot was saved without a calibration; switch to a volt unit \
-                         to see it",
-                    );
-            }
-            let is_ref = *reference == Some(i);
-            if ui
-                .selectable_label(is_ref, "reference")
-                .on_hover_text("mark stray resonances that are not in this snapshot as new")
-                .clicked()
-            {
-                *reference = if is_ref { None } else { Some(i) };
-            }
-            if ui
-                .small_button("×")
-                .on_hover_text("remove from the list")
-                .clicked()
-            {
-                remove = Some(i);
-            }
-        });
-    }
-    if let Some(i) = remove {
-        snapshots.remove(i);
-        *reference = match *reference {
-            Some(r) if r == i => None,
-            Some(r) if r > i => Some(r - 1),
-            other => other,
-        };
-        files.compare = None;
-    }
-    if snapshots.len() >= 2 {
-        let (mut a, mut b) = files.compare.unwrap_or((0, 1));
-        ui.horizontal(|ui| {
-            ui.label("compare");
-            let name = |i: usize| snapshots.get(i).map_or("—".to_string(), |s| s.name.clone());
-            egui::ComboBox::from_id_salt("cmp_a")
-                .selected_text(name(a))
-                .show_ui(ui, |ui| {
-                    for i in 0..snapshots.len() {
-                        ui.selectable_value(&mut a, i, name(i));
-                    }
-                });
-            let l3 = ui.label("÷");
-            let _ = egui::ComboBox::from_id_salt("cmp_b")
-                .selected_text(name(b))
-                .show_ui(ui, |ui| {
-                    for i in 0..snapshots.len() {
-                        ui.selectable_value(&mut b, i, name(i));
-                    }
-                })
-                .response
-                .labelled_by(l3.id);
-        });
-        files.compare = Some((a, b));
-        if let (Some(sa), Some(sb)) = (snapshots.get(a), snapshots.get(b))
-            && a != b
-        {
-            match crate::snapshot::compare(&sa.spectrum, &sb.spectrum) {
-                Ok(c) => {
-                    let pts: Vec<[f64; 2]> = c
-                        .frequency_hz
-                        .iter()
-                        .zip(&c.ratio)
-                        .filter(|(f, r)| **f > 0.0 && **r > 0.0 && r.is_finite())
-                        .map(|(f, r)| [f.log10(), 10.0 * r.log10()])
-                        .collect();
-                    let pts = crate::model::decimate_minmax(
-                        &pts.iter().map(|p| 10f64.powf(p[0])).collect::<Vec<_>>(),
-                        &pts.iter().map(|p| p[1]).collect::<Vec<_>>(),
-                        (
-                            c.frequency_hz.get(1).copied().unwrap_or(1.0),
-                            c.frequency_hz.last().copied().unwrap_or(10.0),
-                        ),
-                        400,
-                    );
-                    ui.label(
-                        RichText::new(format!("{} ÷ {} (dB)", sa.name, sb.name))
-                            .small()
-                            .color(theme::PENCIL),
-                    );
-                    egui_plot::Plot::new("compare")
-                        .height(110.0)
-                        .x_axis_formatter(super::axes::frequency_tick)
-                        .x_grid_spacer(super::axes::log_spacer)
-                        .y_axis_label("dB")
-                        .show(ui, |pui| {
-                            pui.line(
-                                egui_plot::Line::new("ratio", egui_plot::PlotPoints::new(pts))
-                                    .color(theme::TRACE),
-                            );
-                        });
-                }
-                Err(e) => {
-                    ui.label(RichText::new(e.to_string()).color(theme::WARN));
-                }
-            }
-        }
-    }
-    out
 }
 
 impl StillpointApp {

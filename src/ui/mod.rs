@@ -7,9 +7,9 @@
 //! them, and turns clicks and keys into [`UiCommand`]s applied after the frame.
 
 mod axes;
-mod cooldown;
 mod figure_export;
 mod files;
+mod history_view;
 pub mod journal_ui;
 mod panels;
 mod plot;
@@ -221,7 +221,7 @@ pub struct StillpointApp {
     commands: Vec<UiCommand>,
     ui: panels::PanelState,
     plot: plot::PlotState,
-    cooldown: cooldown::CooldownState,
+    history: history_view::HistoryViewState,
     sidebands: sideband_view::SidebandViewState,
     files: files::FileState,
     journal: journal_ui::JournalState,
@@ -242,6 +242,49 @@ pub struct StillpointApp {
     frame_cpu_s: f64,
     /// CPU time of this frame's logic, s.
     logic_cpu_s: f64,
+    /// Where the panels and the plot were drawn in the last frame (tests read it).
+    layout: Layout,
+}
+
+/// Where the parts of the window were drawn in the last frame, in points.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Layout {
+    /// The left panel (controls).
+    pub left: egui::Rect,
+    /// The right panel (read-outs, snapshots).
+    pub right: egui::Rect,
+    /// The spectrum plot.
+    pub plot: egui::Rect,
+}
+
+impl Default for Layout {
+    fn default() -> Self {
+        Self {
+            left: egui::Rect::NOTHING,
+            right: egui::Rect::NOTHING,
+            plot: egui::Rect::NOTHING,
+        }
+    }
+}
+
+/// The widest the (left, right) panels may be in a window `width` points wide: together at
+/// most about half of it, so the plot between them stays the largest thing.
+fn side_panel_widths(width: f32) -> (f32, f32) {
+    (
+        (0.2 * width).clamp(200.0, 300.0),
+        (0.24 * width).clamp(240.0, 360.0),
+    )
+}
+
+/// Heights of (spectrum plot, sideband view) in a central area `avail` points tall; the
+/// history view takes what is left. The spectrum plot always gets the largest share.
+fn central_heights(avail: f32, heterodyne: bool, history: bool) -> (f32, f32) {
+    match (heterodyne, history) {
+        (false, false) => (avail, 0.0),
+        (false, true) => ((avail * 0.6).max(220.0), 0.0),
+        (true, false) => ((avail * 0.56).max(220.0), (avail * 0.42).max(200.0)),
+        (true, true) => ((avail * 0.5).max(220.0), (avail * 0.3).max(180.0)),
+    }
 }
 
 /// A short name for a source, to say which one remembered settings were made for.
@@ -314,7 +357,7 @@ impl StillpointApp {
             commands: Vec::new(),
             ui: panels::PanelState::new(&options.source),
             plot: plot::PlotState::default(),
-            cooldown: cooldown::CooldownState::default(),
+            history: history_view::HistoryViewState::default(),
             sidebands: sideband_view::SidebandViewState::default(),
             files: files::FileState::new(),
             journal: journal_ui::JournalState::new(journal_folder),
@@ -333,6 +376,7 @@ impl StillpointApp {
             sent_welch: WelchSettings::default(),
             frame_cpu_s: 0.0,
             logic_cpu_s: 0.0,
+            layout: Layout::default(),
         };
         app.ui.sync_from(&app.state);
         app.plot.quiet = app.screenshot.is_some();
@@ -425,6 +469,11 @@ impl StillpointApp {
         self.frame_cpu_s
     }
 
+    /// Where the panels and the plot were drawn in the last frame (tests read it).
+    pub fn layout(&self) -> Layout {
+        self.layout
+    }
+
     fn error(&mut self, kind: MessageKind, text: impl Into<String>) {
         self.push(UiMessage {
             text: text.into(),
@@ -504,7 +553,7 @@ impl StillpointApp {
                         }
                         self.state.settings_source = Some(source_key(&cfg));
                         self.source = cfg;
-                        self.cooldown = cooldown::CooldownState::default();
+                        self.history = history_view::HistoryViewState::default();
                         self.plot.reset_view = true;
                     }
                     self.corrected(MessageKind::Source);
@@ -657,7 +706,7 @@ impl StillpointApp {
                     self.ui.sync_from(&self.state);
                     self.send_analysis();
                 }
-                self.cooldown = cooldown::CooldownState::default();
+                self.history = history_view::HistoryViewState::default();
                 self.sidebands = sideband_view::SidebandViewState::default();
                 self.plot.reset_view = true;
                 self.send(EngineCommand::OpenSource(demo.source));
@@ -988,9 +1037,13 @@ impl eframe::App for StillpointApp {
             .show(ui, |ui| {
                 panels::status_line(ui, &self.live, &self.source, self.paused, self.frame_cpu_s);
             });
-        egui::Panel::left("controls")
-            .default_size(270.0)
-            .size_range(220.0..=340.0)
+        // Both side panels have bounded widths (a share of the window): long rows wrap or
+        // scroll instead of widening them, so the plot stays the largest thing in the window.
+        let width = ctx.content_rect().width();
+        let (left_max, right_max) = side_panel_widths(width);
+        let left = egui::Panel::left("controls")
+            .default_size(left_max.min(270.0))
+            .size_range(200.0..=left_max)
             .frame(egui::Frame::new().fill(theme::PANEL).inner_margin(8.0))
             .show(ui, |ui| {
                 egui::ScrollArea::vertical().show(ui, |ui| {
@@ -998,57 +1051,69 @@ impl eframe::App for StillpointApp {
                     self.commands.extend(cmds);
                 });
             });
-        // The right panel has a fixed width range: long rows wrap or scroll instead of
-        // widening it, so the plot stays the largest thing in the window.
-        egui::Panel::right("mode")
-            .default_size(310.0)
-            .size_range(260.0..=360.0)
+        self.layout.left = left.response.rect;
+        // The right panel: collapsible sections (open state remembered); the snapshot
+        // controls come before the long notes, so they are in reach without scrolling.
+        let right = egui::Panel::right("mode")
+            .default_size(right_max.min(310.0))
+            .size_range(240.0..=right_max)
             .frame(egui::Frame::new().fill(theme::PANEL).inner_margin(8.0))
             .show(ui, |ui| {
+                // Text wraps at the panel's width; only what cannot wrap scrolls sideways.
+                let visible_width = ui.available_width();
                 egui::ScrollArea::both().show(ui, |ui| {
-                    panels::mode_panel(ui, &self.live, &self.state);
-                    ui.separator();
-                    panels::sideband_panel(ui, &self.live);
-                    let cmds = panels::peaks_panel(
-                        ui,
-                        &self.live,
-                        self.reference.and_then(|i| self.snapshots.get(i)),
-                    );
-                    self.commands.extend(cmds);
-                    ui.separator();
-                    let cmds = files::snapshots_ui(
-                        ui,
-                        &mut self.files,
-                        &mut self.snapshots,
-                        &mut self.reference,
-                        &mut self.state,
-                    );
-                    self.commands.extend(cmds);
-                    ui.separator();
+                    ui.set_max_width(visible_width);
+                    panels::section(ui, "mode", RichText::new("Mode"), true, |ui| {
+                        panels::mode_panel(ui, &self.live, &self.state);
+                    });
+                    if panels::has_sidebands(&self.live) {
+                        panels::section(ui, "sidebands", RichText::new("Sidebands"), true, |ui| {
+                            panels::sideband_panel(ui, &self.live);
+                        });
+                    }
+                    let reference = self.reference.and_then(|i| self.snapshots.get(i));
+                    let title = RichText::new("Stray resonances");
+                    panels::section(ui, "strays", title, true, |ui| {
+                        let cmds = panels::peaks_panel(ui, &self.live, reference);
+                        self.commands.extend(cmds);
+                    });
+                    panels::section(ui, "snapshots", RichText::new("Snapshots"), true, |ui| {
+                        let cmds = panels::snapshots_ui(
+                            ui,
+                            &mut self.files,
+                            &mut self.snapshots,
+                            &mut self.reference,
+                            &mut self.state,
+                        );
+                        self.commands.extend(cmds);
+                    });
+                    let (notes, warnings) = panels::notes_count(&self.live);
+                    let title = if warnings > 0 {
+                        RichText::new(format!("Notes ({notes}) and warnings ({warnings})"))
+                            .color(theme::WARN)
+                    } else {
+                        RichText::new(format!("Notes ({notes})"))
+                    };
+                    panels::section(ui, "notes", title, true, |ui| {
+                        panels::notes_panel(ui, &self.live);
+                    });
                     self.journal_ui(ui);
                 });
             });
+        self.layout.right = right.response.rect;
         egui::CentralPanel::default()
             .frame(egui::Frame::new().fill(theme::PAPER).inner_margin(8.0))
             .show(ui, |ui| {
                 self.messages_ui(ui);
                 let avail = ui.available_height();
                 let heterodyne = self.state.analysis.carrier_hz.is_some();
-                let sideband_h = if heterodyne {
-                    (avail * 0.45).max(240.0)
-                } else {
-                    0.0
-                };
-                let rest = (avail - sideband_h).max(200.0);
-                let plot_h = if self.state.show_cooldown {
-                    (rest * 0.6).max(220.0)
-                } else {
-                    rest
-                };
+                let (plot_h, sideband_h) =
+                    central_heights(avail, heterodyne, self.state.show_cooldown);
                 let cmds =
                     self.plot
                         .spectrum_ui(ui, plot_h, &self.live, &self.state, &self.snapshots);
                 self.commands.extend(cmds);
+                self.layout.plot = self.plot.rect.unwrap_or(egui::Rect::NOTHING);
                 if heterodyne {
                     ui.add_space(4.0);
                     self.sidebands
@@ -1062,9 +1127,9 @@ impl eframe::App for StillpointApp {
                         .as_ref()
                         .and_then(|f| f.report.as_ref())
                         .and_then(|r| r.calibration.m_per_v);
-                    self.cooldown.colour_unit = Some((self.state.unit, m_per_v));
+                    self.history.colour_unit = Some((self.state.unit, m_per_v));
                     let compare = self.journal.opened.as_ref().map(|o| &o.trends);
-                    self.cooldown.ui(ui, &self.live, compare);
+                    self.history.ui(ui, &self.live, compare);
                 }
             });
         self.windows(&ctx);
@@ -1101,4 +1166,34 @@ impl Drop for StillpointApp {
 /// The model's plot-preparation benchmark (re-exported for `stillpoint bench`).
 pub fn bench_plot_prep(runs: usize) -> Duration {
     model::bench_plot_prep(runs)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::{central_heights, side_panel_widths};
+
+    #[test]
+    fn the_spectrum_plot_gets_the_largest_share() {
+        for avail in [500.0, 700.0, 900.0] {
+            for (heterodyne, history) in
+                [(false, false), (false, true), (true, false), (true, true)]
+            {
+                let (plot, sidebands) = central_heights(avail, heterodyne, history);
+                let rest = avail - plot - sidebands;
+                assert!(
+                    plot >= sidebands && plot >= rest,
+                    "{avail} {heterodyne} {history}"
+                );
+                assert!(plot + sidebands <= avail);
+            }
+        }
+    }
+
+    #[test]
+    fn side_panels_take_at_most_half_the_width() {
+        for width in [900.0, 1280.0, 1600.0, 2560.0] {
+            let (l, r) = side_panel_widths(width);
+            assert!(l + r <= 0.5 * width, "{width}: {l} + {r}");
+        }
+    }
 }

@@ -39,6 +39,11 @@ pub struct PlotState {
     pub view_hz: Option<(f64, f64)>,
     /// The pointer was over the plot in the last frame (letter shortcuts act only then).
     pub hovered: bool,
+    /// Where the plot was drawn in the last frame.
+    pub rect: Option<egui::Rect>,
+    /// The legend goes to the top right (the highest point of the trace in view was in the
+    /// left half in the last frame), else to the top left: it never covers the mode's peak.
+    legend_right: bool,
     view_initialised: bool,
 }
 
@@ -104,6 +109,7 @@ impl PlotState {
                 });
             });
             self.hovered = r.response.contains_pointer();
+            self.rect = Some(r.response.rect);
             return out;
         }
         let (ya, yb) = affine.unwrap_or((1.0, 0.0));
@@ -207,6 +213,8 @@ impl PlotState {
         let mut want_reset = false;
         let mut zoom_to: Option<(f64, f64)> = None;
         let mut hovered = false;
+        let mut legend_right = self.legend_right;
+        let mut plot_rect = self.rect;
 
         let y_label = unit_label(unit);
         let y_fmt = move |mark: GridMark, range: &RangeInclusive<f64>| {
@@ -221,7 +229,11 @@ impl PlotState {
             .height(height)
             .legend(
                 Legend::default()
-                    .position(Corner::LeftTop)
+                    .position(if self.legend_right {
+                        Corner::RightTop
+                    } else {
+                        Corner::LeftTop
+                    })
                     .follow_insertion_order(true)
                     .background_alpha(0.85),
             )
@@ -317,6 +329,15 @@ impl PlotState {
             let mut pts = decimate_minmax(freqs, logs, view_hz, columns);
             for p in &mut pts {
                 p[1] = ya * p[1] + yb;
+            }
+            if let Some(top) = pts.iter().max_by(|a, b| a[1].total_cmp(&b[1])) {
+                // Hysteresis: the legend moves only when the peak is clearly on the other side.
+                let u = (top[0] - x0) / (x1 - x0);
+                if u < 0.4 {
+                    legend_right = true;
+                } else if u > 0.6 {
+                    legend_right = false;
+                }
             }
             pui.line(
                 Line::new("live spectrum", PlotPoints::new(pts))
@@ -478,6 +499,7 @@ impl PlotState {
                 }
             }
             hovered = resp.contains_pointer();
+            plot_rect = Some(resp.rect);
             if band_mode {
                 if resp.drag_started() {
                     drag_start = pui.pointer_coordinate().map(|p| p.x);
@@ -500,6 +522,8 @@ impl PlotState {
         });
         self.band_drag_start = drag_start;
         self.hovered = hovered;
+        self.legend_right = legend_right;
+        self.rect = plot_rect;
         if let Some((lo, hi)) = zoom_to {
             out.push(UiCommand::ZoomTo(lo, hi));
         }

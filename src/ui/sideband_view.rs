@@ -159,6 +159,7 @@ impl SidebandViewState {
         state: &AppState,
         source: &SourceConfig,
     ) {
+        let top = ui.cursor().top();
         let cal = &state.analysis;
         let frame = live.frame.as_ref();
         let report = frame.and_then(|f| f.report.clone());
@@ -197,8 +198,10 @@ impl SidebandViewState {
                 .strong(),
             );
         }
-        let used = 70.0;
-        let h = (height - used).max(140.0);
+        // The plots take what the lines above left of `height` (they never push the views
+        // below out of the window).
+        let used = ui.cursor().top() - top;
+        let h = (height - used).max(110.0);
         ui.horizontal_top(|ui| {
             let w = (ui.available_width() * 0.42).max(240.0);
             ui.vertical(|ui| {

@@ -15,7 +15,7 @@ use crate::model::{LiveState, TrendBuffer};
 
 /// Texture and bookkeeping of the waterfall.
 #[derive(Default)]
-pub struct CooldownState {
+pub struct HistoryViewState {
     texture: Option<TextureHandle>,
     /// (waterfall epoch, rows pushed) the texture holds.
     shown: Option<(u64, u64)>,
@@ -29,9 +29,9 @@ pub struct CooldownState {
     pub colour_unit: Option<(crate::dsp::units::DensityUnit, Option<f64>)>,
 }
 
-impl std::fmt::Debug for CooldownState {
+impl std::fmt::Debug for HistoryViewState {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.debug_struct("CooldownState")
+        f.debug_struct("HistoryViewState")
             .field("shown", &self.shown)
             .finish_non_exhaustive()
     }
@@ -46,7 +46,7 @@ fn colour_row(values: &[f32], range: (f32, f32)) -> Vec<Color32> {
         .collect()
 }
 
-impl CooldownState {
+impl HistoryViewState {
     /// Brings the texture up to date: a full repaint when the grid or the colour range
     /// changed a lot, else only the rows that are new (`set_partial`).
     fn update_texture(&mut self, ctx: &egui::Context, live: &LiveState) {
