@@ -9,9 +9,10 @@
 use std::time::Duration;
 
 use eframe::egui;
+use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
 use stillpoint::dsp::units::DensityUnit;
-use stillpoint::ui::MonitorOptions;
+use stillpoint::ui::{MonitorOptions, StillpointApp};
 
 #[path = "common/gui.rs"]
 mod gui_util;

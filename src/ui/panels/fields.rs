@@ -3,8 +3,8 @@
 
 use super::PanelState;
 use crate::acquire::{SourceConfig, SourceSpec};
-use crate::model::{CalibrationMethod, WelchSettings};
 use crate::analysis::AnalysisOptions;
+use crate::model::{CalibrationMethod, WelchSettings};
 
 /// Parses a positive finite number; `name` goes into the error.
 fn parse_pos(text: &str, name: &str) -> Result<f64, String> {
