@@ -6,6 +6,7 @@
 //! The window (`crate::ui`) owns a [`LiveState`] and an [`Engine`]; each repaint it drains the
 //! engine's frames into the live state and draws from it.
 
+pub mod cross_curves;
 pub mod curves;
 pub mod decimate;
 pub mod engine;

@@ -596,7 +596,6 @@ fn mode_fit_from(
         }
         v.max(0.0).sqrt()
     };
-    let q = c / w;
     let peak = 2.0 * a / (PI * w);
     let mut bg = b;
     let mut bg_sigma = sd(0);
@@ -609,10 +608,20 @@ fn mode_fit_from(
             .sqrt();
         slope = Some(Estimate::new(p[4], sd(4)));
     }
+    // Narrower than the resolution (γ < ENBW): the width is then reported as the upper bound
+    // γ + 2σ, as the kernel-convolved fit does (a plain fit broadens such a line).
+    let resolution_limited = w < enbw_hz;
+    let linewidth = if resolution_limited {
+        Estimate::new(w + 2.0 * sd(3), sd(3))
+    } else {
+        Estimate::new(w, sd(3))
+    };
+    // Q's lower bound with the width's upper bound.
+    let q = c / linewidth.value;
     ModeFit {
         frequency_hz: Estimate::new(c, sd(2)),
-        linewidth_hz: Estimate::new(w, sd(3)),
-        quality_factor: Estimate::new(q, propagate([0.0, 1.0 / w, -c / (w * w)])),
+        linewidth_hz: linewidth,
+        quality_factor: Estimate::new(q, propagate([0.0, 1.0 / w, -c / (w * w)]) * q * w / c),
         area: Estimate::new(a, sd(1)),
         peak_psd: Estimate::new(peak, propagate([2.0 / (PI * w), 0.0, -peak / w])),
         background_psd: Estimate::new(bg, bg_sigma),
@@ -622,7 +631,7 @@ fn mode_fit_from(
         bins,
         band_hz,
         error_inflation: inflation,
-        resolution_limited: w < 5.0 * enbw_hz,
+        resolution_limited,
         slope_reference_hz: f_ref,
         linewidth_fit_hz: None,
     }

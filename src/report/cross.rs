@@ -250,6 +250,11 @@ pub fn analyze_cross(
         }
         if m.resolution_limited {
             report.notes.push(format!(
+                "mode: the line is narrower than the resolution (ENBW {:.4} Hz): linewidth_hz is the upper bound γ + 2σ = {:.4} Hz and Q its lower bound (the area is not affected)",
+                cross.a.enbw_hz, m.linewidth_hz.value
+            ));
+        } else if m.linewidth_hz.value < 5.0 * cross.a.enbw_hz {
+            report.notes.push(format!(
                 "mode: linewidth {:.4} Hz is below 5·ENBW = {:.4} Hz; linewidth and peak are broadened by the resolution (the area is not)",
                 m.linewidth_hz.value,
                 5.0 * cross.a.enbw_hz

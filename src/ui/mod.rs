@@ -7,6 +7,7 @@
 //! them, and turns clicks and keys into [`UiCommand`]s applied after the frame.
 
 mod axes;
+mod cross_view;
 mod figure_export;
 mod files;
 mod history_view;
@@ -223,6 +224,7 @@ pub struct StillpointApp {
     plot: plot::PlotState,
     history: history_view::HistoryViewState,
     sidebands: sideband_view::SidebandViewState,
+    cross: cross_view::CrossViewState,
     files: files::FileState,
     journal: journal_ui::JournalState,
     snapshots: Vec<LoadedSnapshot>,
@@ -359,6 +361,7 @@ impl StillpointApp {
             plot: plot::PlotState::default(),
             history: history_view::HistoryViewState::default(),
             sidebands: sideband_view::SidebandViewState::default(),
+            cross: cross_view::CrossViewState::default(),
             files: files::FileState::new(),
             journal: journal_ui::JournalState::new(journal_folder),
             snapshots: Vec::new(),
@@ -708,6 +711,7 @@ impl StillpointApp {
                 }
                 self.history = history_view::HistoryViewState::default();
                 self.sidebands = sideband_view::SidebandViewState::default();
+                self.cross = cross_view::CrossViewState::default();
                 self.plot.reset_view = true;
                 self.send(EngineCommand::OpenSource(demo.source));
             }
@@ -1107,14 +1111,24 @@ impl eframe::App for StillpointApp {
                 self.messages_ui(ui);
                 let avail = ui.available_height();
                 let heterodyne = self.state.analysis.carrier_hz.is_some();
+                let two_detectors = self
+                    .live
+                    .frame
+                    .as_ref()
+                    .is_some_and(|f| f.cross_channels.is_some());
+                // The two-detector view takes the sideband view's share (a heterodyne
+                // analysis is not available with two detectors).
                 let (plot_h, sideband_h) =
-                    central_heights(avail, heterodyne, self.state.show_cooldown);
+                    central_heights(avail, heterodyne || two_detectors, self.state.show_cooldown);
                 let cmds =
                     self.plot
                         .spectrum_ui(ui, plot_h, &self.live, &self.state, &self.snapshots);
                 self.commands.extend(cmds);
                 self.layout.plot = self.plot.rect.unwrap_or(egui::Rect::NOTHING);
-                if heterodyne {
+                if two_detectors {
+                    ui.add_space(4.0);
+                    self.cross.ui(ui, sideband_h, &self.live);
+                } else if heterodyne {
                     ui.add_space(4.0);
                     self.sidebands
                         .ui(ui, sideband_h, &self.live, &self.state, &self.source);
