@@ -375,6 +375,48 @@ fn sigterm_during_a_live_run_writes_the_averages_it_has() {
     assert!(temporaries(dir.path()).is_empty());
 }
 
+/// Two detectors on a live stdin stream (`--cross-channel 1`): SIGINT writes the
+/// cross-spectrum averaged so far, as a single-channel run does.
+#[test]
+fn sigint_during_a_live_two_channel_run_writes_the_cross_spectrum_it_has() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("cross.csv");
+    let a = args(
+        "-",
+        &[
+            "--channels",
+            "2",
+            "--cross-channel",
+            "1",
+            "--segment",
+            "256",
+            "--stall-timeout",
+            "60",
+        ],
+        s(&out),
+    );
+    let mut running = Running::spawn(&a, Stdio::piped());
+    let mut stdin = running.child.stdin.take().unwrap();
+    // 1024 frames of two channels: 7 segments of 256 at 50 % overlap.
+    stdin.write_all(&noise_bytes(2048, 8)).unwrap();
+    stdin.flush().unwrap();
+    running.wait_for("no sample from stdin");
+    running.signal("INT");
+    let output = running.finish();
+    drop(stdin);
+    assert_success(&output, "SIGINT, two channels");
+    let err = stderr(&output);
+    assert!(
+        err.contains("stopped by SIGINT after 1024 samples per channel"),
+        "{err}"
+    );
+    assert!(err.contains("average of the 7 segments"), "{err}");
+    assert_eq!(rows(&out), 129);
+    let header = std::fs::read_to_string(&out).unwrap();
+    assert!(header.starts_with("frequency_hz,psd_v2_per_hz,psd_b_v2_per_hz,csd_re_v2_per_hz"));
+    assert!(temporaries(dir.path()).is_empty());
+}
+
 #[test]
 fn sigint_before_one_segment_exits_130_and_writes_nothing() {
     let dir = tempfile::tempdir().unwrap();

@@ -12,6 +12,7 @@ use crate::report::{self, cross::analyze_cross};
 
 use super::args::{AnalyzeArgs, AveragingArg, HeterodyneArgs, SourceArgs, SpectrumArgs, WelchArgs};
 use super::config::{self, CalibrationKind};
+use super::interrupt::{self, Interrupted};
 use super::pipeline::{self, Progress};
 use super::{InputError, note, output, warn};
 
@@ -54,6 +55,14 @@ pub fn compute_cross(source: &SourceArgs, welch: &WelchArgs) -> Result<CrossRun>
         .into());
     }
     let label = pipeline::source_label(&source_config.spec);
+    let live = source_config.spec.is_live() || source_config.follow;
+    if live {
+        // A live stream ends by SIGINT/SIGTERM: the average so far is written (below).
+        interrupt::install();
+    }
+    let stall_timeout = (live && source.stall_timeout > 0.0)
+        .then(|| std::time::Duration::try_from_secs_f64(source.stall_timeout).ok())
+        .flatten();
     let reader = acquire::open(&source_config).map_err(|e| match e {
         AcquireError::Open { .. } | AcquireError::Connect { .. } => anyhow::Error::from(e),
         other => anyhow::Error::from(other).context(format!("cannot read {label}")),
@@ -78,13 +87,43 @@ pub fn compute_cross(source: &SourceArgs, welch: &WelchArgs) -> Result<CrossRun>
     );
     options.block_samples = options.block_samples.saturating_mul(2);
     let acquisition = Acquisition::spawn(reader, options, None)?;
-    let (stats, ended) = feed(&acquisition, &mut averager, &progress)
+    let watch = Watch {
+        live,
+        stall_timeout,
+        label: label.clone(),
+    };
+    let (stats, ended, stop) = feed(&acquisition, &mut averager, &progress, &watch)
         .with_context(|| format!("while reading {label}"))?;
     drop(acquisition);
     averager.flush();
     progress.finish();
     let mut warnings = pipeline::reader_warnings(&stats, averager.skipped_segments());
     let mut notes = Vec::new();
+    match stop {
+        Some(CrossStop::Signal(signal)) if averager.segments() == 0 => {
+            return Err(Interrupted {
+                signal,
+                what: format!(
+                    "after {} samples per channel of {label}, fewer than one segment of {}",
+                    stats.samples, welch_config.segment
+                ),
+            }
+            .into());
+        }
+        Some(CrossStop::Signal(signal)) => notes.push(format!(
+            "stopped by {signal} after {} samples per channel of {label}: writing the average of \
+             the {} segments complete",
+            stats.samples,
+            averager.segments()
+        )),
+        Some(CrossStop::Stalled(quiet)) => warnings.push(format!(
+            "no sample from {label} for {} s (--stall-timeout): writing the average of the {} \
+             segments complete",
+            quiet.as_secs(),
+            averager.segments()
+        )),
+        None => {}
+    }
     if ended && source_config.spec.is_live() {
         notes.push(format!(
             "{label} closed after {} samples per channel ({} s at {} Hz)",
@@ -142,21 +181,79 @@ pub fn compute_cross(source: &SourceArgs, welch: &WelchArgs) -> Result<CrossRun>
     })
 }
 
-/// Feeds the paired blocks (channel a's samples, then channel b's) until the stream ends or
-/// the average is complete; returns the reader's counters and whether the stream ended.
+/// How [`feed`] watches a live source.
+struct Watch {
+    /// SIGINT/SIGTERM end the run (the average so far is kept).
+    live: bool,
+    /// Give up after this long without a sample.
+    stall_timeout: Option<std::time::Duration>,
+    /// The source as named in messages.
+    label: String,
+}
+
+/// A live source that has been silent this long is reported (and again each time as long).
+const STALL_REPORT_EVERY: std::time::Duration = std::time::Duration::from_secs(10);
+
+/// Why [`feed`] stopped before the stream ended or the average was complete.
+enum CrossStop {
+    Signal(&'static str),
+    Stalled(std::time::Duration),
+}
+
+/// Feeds the paired blocks (channel a's samples, then channel b's) until the stream ends,
+/// the average is complete or (live) a signal or a stall stops it; returns the reader's
+/// counters, whether the stream ended, and why it was stopped.
 fn feed(
     acquisition: &Acquisition,
     averager: &mut CrossWelch,
     progress: &Progress,
-) -> Result<(ReaderStats, bool)> {
+    watch: &Watch,
+) -> Result<(ReaderStats, bool, Option<CrossStop>)> {
     let mut stats = ReaderStats::default();
     let mut frames: u64 = 0;
+    let mut last_sample = std::time::Instant::now();
+    let mut next_report = STALL_REPORT_EVERY;
     loop {
-        let Ok(event) = acquisition.events().recv() else {
-            anyhow::bail!("the acquisition thread ended without saying why");
+        if watch.live && interrupt::stop_requested() {
+            let signal = interrupt::stop_reason().unwrap_or("a signal");
+            stats.samples = stats.samples.max(frames);
+            return Ok((stats, false, Some(CrossStop::Signal(signal))));
+        }
+        let event = match acquisition
+            .events()
+            .recv_timeout(std::time::Duration::from_millis(100))
+        {
+            Ok(event) => event,
+            Err(crossbeam_channel::RecvTimeoutError::Timeout) => {
+                let quiet = last_sample.elapsed();
+                if let Some(limit) = watch.stall_timeout
+                    && quiet >= limit
+                {
+                    stats.samples = stats.samples.max(frames);
+                    return Ok((stats, false, Some(CrossStop::Stalled(quiet))));
+                }
+                if watch.live && quiet >= next_report {
+                    warn(&format!(
+                        "no sample from {} for {} s ({frames} samples per channel so far); {}",
+                        watch.label,
+                        quiet.as_secs(),
+                        watch.stall_timeout.map_or_else(
+                            || "waiting without limit (--stall-timeout 0)".to_string(),
+                            |t| format!("giving up at {} s (--stall-timeout)", t.as_secs())
+                        )
+                    ));
+                    next_report = quiet + STALL_REPORT_EVERY;
+                }
+                continue;
+            }
+            Err(crossbeam_channel::RecvTimeoutError::Disconnected) => {
+                anyhow::bail!("the acquisition thread ended without saying why");
+            }
         };
         match event {
             AcqEvent::Block(block) => {
+                last_sample = std::time::Instant::now();
+                next_report = STALL_REPORT_EVERY;
                 let half = block.len() / 2;
                 let (a, b) = block.split_at(half);
                 averager.push(a, b.get(..half).unwrap_or(b));
@@ -165,14 +262,14 @@ fn feed(
                 progress.set(frames);
                 if averager.is_complete() {
                     stats.samples = stats.samples.max(frames);
-                    return Ok((stats, false));
+                    return Ok((stats, false, None));
                 }
             }
             AcqEvent::Gap { .. } => averager.discard_pending(),
             AcqEvent::Status(status) => stats = status.reader,
             AcqEvent::Stopped(None) => {
                 stats.samples = stats.samples.max(frames);
-                return Ok((stats, true));
+                return Ok((stats, true, None));
             }
             AcqEvent::Stopped(Some(error)) => return Err(error.into()),
         }
