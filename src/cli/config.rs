@@ -3,7 +3,7 @@
 //! Shared by the headless commands and `monitor` (the window).
 
 use crate::acquire::{SourceConfig, SourceSpec};
-use crate::analysis::AnalysisOptions;
+use crate::analysis::{AnalysisOptions, Setting};
 use crate::dsp::{Averaging, WelchConfig};
 
 use super::InputError;
@@ -253,6 +253,30 @@ pub fn analysis_options(
         sloped_background: calibration.sloped_background,
         ..AnalysisOptions::default()
     })
+}
+
+/// The command-line option of an analysis setting, which the CLI puts before a
+/// [`crate::analysis::AnalysisError::Setting`] message (the library names quantities, not
+/// options).
+pub(crate) fn option_of(setting: Setting) -> &'static str {
+    match setting {
+        Setting::Mass => "--mass",
+        Setting::MassUncertainty => "--mass-uncertainty",
+        Setting::BathTemperature => "--bath-temperature",
+        Setting::BathTemperatureUncertainty => "--bath-temperature-uncertainty",
+        Setting::MPerV => "--m-per-v",
+        Setting::ToneFrequency => "--tone-freq",
+        Setting::ToneRms => "--tone-rms-m",
+        Setting::PmDepth => "--pm-depth",
+        Setting::FreqPull => "--freq-pull",
+        Setting::SidebandImbalance => "--sideband-imbalance",
+        Setting::ImbalanceTones => "--imbalance-tones",
+        Setting::PeakThreshold => "--peak-threshold",
+        Setting::Carrier => "--carrier",
+        Setting::LoSide => "--lo-side",
+        Setting::ModeBand => "--mode-band",
+        Setting::RmsBand => "--rms-band",
+    }
 }
 
 #[cfg(test)]

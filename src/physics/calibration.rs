@@ -64,7 +64,7 @@ impl Calibration {
 pub fn given(m_per_v: f64) -> Result<Calibration> {
     Ok(Calibration {
         method: CalibrationMethod::Given,
-        m_per_v: Estimate::new(require_positive("--m-per-v", m_per_v)?, 0.0),
+        m_per_v: Estimate::new(require_positive("the calibration (m/V)", m_per_v)?, 0.0),
         tone: None,
     })
 }
@@ -128,7 +128,7 @@ pub fn read_tone(
     let nyquist = df * n.saturating_sub(1) as f64;
     if !(frequency_hz.is_finite() && frequency_hz > 0.0 && frequency_hz <= nyquist) {
         return Err(PhysicsError::Input(format!(
-            "--tone-freq {frequency_hz} Hz lies outside the spectrum (0 to {nyquist} Hz)"
+            "the tone frequency {frequency_hz} Hz lies outside the spectrum (0 to {nyquist} Hz)"
         )));
     }
     let base = |k: usize| baseline.map_or(0.0, |b| b(k as f64 * df));
@@ -234,9 +234,12 @@ pub fn pm_tone_rms_m(
     tone_frequency_hz: f64,
     freq_pull_hz_per_m: f64,
 ) -> Result<f64> {
-    let beta = require_positive("--pm-depth", pm_depth_rad)?;
-    let f = require_positive("--tone-freq", tone_frequency_hz)?;
-    let g = require_positive("--freq-pull (absolute value)", freq_pull_hz_per_m.abs())?;
+    let beta = require_positive("the phase-modulation depth", pm_depth_rad)?;
+    let f = require_positive("the tone frequency", tone_frequency_hz)?;
+    let g = require_positive(
+        "the frequency pull (absolute value)",
+        freq_pull_hz_per_m.abs(),
+    )?;
     Ok(beta * f / g / std::f64::consts::SQRT_2)
 }
 
@@ -245,7 +248,7 @@ pub fn pm_tone_rms_m(
 /// # Errors
 /// [`PhysicsError::Input`] for a non-positive rms displacement or tone power.
 pub fn from_tone(reading: &ToneReading, tone_rms_m: f64) -> Result<Calibration> {
-    let x = require_positive("--tone-rms-m", tone_rms_m)?;
+    let x = require_positive("the tone's rms displacement", tone_rms_m)?;
     let p = require_positive("tone power", reading.power.value)?;
     let c = x / p.sqrt();
     Ok(Calibration {
@@ -272,11 +275,11 @@ pub fn equipartition(
 ) -> Result<Calibration> {
     let a = require_positive("mode area (V²)", mode_area_v2.value)?;
     let f = require_positive("mode frequency (Hz)", mode_frequency_hz)?;
-    let m = require_positive("--mass", mass_kg.value)?;
-    let t = require_positive("--bath-temperature", bath_temperature_k.value)?;
+    let m = require_positive("the effective mass", mass_kg.value)?;
+    let t = require_positive("the bath temperature", bath_temperature_k.value)?;
     for (name, sigma) in [
-        ("--mass-uncertainty", mass_kg.sigma),
-        ("--bath-temperature-uncertainty", bath_temperature_k.sigma),
+        ("the 1σ of the effective mass", mass_kg.sigma),
+        ("the 1σ of the bath temperature", bath_temperature_k.sigma),
     ] {
         if !(sigma.is_finite() && sigma >= 0.0) {
             return Err(PhysicsError::Input(format!(
@@ -308,8 +311,8 @@ pub fn g0_hz(
     tone_power: Estimate,
     occupancy: f64,
 ) -> Result<Estimate> {
-    let beta = require_positive("--pm-depth", pm_depth_rad)?;
-    let f = require_positive("--tone-freq", tone_frequency_hz)?;
+    let beta = require_positive("the phase-modulation depth", pm_depth_rad)?;
+    let f = require_positive("the tone frequency", tone_frequency_hz)?;
     let a = require_positive("mode area", mode_area.value)?;
     let p = require_positive("tone power", tone_power.value)?;
     if !(occupancy.is_finite() && occupancy >= 0.0) {
@@ -335,7 +338,7 @@ pub fn g0_hz_at_temperature(
     mode_frequency_hz: f64,
     bath_temperature_k: f64,
 ) -> Result<Estimate> {
-    let t = require_positive("--bath-temperature", bath_temperature_k)?;
+    let t = require_positive("the bath temperature", bath_temperature_k)?;
     let f = require_positive("mode frequency (Hz)", mode_frequency_hz)?;
     g0_hz(
         pm_depth_rad,

@@ -146,17 +146,17 @@ fn fit_sidebands_joint(spectrum: &Spectrum, options: &SidebandOptions) -> Result
     let fc = options.carrier_hz;
     if !(fc.is_finite() && fc > 0.0) {
         return Err(PhysicsError::Input(format!(
-            "--carrier must be a positive frequency, got {fc}"
+            "the carrier must be a positive frequency, got {fc}"
         )));
     }
     if !(lo.is_finite() && hi.is_finite() && lo >= 0.0 && lo < hi) {
         return Err(PhysicsError::Input(format!(
-            "--mode-band with --carrier must be LO:HI offsets with 0 <= LO < HI, got {lo}:{hi}"
+            "with a carrier, the mode band must be offsets LO:HI from it with 0 <= LO < HI, got {lo}:{hi}"
         )));
     }
     if fc - hi <= 0.0 {
         return Err(PhysicsError::Input(format!(
-            "--carrier {fc} Hz minus the --mode-band top {hi} Hz is below 0 Hz"
+            "the carrier {fc} Hz minus the top of the mode band {hi} Hz is below 0 Hz"
         )));
     }
     let up = fit::band_bins(
