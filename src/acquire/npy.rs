@@ -18,7 +18,7 @@
 //! Supported: 1-D and 2-D arrays of int16, int32, float32, float64 in either byte order.
 //! Refused with a one-line reason: Fortran order, object and structured arrays, other
 //! dtypes, other ranks, an empty array. A body shorter than the shape promises is read as
-//! far as it goes and flagged as truncated ([`ReaderStats::truncated`]).
+//! far as it goes and flagged as truncated ([`super::ReaderStats::truncated`]).
 
 use std::fs::File;
 use std::io::{self, Read};

@@ -108,7 +108,7 @@ pub fn source_config(args: &SourceArgs) -> Result<SourceConfig> {
 /// Longest segment accepted (2²⁷ samples: ~3 GB of working buffers).
 pub const MAX_SEGMENT: usize = 1 << 27;
 
-/// The default segment: [`DEFAULT_SEGMENT`], or the largest power of two ≤ L/8 when the
+/// The default segment: [`crate::dsp::DEFAULT_SEGMENT`], or the largest power of two ≤ L/8 when the
 /// record length L is known and shorter (never below 2).
 pub fn default_segment(record_samples: Option<u64>) -> usize {
     crate::dsp::default_segment(record_samples)

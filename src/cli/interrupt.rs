@@ -6,7 +6,7 @@
 //! blocks (it is one atomic load). [`stop_reason`] names the signal for messages. A *second*
 //! SIGINT or SIGTERM ends the process at once (status 130 or 143), for a run that does not
 //! react; its temporary output file is then cleaned up by the next run writing the same
-//! output (see [`super::output`]).
+//! output (see `cli/output.rs`).
 //!
 //! The signal handlers come from `signal-hook` (they only store to atomics, which is
 //! async-signal-safe); this module has no unsafe code.

@@ -108,7 +108,7 @@ pub struct StaleTemp {
 }
 
 /// Temporary files beside `target` left by saves of it (names `PREFIX.PID.….tmp`, see
-/// [`temp_path_for`]), with the process id each name carries. Whether that process still
+/// `temp_path_for`), with the process id each name carries. Whether that process still
 /// runs is for the caller to judge.
 ///
 /// # Errors

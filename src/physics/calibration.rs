@@ -1,6 +1,6 @@
 //! Volts → metres (METHODS.md §5): a tone of known equivalent rms displacement, a
 //! phase-modulation tone of known depth β and frequency pull G/2π (Gorodetsky et al., Opt.
-//! Express 18, 23236 (2010) [G10]), thermal equipartition at a known bath temperature, or a
+//! Express 18, 23236 (2010) \[G10\]), thermal equipartition at a known bath temperature, or a
 //! given m/V; the vacuum coupling rate g₀/2π; and a bounded history of the tone for drift.
 //!
 //! Tone power is read robustly as P = Σ_{|k−k₀|≤M} (PSD_k − B_k) Δf (METHODS.md §1, Heinzel et
@@ -224,7 +224,7 @@ pub fn read_tone(
     })
 }
 
-/// Equivalent rms displacement of a phase-modulation tone [G10]:
+/// Equivalent rms displacement of a phase-modulation tone \[G10\]:
 /// x_cal,pk = β f_mod/|G/2π|, x_rms = x_pk/√2.
 ///
 /// # Errors
@@ -299,7 +299,7 @@ pub fn equipartition(
     })
 }
 
-/// Vacuum coupling rate g₀/2π (Hz) from a phase-modulation tone [G10], in the general form
+/// Vacuum coupling rate g₀/2π (Hz) from a phase-modulation tone \[G10\], in the general form
 /// g₀² = (β²Ω_mod²/2)(A_mech/P_tone)/(2n̄+1) (METHODS.md §5b), with 1σ from the two powers.
 ///
 /// # Errors

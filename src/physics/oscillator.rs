@@ -1,6 +1,6 @@
 //! The damped harmonic oscillator of one mechanical mode (METHODS.md §2): susceptibility χ(Ω),
 //! the Hz-form displacement PSD used for fitting, its Lorentzian core, and the zero-point
-//! amplitude x_zpf. Sources: Aspelmeyer, Kippenberg & Marquardt, RMP 86, 1391 (2014) [A14];
+//! amplitude x_zpf. Sources: Aspelmeyer, Kippenberg & Marquardt, RMP 86, 1391 (2014) \[A14\];
 //! Saulson, PRD 42, 2437 (1990).
 
 use std::f64::consts::PI;
@@ -68,7 +68,7 @@ impl Oscillator {
         self.mass_kg * self.omega_rad_s().powi(2)
     }
 
-    /// χ(Ω) = 1/[m_eff(Ω_m² − Ω² − iΓ_mΩ)] at f = Ω/2π (m/N); Im χ > 0 for f > 0 [A14].
+    /// χ(Ω) = 1/[m_eff(Ω_m² − Ω² − iΓ_mΩ)] at f = Ω/2π (m/N); Im χ > 0 for f > 0 \[A14\].
     pub fn susceptibility(&self, frequency_hz: f64) -> Complex64 {
         let w = 2.0 * PI * frequency_hz;
         let wm = self.omega_rad_s();
@@ -92,7 +92,7 @@ impl Oscillator {
         g / (self.mass_kg * ((wm * wm - w * w).powi(2) + g * g * w * w))
     }
 
-    /// Zero-point amplitude x_zpf = √(ħ / 2 m_eff Ω_m) (m) [A14].
+    /// Zero-point amplitude x_zpf = √(ħ / 2 m_eff Ω_m) (m) \[A14\].
     pub fn x_zpf_m(&self) -> f64 {
         x_zpf_m(self.mass_kg, self.frequency_hz)
     }
@@ -103,7 +103,7 @@ impl Oscillator {
     }
 }
 
-/// x_zpf = √(ħ / 2 m Ω) (m) for a mass (kg) and frequency (Hz) [A14]. Non-positive inputs
+/// x_zpf = √(ħ / 2 m Ω) (m) for a mass (kg) and frequency (Hz) \[A14\]. Non-positive inputs
 /// give NaN; validate them first (e.g. with [`Oscillator::new`]).
 pub fn x_zpf_m(mass_kg: f64, frequency_hz: f64) -> f64 {
     (HBAR_J_S / (2.0 * mass_kg * 2.0 * PI * frequency_hz)).sqrt()

@@ -1,6 +1,6 @@
 //! Quantum and thermal reference spectra of a mode, as curves on a frequency grid so the window
 //! can overlay them (METHODS.md §2–§3). All single-sided in f: the two-sided symmetrised forms
-//! of Clerk et al., RMP 82, 1155 (2010) [C10] and [A14] are doubled (S^(1)(f) = 2 S̄(Ω)).
+//! of Clerk et al., RMP 82, 1155 (2010) \[C10\] and \[A14\] are doubled (S^(1)(f) = 2 S̄(Ω)).
 
 use super::constants::{BOLTZMANN_J_PER_K, HBAR_J_S};
 use super::oscillator::Oscillator;
