@@ -12,7 +12,7 @@ use super::{Estimate, PhysicsError, Result, calibration, window_stats};
 use crate::dsp::Spectrum;
 
 /// The caution that goes with every sideband result (METHODS.md §6 caveat).
-pub const CLASSICAL_NOISE_NOTE: &str = "sideband asymmetry: classical laser amplitude/phase noise or excess cavity occupation interferes with opposite signs in the two sidebands and can mimic or mask the quantum asymmetry (Safavi-Naeini et al. 2013, Jayich et al. 2012); characterise the laser noise at f_m or vary the probe power";
+pub(crate) const CLASSICAL_NOISE_NOTE: &str = "sideband asymmetry: classical laser amplitude/phase noise or excess cavity occupation interferes with opposite signs in the two sidebands and can mimic or mask the quantum asymmetry (Safavi-Naeini et al. 2013, Jayich et al. 2012); characterise the laser noise at f_m or vary the probe power";
 
 /// Inputs of the sideband analysis.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -82,7 +82,7 @@ pub fn occupancy_from_ratio(ratio: Estimate) -> Option<Estimate> {
 ///
 /// # Errors
 /// As [`calibration::read_tone`].
-pub fn imbalance_from_tones(
+pub(crate) fn imbalance_from_tones(
     spectrum: &Spectrum,
     red_tone_hz: f64,
     blue_tone_hz: f64,
@@ -433,7 +433,7 @@ fn band_sum_sidebands(spectrum: &Spectrum, options: &SidebandOptions) -> Result<
 ///
 /// # Errors
 /// As [`calibration::read_tone`].
-pub fn read_pm_lines(
+pub(crate) fn read_pm_lines(
     spectrum: &Spectrum,
     carrier_hz: f64,
     f_mod_hz: f64,
@@ -456,7 +456,7 @@ pub fn read_pm_lines(
 /// x_zpf²(n̄+1) and x_zpf² n̄, so c²(A_red + A_blue) = x_zpf²(2n̄+1) and
 /// n̄ = (c²(A_red + A_blue)/x_zpf² − 1)/2. σ by first-order propagation (independent areas,
 /// the calibration's relative error).
-pub fn occupancy_from_areas(
+pub(crate) fn occupancy_from_areas(
     red_v2: Estimate,
     blue_v2: Estimate,
     m2_per_v2: Estimate,
