@@ -298,7 +298,7 @@ impl QuantumParams {
     }
 
     /// Electronic frequencies (red, blue) of lines offset ± `offset_hz` from the carrier.
-    pub fn red_blue_hz(&self, offset_hz: f64) -> (f64, f64) {
+    pub(crate) fn red_blue_hz(&self, offset_hz: f64) -> (f64, f64) {
         if self.lo_above {
             (self.carrier_hz + offset_hz, self.carrier_hz - offset_hz)
         } else {
