@@ -64,7 +64,7 @@ pub struct LiveState {
 }
 
 /// Session marks kept.
-pub const SESSION_MARKS: usize = 256;
+pub(crate) const SESSION_MARKS: usize = 256;
 
 impl Default for LiveState {
     fn default() -> Self {
