@@ -27,7 +27,7 @@ use super::raw::{MAX_CHANNELS, RawFormat, RawReader};
 use super::{AcquireError, Endian, Result, SampleFormat, SourceConfig};
 
 /// Attribute names that may hold the sample rate, in the order they are tried.
-pub const RATE_ATTRIBUTES: [&str; 3] = ["sample_rate_hz", "fs", "rate"];
+pub(crate) const RATE_ATTRIBUTES: [&str; 3] = ["sample_rate_hz", "fs", "rate"];
 
 /// Bytes aimed at per read of the dataset (rounded to whole chunks).
 const WINDOW_BYTES: u64 = 1 << 20;
