@@ -115,7 +115,7 @@ pub fn default_segment(record_samples: Option<u64>) -> usize {
 }
 
 /// Worker threads for the averager: one per core (at most 64).
-pub fn worker_threads() -> usize {
+pub(crate) fn worker_threads() -> usize {
     std::thread::available_parallelism()
         .map_or(1, std::num::NonZero::get)
         .min(64)
