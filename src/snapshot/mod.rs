@@ -18,7 +18,7 @@
 //!
 //! Loading gives one-line errors for damaged files (bad JSON, missing columns, non-numeric or
 //! non-finite values, a row count or frequency grid that does not match the metadata).
-//! [`compare`] forms ratio and difference of two spectra (interpolating the reference when the
+//! [`compare()`] forms ratio and difference of two spectra (interpolating the reference when the
 //! grids differ); [`excess_bands`] and [`mark_new_peaks`] list what is new since a reference.
 
 mod compare;
