@@ -47,7 +47,7 @@ fn header_total(columns: usize) -> usize {
 
 /// A float32 C-order 2-D array being written row by row.
 #[derive(Debug)]
-pub struct NpyWriter<W: Write + Seek> {
+pub(crate) struct NpyWriter<W: Write + Seek> {
     out: W,
     columns: usize,
     rows: u64,
@@ -73,23 +73,13 @@ impl<W: Write + Seek> NpyWriter<W> {
         })
     }
 
-    /// Columns per row.
-    pub fn columns(&self) -> usize {
-        self.columns
-    }
-
-    /// Rows appended so far.
-    pub fn rows(&self) -> u64 {
-        self.rows
-    }
-
     /// Appends one row, each value rounded to float32 (a value too large for float32 becomes
     /// ±inf, as NumPy's own cast does). The header still says the old row count until
     /// [`NpyWriter::set_rows`] or [`NpyWriter::finish`].
     ///
     /// # Errors
     /// A row of the wrong length ([`io::ErrorKind::InvalidInput`]); writing fails.
-    pub fn append_row(&mut self, row: &[f64]) -> io::Result<()> {
+    pub(crate) fn append_row(&mut self, row: &[f64]) -> io::Result<()> {
         if row.len() != self.columns {
             return Err(io::Error::new(
                 io::ErrorKind::InvalidInput,
@@ -115,7 +105,7 @@ impl<W: Write + Seek> NpyWriter<W> {
     ///
     /// # Errors
     /// Seeking or writing fails.
-    pub fn set_rows(&mut self) -> io::Result<()> {
+    pub(crate) fn set_rows(&mut self) -> io::Result<()> {
         let end = self.out.stream_position()?;
         let start = end - self.header_bytes as u64 - self.rows * self.columns as u64 * 4;
         self.out.seek(SeekFrom::Start(start))?;

@@ -42,7 +42,7 @@ impl DemoReader {
     ///
     /// # Errors
     /// [`AcquireError::Config`] if the generator's rate is not a positive finite number.
-    pub fn from_generator(
+    pub(crate) fn from_generator(
         generator: Box<dyn Generator>,
         volts_per_unit: f64,
         name: String,

@@ -31,7 +31,7 @@ pub const POLL_INTERVAL: Duration = Duration::from_millis(50);
 
 /// Bytes at the start of the data (after a WAV header) compared at every poll to notice a
 /// file rewritten in place.
-pub const HEAD_BYTES: usize = 64;
+pub(crate) const HEAD_BYTES: usize = 64;
 
 /// How long opening a followed WAV waits for a header that is still being written.
 const HEADER_WAIT: Duration = Duration::from_secs(2);

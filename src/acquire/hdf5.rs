@@ -11,7 +11,7 @@
 //! fetched on demand) and the dataset is read a window of rows at a time, each window a
 //! whole number of chunks (about 1 MiB), so memory does not grow with the dataset. The
 //! window's bytes are in the file's element byte order, exactly the interleaved frames the
-//! raw reader decodes: [`Hdf5Rows`] is a byte source for [`RawReader`], which does the
+//! raw reader decodes: `Hdf5Rows` is a byte source for [`RawReader`], which does the
 //! decoding, the `--channel` selection and the counting.
 //!
 //! Sample rate: `--rate`, else the first numeric attribute of the dataset named
@@ -27,7 +27,7 @@ use super::raw::{MAX_CHANNELS, RawFormat, RawReader};
 use super::{AcquireError, Endian, Result, SampleFormat, SourceConfig};
 
 /// Attribute names that may hold the sample rate, in the order they are tried.
-pub const RATE_ATTRIBUTES: [&str; 3] = ["sample_rate_hz", "fs", "rate"];
+pub(crate) const RATE_ATTRIBUTES: [&str; 3] = ["sample_rate_hz", "fs", "rate"];
 
 /// Bytes aimed at per read of the dataset (rounded to whole chunks).
 const WINDOW_BYTES: u64 = 1 << 20;

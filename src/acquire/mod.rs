@@ -177,7 +177,7 @@ impl SourceSpec {
     }
 
     /// True for a path ending in `.wav` (any case).
-    pub fn is_wav(&self) -> bool {
+    pub(crate) fn is_wav(&self) -> bool {
         match self {
             Self::Path(p) => p
                 .extension()
@@ -188,18 +188,18 @@ impl SourceSpec {
     }
 
     /// True for a path ending in `.npy` (any case): a NumPy array file.
-    pub fn is_npy(&self) -> bool {
+    pub(crate) fn is_npy(&self) -> bool {
         self.has_extension(&["npy"])
     }
 
     /// True for a path ending in `.h5` or `.hdf5` (any case): an HDF5 file.
-    pub fn is_hdf5(&self) -> bool {
+    pub(crate) fn is_hdf5(&self) -> bool {
         self.has_extension(&["h5", "hdf5"])
     }
 
     /// True for a file whose header states its sample layout (WAV, `.npy`, HDF5), so
     /// `--sample-format` does not apply.
-    pub fn is_self_describing(&self) -> bool {
+    pub(crate) fn is_self_describing(&self) -> bool {
         self.is_wav() || self.is_npy() || self.is_hdf5()
     }
 
@@ -420,7 +420,7 @@ fn open_one(config: &SourceConfig) -> Result<Box<dyn SampleReader>> {
 
 /// Samples per channel a `.npy` or HDF5 source holds according to its header (`None` for
 /// other sources or an unreadable file).
-pub fn lab_file_length(config: &SourceConfig, path: &std::path::Path) -> Option<u64> {
+pub(crate) fn lab_file_length(config: &SourceConfig, path: &std::path::Path) -> Option<u64> {
     if config.spec.is_npy() {
         npy::NpyHeader::read(path).ok().map(|h| h.samples)
     } else if config.spec.is_hdf5() {
@@ -435,9 +435,9 @@ pub fn lab_file_length(config: &SourceConfig, path: &std::path::Path) -> Option<
 
 /// Lowest sample rate accepted: below it the spectrum's 1/rate scaling leaves the range of
 /// f64 arithmetic for ordinary signals.
-pub const MIN_RATE_HZ: f64 = 1e-9;
+pub(crate) const MIN_RATE_HZ: f64 = 1e-9;
 /// Highest sample rate accepted.
-pub const MAX_RATE_HZ: f64 = 1e15;
+pub(crate) const MAX_RATE_HZ: f64 = 1e15;
 
 /// A rate option must be a positive finite number of hertz in a range f64 arithmetic handles.
 fn check_rate(rate_hz: Option<f64>) -> Result<()> {
@@ -457,7 +457,7 @@ fn check_rate(rate_hz: Option<f64>) -> Result<()> {
 
 /// A number for a message: plain when moderate, `1.234568e300` style when very large or
 /// very small, so no message carries hundreds of digits.
-pub fn compact_number(value: f64) -> String {
+pub(crate) fn compact_number(value: f64) -> String {
     let magnitude = value.abs();
     if value == 0.0 || !value.is_finite() || (1e-4..1e9).contains(&magnitude) {
         format!("{value}")

@@ -18,7 +18,7 @@
 //! Supported: 1-D and 2-D arrays of int16, int32, float32, float64 in either byte order.
 //! Refused with a one-line reason: Fortran order, object and structured arrays, other
 //! dtypes, other ranks, an empty array. A body shorter than the shape promises is read as
-//! far as it goes and flagged as truncated ([`ReaderStats::truncated`]).
+//! far as it goes and flagged as truncated ([`super::ReaderStats::truncated`]).
 
 use std::fs::File;
 use std::io::{self, Read};
@@ -30,7 +30,7 @@ use super::raw::{MAX_CHANNELS, RawFormat, RawReader};
 use super::{AcquireError, Endian, Result, SampleFormat, SourceConfig};
 
 /// The six magic bytes that open every `.npy` file.
-pub const MAGIC: &[u8; 6] = b"\x93NUMPY";
+pub(crate) const MAGIC: &[u8; 6] = b"\x93NUMPY";
 
 /// Longest header accepted (NumPy itself limits headers to 10 000 bytes unless told
 /// otherwise; 1 MiB leaves room while keeping a lying length harmless).
@@ -55,7 +55,7 @@ pub struct NpyHeader {
 
 impl NpyHeader {
     /// Bytes the array data should occupy according to the shape.
-    pub fn data_bytes(&self) -> u64 {
+    pub(crate) fn data_bytes(&self) -> u64 {
         self.samples
             .saturating_mul(self.channels as u64)
             .saturating_mul(self.sample_format.bytes() as u64)

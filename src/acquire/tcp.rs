@@ -32,7 +32,7 @@ pub const FIRST_BACKOFF: Duration = Duration::from_millis(100);
 pub const MAX_BACKOFF: Duration = Duration::from_secs(2);
 /// Silence after which TCP keepalive probes start (then every 5 s on Linux and macOS, as
 /// many probes as the system's default before the connection is declared dead).
-pub const KEEPALIVE_IDLE: Duration = Duration::from_secs(10);
+pub(crate) const KEEPALIVE_IDLE: Duration = Duration::from_secs(10);
 
 /// Turns TCP keepalive on (best effort: a platform that refuses it only loses the probes).
 fn set_keepalive(stream: &TcpStream) {

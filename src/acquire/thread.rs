@@ -200,7 +200,7 @@ impl Acquisition {
 
     /// Hands a block back once it has been used, so the thread reads the next one into it
     /// instead of allocating and copying (optional; a full return queue drops it).
-    pub fn recycle(&self, block: Vec<f64>) {
+    pub(crate) fn recycle(&self, block: Vec<f64>) {
         let _ = self.recycle.try_send(block);
     }
 

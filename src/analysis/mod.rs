@@ -68,13 +68,91 @@ pub struct AnalysisOptions {
     pub rms_band_hz: Option<(f64, f64)>,
 }
 
-/// Why an analysis could not run at all.
+/// Why an analysis could not run at all. Messages name quantities ("the mode band"), never
+/// command-line options: the window shows them too. The CLI adds the option's name to a
+/// [`AnalysisError::Setting`] (`cli::option_of`).
 #[derive(Debug, thiserror::Error)]
 #[non_exhaustive]
 pub enum AnalysisError {
-    /// A physically impossible or inconsistent option (message names it).
+    /// A physically impossible or inconsistent input (the message names it).
     #[error("{0}")]
     Input(String),
+    /// An impossible value or combination of one analysis setting.
+    #[error("{message}")]
+    Setting {
+        /// The setting at fault.
+        setting: Setting,
+        /// What is wrong, in words.
+        message: String,
+    },
+}
+
+/// An analysis setting, as an error names it: each face says it its own way (the CLI by its
+/// option, the window by its field).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[non_exhaustive]
+pub enum Setting {
+    /// [`AnalysisOptions::mass_kg`].
+    Mass,
+    /// [`AnalysisOptions::mass_uncertainty_kg`].
+    MassUncertainty,
+    /// [`AnalysisOptions::bath_temperature_k`].
+    BathTemperature,
+    /// [`AnalysisOptions::bath_temperature_uncertainty_k`].
+    BathTemperatureUncertainty,
+    /// [`AnalysisOptions::m_per_v`].
+    MPerV,
+    /// [`AnalysisOptions::tone_frequency_hz`].
+    ToneFrequency,
+    /// [`AnalysisOptions::tone_rms_m`].
+    ToneRms,
+    /// [`AnalysisOptions::pm_depth_rad`].
+    PmDepth,
+    /// [`AnalysisOptions::freq_pull_hz_per_m`].
+    FreqPull,
+    /// [`AnalysisOptions::sideband_imbalance`].
+    SidebandImbalance,
+    /// [`AnalysisOptions::imbalance_tones_hz`].
+    ImbalanceTones,
+    /// [`AnalysisOptions::peak_threshold_db`].
+    PeakThreshold,
+    /// [`AnalysisOptions::carrier_hz`].
+    Carrier,
+    /// [`AnalysisOptions::lo_above`].
+    LoSide,
+    /// [`AnalysisOptions::mode_band_hz`].
+    ModeBand,
+    /// [`AnalysisOptions::rms_band_hz`].
+    RmsBand,
+}
+
+impl Setting {
+    /// The quantity in words, as messages name it ("the effective mass (kg)").
+    pub fn name(self) -> &'static str {
+        match self {
+            Self::Mass => "the effective mass (kg)",
+            Self::MassUncertainty => "the 1σ of the effective mass (kg)",
+            Self::BathTemperature => "the bath temperature (K)",
+            Self::BathTemperatureUncertainty => "the 1σ of the bath temperature (K)",
+            Self::MPerV => "the calibration (m/V)",
+            Self::ToneFrequency => "the tone frequency",
+            Self::ToneRms => "the tone's rms displacement (m)",
+            Self::PmDepth => "the phase-modulation depth (rad)",
+            Self::FreqPull => "the frequency pull",
+            Self::SidebandImbalance => "the sideband imbalance",
+            Self::ImbalanceTones => "the imbalance tones",
+            Self::PeakThreshold => "the peak threshold",
+            Self::Carrier => "the carrier",
+            Self::LoSide => "the LO side",
+            Self::ModeBand => "the mode band",
+            Self::RmsBand => "the rms band",
+        }
+    }
+}
+
+/// An [`AnalysisError::Setting`] of `setting`.
+fn bad(setting: Setting, message: String) -> AnalysisError {
+    AnalysisError::Setting { setting, message }
 }
 
 /// Runs the whole analysis on one spectrum.
@@ -373,15 +451,25 @@ pub(crate) fn input(e: PhysicsError) -> AnalysisError {
     AnalysisError::Input(e.to_string())
 }
 
-fn positive(name: &str, v: Option<f64>) -> Result<(), AnalysisError> {
+fn positive(setting: Setting, v: Option<f64>) -> Result<(), AnalysisError> {
     match v {
-        Some(x) if !(x.is_finite() && x > 0.0) => Err(AnalysisError::Input(format!(
-            "{name} must be a positive finite number, got {x}"
-        ))),
+        Some(x) if !(x.is_finite() && x > 0.0) => Err(bad(
+            setting,
+            format!(
+                "{} must be a positive finite number, got {x}",
+                setting.name()
+            ),
+        )),
         _ => Ok(()),
     }
 }
 
+/// Checks the options against the spectrum: the one validation of the analysis settings
+/// (the CLI and the window both get these errors).
+///
+/// # Errors
+/// [`AnalysisError::Setting`] naming the setting at fault; [`AnalysisError::Input`] for an
+/// unusable spectrum.
 pub(crate) fn validate(
     spectrum: &Spectrum,
     options: &AnalysisOptions,
@@ -396,59 +484,67 @@ pub(crate) fn validate(
             "the spectrum is empty or its resolution is not a positive number".into(),
         ));
     }
-    positive("--mass (kg)", options.mass_kg)?;
-    positive("--bath-temperature (K)", options.bath_temperature_k)?;
-    for (name, v) in [
-        ("--mass-uncertainty (kg)", options.mass_uncertainty_kg),
+    positive(Setting::Mass, options.mass_kg)?;
+    positive(Setting::BathTemperature, options.bath_temperature_k)?;
+    for (setting, v) in [
+        (Setting::MassUncertainty, options.mass_uncertainty_kg),
         (
-            "--bath-temperature-uncertainty (K)",
+            Setting::BathTemperatureUncertainty,
             options.bath_temperature_uncertainty_k,
         ),
     ] {
         if let Some(x) = v
             && !(x.is_finite() && x >= 0.0)
         {
-            return Err(AnalysisError::Input(format!(
-                "{name} must be a finite number ≥ 0, got {x}"
-            )));
+            return Err(bad(
+                setting,
+                format!("{} must be a finite number ≥ 0, got {x}", setting.name()),
+            ));
         }
     }
-    positive("--m-per-v", options.m_per_v)?;
-    positive("--tone-rms-m", options.tone_rms_m)?;
-    positive("--pm-depth (rad)", options.pm_depth_rad)?;
-    positive("sideband imbalance", options.sideband_imbalance)?;
+    positive(Setting::MPerV, options.m_per_v)?;
+    positive(Setting::ToneRms, options.tone_rms_m)?;
+    positive(Setting::PmDepth, options.pm_depth_rad)?;
+    positive(Setting::SidebandImbalance, options.sideband_imbalance)?;
     if let Some(g) = options.freq_pull_hz_per_m
         && !(g.is_finite() && g != 0.0)
     {
-        return Err(AnalysisError::Input(format!(
-            "--freq-pull must be a non-zero finite number of Hz/m, got {g}"
-        )));
+        return Err(bad(
+            Setting::FreqPull,
+            format!("the frequency pull must be a non-zero finite number of Hz/m, got {g}"),
+        ));
     }
     if let Some(t) = options.peak_threshold_db
         && !t.is_finite()
     {
-        return Err(AnalysisError::Input(format!(
-            "peak threshold must be finite, got {t}"
-        )));
+        return Err(bad(
+            Setting::PeakThreshold,
+            format!("the peak threshold must be finite, got {t}"),
+        ));
     }
     let nyquist = spectrum.resolution_hz * (spectrum.len() - 1) as f64;
+    let outside = |what: &str, f: f64| {
+        format!(
+            "{what} {} Hz lies outside the spectrum (0 to {} Hz)",
+            crate::acquire::compact_number(f),
+            crate::acquire::compact_number(nyquist)
+        )
+    };
     if let Some(f) = options.tone_frequency_hz
         && !(f.is_finite() && f > 0.0 && f <= nyquist)
     {
-        return Err(AnalysisError::Input(format!(
-            "--tone-freq {} Hz lies outside the spectrum (0 to {} Hz)",
-            crate::acquire::compact_number(f),
-            crate::acquire::compact_number(nyquist)
-        )));
+        return Err(bad(
+            Setting::ToneFrequency,
+            outside("the tone frequency", f),
+        ));
     }
     if let Some((red, blue)) = options.imbalance_tones_hz {
         for f in [red, blue] {
             if !(f.is_finite() && f > 0.0 && f <= nyquist) {
-                return Err(AnalysisError::Input(format!(
-                    "--imbalance-tones: {} Hz lies outside the spectrum (0 to {} Hz)",
-                    crate::acquire::compact_number(f),
-                    crate::acquire::compact_number(nyquist)
-                )));
+                return Err(bad(
+                    Setting::ImbalanceTones,
+                    outside("the imbalance tone at", f),
+                ));
             }
         }
     }
@@ -456,70 +552,74 @@ pub(crate) fn validate(
         && options.tone_rms_m.is_none()
         && (options.pm_depth_rad.is_none() || options.freq_pull_hz_per_m.is_none())
     {
-        return Err(AnalysisError::Input(
-            "--tone-freq needs --tone-rms-m, or --pm-depth with --freq-pull".into(),
+        return Err(bad(
+            Setting::ToneRms,
+            "a calibration tone needs its rms displacement, or the phase-modulation depth with the frequency pull".into(),
         ));
     }
     if (options.tone_rms_m.is_some() || options.pm_depth_rad.is_some())
         && options.tone_frequency_hz.is_none()
     {
-        return Err(AnalysisError::Input(
-            "--tone-rms-m / --pm-depth need --tone-freq".into(),
+        return Err(bad(
+            Setting::ToneFrequency,
+            "the tone's rms displacement or phase-modulation depth needs the tone frequency".into(),
         ));
     }
     if options.pm_depth_rad.is_some() != options.freq_pull_hz_per_m.is_some() {
-        return Err(AnalysisError::Input(
-            "--pm-depth and --freq-pull go together".into(),
+        return Err(bad(
+            Setting::PmDepth,
+            "the phase-modulation depth and the frequency pull go together".into(),
         ));
     }
     if let Some(fc) = options.carrier_hz {
         if options.lo_above.is_none() {
-            return Err(AnalysisError::Input(
-                "--carrier needs --lo-side above|below".into(),
+            return Err(bad(
+                Setting::LoSide,
+                "a heterodyne carrier needs the LO side (above or below the laser)".into(),
             ));
         }
         if !(fc.is_finite() && fc > 0.0 && fc < nyquist) {
-            return Err(AnalysisError::Input(format!(
-                "--carrier {} Hz lies outside the spectrum (0 to {} Hz)",
-                crate::acquire::compact_number(fc),
-                crate::acquire::compact_number(nyquist)
-            )));
+            return Err(bad(Setting::Carrier, outside("the carrier", fc)));
         }
         if options.mode_band_hz.is_none() {
-            return Err(AnalysisError::Input(
-                "--carrier needs --mode-band LO:HI (the band of f_m, offsets from the carrier)"
-                    .into(),
+            return Err(bad(
+                Setting::ModeBand,
+                "a heterodyne carrier needs the mode band (the band of f_m, as offsets from the carrier)".into(),
             ));
         }
-    } else if options.lo_above.is_some() {
-        // Harmless, but say nothing: --lo-side alone has no effect.
     }
     if let Some((lo, hi)) = options.rms_band_hz {
         if !(lo.is_finite() && hi.is_finite() && lo >= 0.0 && lo < hi) {
-            return Err(AnalysisError::Input(format!(
-                "--rms-band must be LO:HI in Hz with 0 <= LO < HI, got {lo}:{hi}"
-            )));
+            return Err(bad(
+                Setting::RmsBand,
+                format!("the rms band must be LO:HI in Hz with 0 <= LO < HI, got {lo}:{hi}"),
+            ));
         }
         let half_rate = 0.5 * spectrum.sample_rate_hz;
         if hi > half_rate {
-            return Err(AnalysisError::Input(format!(
-                "--rms-band {}:{} Hz reaches above the Nyquist frequency {} Hz",
-                crate::acquire::compact_number(lo),
-                crate::acquire::compact_number(hi),
-                crate::acquire::compact_number(half_rate)
-            )));
+            return Err(bad(
+                Setting::RmsBand,
+                format!(
+                    "the rms band {}:{} Hz reaches above the Nyquist frequency {} Hz",
+                    crate::acquire::compact_number(lo),
+                    crate::acquire::compact_number(hi),
+                    crate::acquire::compact_number(half_rate)
+                ),
+            ));
         }
         units::band_rms(spectrum, lo, hi)
-            .map_err(|e| AnalysisError::Input(format!("--rms-band: {e}")))?;
+            .map_err(|e| bad(Setting::RmsBand, format!("the rms band: {e}")))?;
     }
     if let Some((lo, hi)) = options.mode_band_hz {
         if !(lo.is_finite() && hi.is_finite() && lo < hi) {
-            return Err(AnalysisError::Input(format!(
-                "--mode-band must be LO:HI with LO < HI, got {lo}:{hi}"
-            )));
+            return Err(bad(
+                Setting::ModeBand,
+                format!("the mode band must be LO:HI with LO < HI, got {lo}:{hi}"),
+            ));
         }
         if options.carrier_hz.is_none() {
-            fit::band_bins(spectrum, (lo, hi), "--mode-band").map_err(input)?;
+            fit::band_bins(spectrum, (lo, hi), "the mode band")
+                .map_err(|e| bad(Setting::ModeBand, e.to_string()))?;
         }
     }
     Ok(())
@@ -876,7 +976,10 @@ mod tests {
         ];
         for o in bad {
             assert!(
-                matches!(analyze(&s, &o), Err(AnalysisError::Input(_))),
+                matches!(
+                    analyze(&s, &o),
+                    Err(AnalysisError::Input(_) | AnalysisError::Setting { .. })
+                ),
                 "{o:?}"
             );
         }
@@ -889,7 +992,17 @@ mod tests {
             },
         )
         .unwrap_err();
-        assert_eq!(e.to_string(), "--carrier needs --lo-side above|below");
+        assert_eq!(
+            e.to_string(),
+            "a heterodyne carrier needs the LO side (above or below the laser)"
+        );
+        assert!(matches!(
+            e,
+            AnalysisError::Setting {
+                setting: Setting::LoSide,
+                ..
+            }
+        ));
     }
 
     #[test]

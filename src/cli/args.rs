@@ -11,7 +11,7 @@ use crate::acquire::{Endian, SampleFormat};
 use crate::dsp::{Detrend, WindowKind};
 
 /// Default segment length when the record length is not known in advance (samples).
-pub const DEFAULT_SEGMENT: usize = crate::dsp::DEFAULT_SEGMENT;
+pub(crate) const DEFAULT_SEGMENT: usize = crate::dsp::DEFAULT_SEGMENT;
 
 const LONG_ABOUT: &str = "\
 stillpoint turns a photodetector voltage (a live stream or a recording) into a calibrated \
@@ -345,7 +345,7 @@ pub struct WelchArgs {
 }
 
 /// Ids of the Welch options (to tell which ones were given on the command line).
-pub const WELCH_IDS: &[&str] = &[
+pub(crate) const WELCH_IDS: &[&str] = &[
     "segment",
     "overlap",
     "window",
@@ -356,7 +356,7 @@ pub const WELCH_IDS: &[&str] = &[
 ];
 
 /// Ids of the calibration, mode and heterodyne options.
-pub const ANALYSIS_IDS: &[&str] = &[
+pub(crate) const ANALYSIS_IDS: &[&str] = &[
     "m_per_v",
     "tone_freq",
     "tone_rms_m",
@@ -656,7 +656,7 @@ pub struct SynthArgs {
 }
 
 /// Long help of `synth`: the scenarios this build knows.
-pub fn synth_long_about() -> String {
+pub(crate) fn synth_long_about() -> String {
     let mut text = String::from(
         "Writes an invented detector-voltage record of a named scenario as WAV, and beside it \
          a .truth.json sidecar with every true value (mode frequency, linewidth, area, \

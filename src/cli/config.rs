@@ -3,7 +3,7 @@
 //! Shared by the headless commands and `monitor` (the window).
 
 use crate::acquire::{SourceConfig, SourceSpec};
-use crate::analysis::AnalysisOptions;
+use crate::analysis::{AnalysisOptions, Setting};
 use crate::dsp::{Averaging, WelchConfig};
 
 use super::InputError;
@@ -108,14 +108,14 @@ pub fn source_config(args: &SourceArgs) -> Result<SourceConfig> {
 /// Longest segment accepted (2²⁷ samples: ~3 GB of working buffers).
 pub const MAX_SEGMENT: usize = 1 << 27;
 
-/// The default segment: [`DEFAULT_SEGMENT`], or the largest power of two ≤ L/8 when the
+/// The default segment: [`crate::dsp::DEFAULT_SEGMENT`], or the largest power of two ≤ L/8 when the
 /// record length L is known and shorter (never below 2).
 pub fn default_segment(record_samples: Option<u64>) -> usize {
     crate::dsp::default_segment(record_samples)
 }
 
 /// Worker threads for the averager: one per core (at most 64).
-pub fn worker_threads() -> usize {
+pub(crate) fn worker_threads() -> usize {
     std::thread::available_parallelism()
         .map_or(1, std::num::NonZero::get)
         .min(64)
@@ -253,6 +253,30 @@ pub fn analysis_options(
         sloped_background: calibration.sloped_background,
         ..AnalysisOptions::default()
     })
+}
+
+/// The command-line option of an analysis setting, which the CLI puts before a
+/// [`crate::analysis::AnalysisError::Setting`] message (the library names quantities, not
+/// options).
+pub(crate) fn option_of(setting: Setting) -> &'static str {
+    match setting {
+        Setting::Mass => "--mass",
+        Setting::MassUncertainty => "--mass-uncertainty",
+        Setting::BathTemperature => "--bath-temperature",
+        Setting::BathTemperatureUncertainty => "--bath-temperature-uncertainty",
+        Setting::MPerV => "--m-per-v",
+        Setting::ToneFrequency => "--tone-freq",
+        Setting::ToneRms => "--tone-rms-m",
+        Setting::PmDepth => "--pm-depth",
+        Setting::FreqPull => "--freq-pull",
+        Setting::SidebandImbalance => "--sideband-imbalance",
+        Setting::ImbalanceTones => "--imbalance-tones",
+        Setting::PeakThreshold => "--peak-threshold",
+        Setting::Carrier => "--carrier",
+        Setting::LoSide => "--lo-side",
+        Setting::ModeBand => "--mode-band",
+        Setting::RmsBand => "--rms-band",
+    }
 }
 
 #[cfg(test)]

@@ -6,7 +6,7 @@
 //! blocks (it is one atomic load). [`stop_reason`] names the signal for messages. A *second*
 //! SIGINT or SIGTERM ends the process at once (status 130 or 143), for a run that does not
 //! react; its temporary output file is then cleaned up by the next run writing the same
-//! output (see [`super::output`]).
+//! output (see `cli/output.rs`).
 //!
 //! The signal handlers come from `signal-hook` (they only store to atomics, which is
 //! async-signal-safe); this module has no unsafe code.
@@ -15,9 +15,9 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Arc, OnceLock};
 
 /// Exit status of a run stopped by SIGINT before it had anything to write (128 + 2).
-pub const SIGINT_STATUS: u8 = 130;
+pub(crate) const SIGINT_STATUS: u8 = 130;
 /// Exit status of a run stopped by SIGTERM before it had anything to write (128 + 15).
-pub const SIGTERM_STATUS: u8 = 143;
+pub(crate) const SIGTERM_STATUS: u8 = 143;
 
 struct Flags {
     /// Any stop signal seen (a second one then exits at once).
@@ -32,7 +32,7 @@ static FLAGS: OnceLock<Option<Flags>> = OnceLock::new();
 
 /// Installs the SIGINT/SIGTERM handlers (once per process; later calls do nothing). Returns
 /// false if the platform refused them (the signals then keep their default action).
-pub fn install() -> bool {
+pub(crate) fn install() -> bool {
     FLAGS.get_or_init(|| register().ok()).is_some()
 }
 
@@ -58,7 +58,7 @@ fn register() -> std::io::Result<Flags> {
 }
 
 /// True once SIGINT or SIGTERM has arrived (after [`install`]).
-pub fn stop_requested() -> bool {
+pub(crate) fn stop_requested() -> bool {
     FLAGS
         .get()
         .and_then(Option::as_ref)
@@ -66,7 +66,7 @@ pub fn stop_requested() -> bool {
 }
 
 /// The signal that asked for the stop (`"SIGINT"`, `"SIGTERM"`), if any.
-pub fn stop_reason() -> Option<&'static str> {
+pub(crate) fn stop_reason() -> Option<&'static str> {
     let flags = FLAGS.get().and_then(Option::as_ref)?;
     if flags.int.load(Ordering::SeqCst) {
         Some("SIGINT")
@@ -81,7 +81,7 @@ pub fn stop_reason() -> Option<&'static str> {
 /// 130 (SIGINT) or 143 (SIGTERM), as a shell does for a process killed by that signal.
 #[derive(Debug, thiserror::Error)]
 #[error("stopped by {signal} {what}; nothing was written")]
-pub struct Interrupted {
+pub(crate) struct Interrupted {
     /// `"SIGINT"` or `"SIGTERM"`.
     pub signal: &'static str,
     /// What was going on ("while reading a recording", "before one segment was complete").

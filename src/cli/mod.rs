@@ -105,7 +105,12 @@ fn one_line(err: &anyhow::Error) -> String {
     let mut parts: Vec<String> = Vec::new();
     for cause in err.chain() {
         let text = cause.to_string().replace(['\n', '\r'], " ");
-        let text = text.trim().to_string();
+        let mut text = text.trim().to_string();
+        // The library names the setting; the command line names its option too.
+        if let Some(AnalysisError::Setting { setting, .. }) = cause.downcast_ref::<AnalysisError>()
+        {
+            text = format!("{}: {text}", config::option_of(*setting));
+        }
         if text.is_empty() {
             continue;
         }

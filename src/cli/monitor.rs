@@ -32,7 +32,7 @@ fn any_given(matches: Option<&ArgMatches>, ids: &[&str]) -> bool {
 ///
 /// # Errors
 /// The window could not be created, or this build has none.
-pub fn run_demo(window: &WindowOptions) -> Result<ExitCode> {
+pub(crate) fn run_demo(window: &WindowOptions) -> Result<ExitCode> {
     #[cfg(feature = "gui")]
     {
         let mut options = crate::ui::MonitorOptions::demo();

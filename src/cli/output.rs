@@ -26,7 +26,7 @@ use super::{InputError, note, warn};
 /// # Errors
 /// The output folder does not exist or is not writable, or `write` fails; the temporary
 /// file is removed and an existing `path` is left untouched.
-pub fn write_atomically(
+pub(crate) fn write_atomically(
     path: &Path,
     write: impl FnOnce(&mut dyn Write) -> io::Result<()>,
 ) -> Result<()> {
@@ -88,7 +88,7 @@ fn is_fifo(path: &Path) -> bool {
 ///
 /// # Errors
 /// One line naming the output and what is wrong with it.
-pub fn check_output_path(path: &Path) -> Result<()> {
+pub(crate) fn check_output_path(path: &Path) -> Result<()> {
     if path.as_os_str() == "-" {
         return Ok(());
     }
@@ -145,7 +145,7 @@ pub fn check_output_path(path: &Path) -> Result<()> {
 ///
 /// # Errors
 /// As [`check_output_path`]; the output is the input.
-pub fn check_output_for(path: &Path, source: &str) -> Result<()> {
+pub(crate) fn check_output_for(path: &Path, source: &str) -> Result<()> {
     check_output_path(path)?;
     if path.as_os_str() == "-" {
         return Ok(());

@@ -34,7 +34,7 @@ const MEMORY_WARN_BYTES: f64 = 2.0 * (1u64 << 30) as f64;
 
 /// A finished spectrum and what happened on the way.
 #[derive(Debug)]
-pub struct SpectrumRun {
+pub(crate) struct SpectrumRun {
     /// The averaged PSD (V²/Hz), every value finite.
     pub spectrum: Spectrum,
     /// One line per problem with the input (truncation, skipped segments, clipping).
@@ -57,7 +57,7 @@ pub struct SpectrumRun {
 /// # Errors
 /// Bad source options, unreadable source, too little data for one segment, no usable
 /// segment, a non-finite spectrum, an interruption before one segment was averaged.
-pub fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<SpectrumRun> {
+pub(crate) fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<SpectrumRun> {
     let source_config = config::source_config(source)?;
     if source_config.cross_channel.is_some() {
         // Two channels take their own path (`cli::cross`); this one delivers one channel.
@@ -683,7 +683,7 @@ pub(super) fn reader_warnings(stats: &ReaderStats, skipped_segments: usize) -> V
 }
 
 /// A progress bar on stderr that appears only on a terminal and only after ~1 s.
-pub struct Progress {
+pub(crate) struct Progress {
     bar: ProgressBar,
     started: Instant,
     visible: std::cell::Cell<bool>,

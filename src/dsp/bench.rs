@@ -42,7 +42,7 @@ pub struct BenchReport {
 }
 
 /// Deterministic pseudo-random samples in [−1, 1) (splitmix64).
-pub fn synthetic_samples(len: usize, seed: u64) -> Vec<f64> {
+pub(crate) fn synthetic_samples(len: usize, seed: u64) -> Vec<f64> {
     let mut s = seed;
     (0..len)
         .map(|_| {
@@ -65,7 +65,7 @@ fn record_len(config: &WelchConfig) -> usize {
 ///
 /// # Errors
 /// Invalid settings.
-pub fn welch_throughput(
+pub(crate) fn welch_throughput(
     config: &WelchConfig,
     duration_s: f64,
     threads: usize,
@@ -111,7 +111,7 @@ pub fn welch_throughput(
 ///
 /// # Errors
 /// Invalid settings.
-pub fn fft_floor(config: &WelchConfig, duration_s: f64) -> Result<Throughput> {
+pub(crate) fn fft_floor(config: &WelchConfig, duration_s: f64) -> Result<Throughput> {
     config.validate()?;
     let n = config.segment;
     let hop = config.hop();

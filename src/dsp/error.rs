@@ -24,12 +24,6 @@ pub enum DspError {
         /// Segments skipped.
         skipped: usize,
     },
-    /// A displacement unit was asked for without a calibration.
-    #[error("{unit} needs a calibration (metres per volt), but none is set")]
-    Uncalibrated {
-        /// The unit's short name.
-        unit: &'static str,
-    },
     /// A frequency band or tone frequency outside the spectrum, or an empty band.
     #[error("{0}")]
     Band(String),

@@ -11,7 +11,7 @@
 //!   fit-error inflation factor.
 //! - [`welch`]: [`Welch`] (push blocks of any size; linear, exponential, median, max-hold;
 //!   restart; NaN/Inf segments skipped; optional worker threads) and the [`Spectrum`] it fills.
-//! - [`units`]: [`units::DensityUnit`] conversions, band variance/rms, cumulative rms.
+//! - [`units`]: the [`units::DensityUnit`] choices, band variance/rms, cumulative rms.
 //! - [`cross`]: [`cross::CrossWelch`], cross-spectral density and coherence of two
 //!   channels (scipy.signal.csd / coherence conventions, METHODS.md §10).
 //! - [`median`](mod@median): numpy's median, in place.

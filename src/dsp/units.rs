@@ -31,62 +31,6 @@ pub enum DensityUnit {
     DbM2PerHz,
 }
 
-impl DensityUnit {
-    /// Short unit text: `V²/Hz`, `V/√Hz`, `m²/Hz`, `m/√Hz`, `dB re 1 V²/Hz`, `dB re 1 m²/Hz`.
-    pub fn symbol(self) -> &'static str {
-        match self {
-            Self::V2PerHz => "V²/Hz",
-            Self::VPerRtHz => "V/√Hz",
-            Self::M2PerHz => "m²/Hz",
-            Self::MPerRtHz => "m/√Hz",
-            Self::DbV2PerHz => "dB re 1 V²/Hz",
-            Self::DbM2PerHz => "dB re 1 m²/Hz",
-        }
-    }
-
-    /// True for the units that need metres per volt.
-    pub fn needs_calibration(self) -> bool {
-        matches!(self, Self::M2PerHz | Self::MPerRtHz | Self::DbM2PerHz)
-    }
-
-    /// Converts one PSD value (V²/Hz) into this unit.
-    ///
-    /// # Errors
-    /// [`DspError::Uncalibrated`] for a displacement unit without a finite, positive
-    /// `m_per_v`.
-    pub fn from_psd_v2_per_hz(self, psd_v2_per_hz: f64, m_per_v: Option<f64>) -> Result<f64> {
-        let gain2 = if self.needs_calibration() {
-            match m_per_v {
-                Some(c) if c.is_finite() && c > 0.0 => c * c,
-                _ => {
-                    return Err(DspError::Uncalibrated {
-                        unit: self.symbol(),
-                    });
-                }
-            }
-        } else {
-            1.0
-        };
-        let psd = psd_v2_per_hz.max(0.0) * gain2;
-        Ok(match self {
-            Self::V2PerHz | Self::M2PerHz => psd,
-            Self::VPerRtHz | Self::MPerRtHz => psd.sqrt(),
-            Self::DbV2PerHz | Self::DbM2PerHz => 10.0 * psd.max(f64::MIN_POSITIVE).log10(),
-        })
-    }
-
-    /// Converts a whole PSD (V²/Hz) into this unit.
-    ///
-    /// # Errors
-    /// As [`DensityUnit::from_psd_v2_per_hz`].
-    pub fn convert(self, psd_v2_per_hz: &[f64], m_per_v: Option<f64>) -> Result<Vec<f64>> {
-        psd_v2_per_hz
-            .iter()
-            .map(|&p| self.from_psd_v2_per_hz(p, m_per_v))
-            .collect()
-    }
-}
-
 /// Bin range `[first, last]` whose centre frequencies lie in `[lo_hz, hi_hz]`
 /// (first = ⌈lo/Δf⌉, last = ⌊hi/Δf⌋, clipped to the spectrum).
 ///
@@ -118,7 +62,7 @@ pub fn band_bins(spectrum: &Spectrum, lo_hz: f64, hi_hz: f64) -> Result<(usize, 
 ///
 /// # Errors
 /// [`DspError::Band`] if the band is not two finite frequencies with lo ≤ hi, or holds no bin.
-pub fn band_variance(spectrum: &Spectrum, lo_hz: f64, hi_hz: f64) -> Result<f64> {
+pub(crate) fn band_variance(spectrum: &Spectrum, lo_hz: f64, hi_hz: f64) -> Result<f64> {
     let (first, last) = band_bins(spectrum, lo_hz, hi_hz)?;
     let sum: f64 = spectrum
         .psd_v2_per_hz
@@ -133,13 +77,13 @@ pub fn band_variance(spectrum: &Spectrum, lo_hz: f64, hi_hz: f64) -> Result<f64>
 ///
 /// # Errors
 /// As [`band_variance`].
-pub fn band_rms(spectrum: &Spectrum, lo_hz: f64, hi_hz: f64) -> Result<f64> {
+pub(crate) fn band_rms(spectrum: &Spectrum, lo_hz: f64, hi_hz: f64) -> Result<f64> {
     Ok(band_variance(spectrum, lo_hz, hi_hz)?.max(0.0).sqrt())
 }
 
 /// Direction of a cumulative rms.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
-pub enum Cumulation {
+pub(crate) enum Cumulation {
     /// `rms_k = √(Σ_{j ≥ k} PSD_j Δf)`: rms of everything at and above f_k (falls with
     /// frequency; common practice in vibration and displacement-noise plots).
     #[default]
@@ -150,7 +94,7 @@ pub enum Cumulation {
 
 /// Cumulative rms per bin (V), in the given direction (see [`Cumulation`]). Same length as
 /// the spectrum; the first (from-high) or last (from-low) value is the total rms.
-pub fn cumulative_rms(spectrum: &Spectrum, direction: Cumulation) -> Vec<f64> {
+pub(crate) fn cumulative_rms(spectrum: &Spectrum, direction: Cumulation) -> Vec<f64> {
     let df = spectrum.resolution_hz;
     let mut out = vec![0.0; spectrum.len()];
     let mut acc = 0.0;
@@ -192,43 +136,6 @@ mod tests {
             enbw_hz: 1.5 * df,
             psd_v2_per_hz: vec![level; bins],
         }
-    }
-
-    #[test]
-    fn unit_conversions() {
-        let p = 4e-6;
-        let c = Some(2e-9);
-        let close = |a: f64, b: f64| (a - b).abs() <= 1e-12 * b.abs();
-        assert!(close(
-            DensityUnit::V2PerHz.from_psd_v2_per_hz(p, None).unwrap(),
-            p
-        ));
-        assert!(close(
-            DensityUnit::VPerRtHz.from_psd_v2_per_hz(p, None).unwrap(),
-            2e-3
-        ));
-        assert!(close(
-            DensityUnit::M2PerHz.from_psd_v2_per_hz(p, c).unwrap(),
-            1.6e-23
-        ));
-        assert!(close(
-            DensityUnit::MPerRtHz.from_psd_v2_per_hz(p, c).unwrap(),
-            4e-12
-        ));
-        let db = DensityUnit::DbV2PerHz.from_psd_v2_per_hz(p, None).unwrap();
-        assert!(close(db, 10.0 * 4e-6f64.log10()));
-        let dbm = DensityUnit::DbM2PerHz.from_psd_v2_per_hz(p, c).unwrap();
-        assert!(close(dbm, 10.0 * 1.6e-23f64.log10()));
-        assert!(DensityUnit::M2PerHz.from_psd_v2_per_hz(p, None).is_err());
-        assert!(
-            DensityUnit::MPerRtHz
-                .from_psd_v2_per_hz(p, Some(f64::NAN))
-                .is_err()
-        );
-        let zero = DensityUnit::DbV2PerHz
-            .from_psd_v2_per_hz(0.0, None)
-            .unwrap();
-        assert!(zero.is_finite() && zero < -3000.0);
     }
 
     #[test]

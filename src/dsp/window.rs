@@ -42,7 +42,7 @@ pub enum WindowKind {
 
 impl WindowKind {
     /// All windows, in menu order.
-    pub const ALL: [Self; 5] = [
+    pub(crate) const ALL: [Self; 5] = [
         Self::Rectangular,
         Self::Hann,
         Self::Hamming,
@@ -79,7 +79,7 @@ impl WindowKind {
 
     /// Half-width M (bins) of the sum that reads a tone's power robustly, Σ_{|k−k₀|≤M}
     /// (METHODS.md §1: 3 for Hann and BH92, 5 for the flat-top).
-    pub fn tone_half_width_bins(self) -> usize {
+    pub(crate) fn tone_half_width_bins(self) -> usize {
         match self {
             Self::Rectangular => 3,
             Self::Hann | Self::Hamming | Self::BlackmanHarris => 3,
@@ -108,7 +108,7 @@ impl WindowKind {
 
     /// Number of cosine terms (1 for rectangular … 5 for the flat-top). The periodic window's
     /// DFT is non-zero only in bins |k| < this number.
-    pub fn terms(self) -> usize {
+    pub(crate) fn terms(self) -> usize {
         self.coefficients().len()
     }
 
@@ -238,7 +238,7 @@ pub(crate) fn sums(w: &[f64]) -> (f64, f64) {
 }
 
 /// Amplitude response `|Σ_j w_j e^{−2πi j δ/N}| / S₁` in dB at an offset of `delta` bins.
-pub fn amplitude_response_db(w: &[f64], s1: f64, delta: f64) -> f64 {
+pub(crate) fn amplitude_response_db(w: &[f64], s1: f64, delta: f64) -> f64 {
     let n = w.len() as f64;
     let (mut re, mut im) = (0.0, 0.0);
     for (j, &wj) in w.iter().enumerate() {

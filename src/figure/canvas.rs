@@ -9,14 +9,14 @@ use std::fmt::Write as _;
 use ab_glyph::{Font, FontRef, GlyphId, OutlineCurve, ScaleFont};
 
 /// The bundled figure font: a subset of DejaVu Sans (assets/fonts/, see make_subset.py).
-pub const FONT_TTF: &[u8] = include_bytes!("../../assets/fonts/FigureSans.ttf");
+pub(crate) const FONT_TTF: &[u8] = include_bytes!("../../assets/fonts/FigureSans.ttf");
 
 /// Family name the SVG declares for the embedded font.
-pub const FONT_FAMILY: &str = "StillpointFigureSans";
+pub(crate) const FONT_FAMILY: &str = "StillpointFigureSans";
 
 /// An sRGB colour.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct Rgb(pub u8, pub u8, pub u8);
+pub(crate) struct Rgb(pub u8, pub u8, pub u8);
 
 impl Rgb {
     fn hex(self) -> String {
@@ -26,7 +26,7 @@ impl Rgb {
 
 /// How a line is drawn.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub struct Stroke {
+pub(crate) struct Stroke {
     /// Colour.
     pub color: Rgb,
     /// Width in points.
@@ -37,7 +37,7 @@ pub struct Stroke {
 
 /// Horizontal text alignment relative to the anchor point.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Anchor {
+pub(crate) enum Anchor {
     /// The text starts at x.
     Start,
     /// The text is centred on x.
@@ -47,7 +47,7 @@ pub enum Anchor {
 }
 
 /// What a figure is drawn with.
-pub trait Canvas {
+pub(crate) trait Canvas {
     /// A polyline (y down, points).
     fn polyline(&mut self, points: &[(f32, f32)], stroke: Stroke, class: &str);
     /// A rectangle, filled and/or outlined.
@@ -99,7 +99,7 @@ fn layout(text: &str, size: f32) -> (Vec<(GlyphId, f32)>, f32) {
 }
 
 /// Width of `text` at `size` points, in points.
-pub fn text_width(text: &str, size: f32) -> f32 {
+pub(crate) fn text_width(text: &str, size: f32) -> f32 {
     layout(text, size).1
 }
 
@@ -133,7 +133,7 @@ fn base64(bytes: &[u8]) -> String {
 }
 
 /// Writes SVG 1.1.
-pub struct SvgCanvas {
+pub(crate) struct SvgCanvas {
     body: String,
     width_pt: f32,
     height_pt: f32,
@@ -272,7 +272,7 @@ impl Canvas for SvgCanvas {
 }
 
 /// Draws into an RGBA pixmap with tiny-skia.
-pub struct RasterCanvas {
+pub(crate) struct RasterCanvas {
     pixmap: tiny_skia::Pixmap,
     scale: f32,
     mask: Option<tiny_skia::Mask>,

@@ -6,7 +6,7 @@
 //! large and rounded above the units (`(2.35 ± 0.12)×10⁵`).
 
 /// Superscript form of an integer exponent (`-12` → `⁻¹²`).
-pub fn superscript(exponent: i32) -> String {
+pub(crate) fn superscript(exponent: i32) -> String {
     exponent
         .to_string()
         .chars()
@@ -73,7 +73,7 @@ pub fn significant(value: f64, digits: usize) -> String {
 /// the figures ([`with_uncertainty`]) and the window (`model::format::format_uncertain`).
 /// `sigma` must be finite and positive.
 #[allow(clippy::cast_possible_truncation)] // |log10| of a finite f64 is < 400
-pub fn round_to_uncertainty(value: f64, sigma: f64) -> (f64, f64, i32) {
+pub(crate) fn round_to_uncertainty(value: f64, sigma: f64) -> (f64, f64, i32) {
     let mut place = decade(sigma) - 1;
     if (sigma / 10_f64.powi(place)).round() >= 100.0 {
         place += 1;
@@ -88,7 +88,7 @@ pub fn round_to_uncertainty(value: f64, sigma: f64) -> (f64, f64, i32) {
 
 /// `value ± sigma` with σ to two significant digits and the value to the same place;
 /// `value` alone (6 significant digits) when σ is missing, zero or not finite.
-pub fn with_uncertainty(value: f64, sigma: Option<f64>) -> String {
+pub(crate) fn with_uncertainty(value: f64, sigma: Option<f64>) -> String {
     let Some(sigma) = sigma.filter(|s| s.is_finite() && *s > 0.0) else {
         return significant(value, 6);
     };
@@ -118,7 +118,7 @@ pub fn with_uncertainty(value: f64, sigma: Option<f64>) -> String {
 }
 
 /// A frequency axis unit for values up to `max_hz`: (divisor, label).
-pub fn frequency_unit(max_hz: f64) -> (f64, &'static str) {
+pub(crate) fn frequency_unit(max_hz: f64) -> (f64, &'static str) {
     if max_hz >= 2e9 {
         (1e9, "GHz")
     } else if max_hz >= 2e6 {
@@ -135,7 +135,7 @@ pub fn frequency_unit(max_hz: f64) -> (f64, &'static str) {
 /// Spanning a decade or more: powers of ten (every k-th so at most 7 are labelled),
 /// labelled `10ᵏ` (`as_power`) or plainly after dividing by `divisor`. Less than a decade:
 /// 1-2-5 steps chosen like a linear axis, labelled plainly.
-pub fn log_ticks(lo: f64, hi: f64, divisor: f64, as_power: bool) -> Vec<(f64, String)> {
+pub(crate) fn log_ticks(lo: f64, hi: f64, divisor: f64, as_power: bool) -> Vec<(f64, String)> {
     if !(lo > 0.0 && hi > lo && lo.is_finite() && hi.is_finite()) {
         return Vec::new();
     }
@@ -165,7 +165,7 @@ pub fn log_ticks(lo: f64, hi: f64, divisor: f64, as_power: bool) -> Vec<(f64, St
 }
 
 /// "Nice" ticks (1, 2, 5 × 10ᵏ steps) of a linear range, about `target` of them.
-pub fn linear_ticks(lo: f64, hi: f64, target: usize) -> Vec<f64> {
+pub(crate) fn linear_ticks(lo: f64, hi: f64, target: usize) -> Vec<f64> {
     let span = hi - lo;
     if !(span > 0.0 && span.is_finite()) {
         return Vec::new();

@@ -23,8 +23,8 @@ use crate::physics::oscillator::{Oscillator, lorentzian_psd, oscillator_psd};
 use crate::physics::quantum;
 use crate::report::Report;
 
+use canvas::text_width;
 use canvas::{Anchor, Canvas, RasterCanvas, Rgb, Stroke, SvgCanvas};
-pub use canvas::{FONT_TTF, text_width};
 
 /// Why a figure could not be made.
 #[derive(Debug, thiserror::Error)]
@@ -46,7 +46,7 @@ pub type Result<T> = std::result::Result<T, FigureError>;
 
 /// The output format, chosen by extension.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum FigureFormat {
+pub(crate) enum FigureFormat {
     /// Scalable vector graphics (text stays text).
     Svg,
     /// Portable network graphics.
@@ -92,7 +92,7 @@ impl FigureSize {
     }
 
     /// Pixels per point of the PNG.
-    pub fn pixels_per_point(self) -> f32 {
+    pub(crate) fn pixels_per_point(self) -> f32 {
         match self {
             Self::Column => 600.0 / 72.0,
             Self::Slide => 1920.0 / 720.0,
@@ -158,7 +158,7 @@ pub struct Series {
 
 /// Which overlays to draw and over what range (the window passes its current view).
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub struct FigureView {
+pub(crate) struct FigureView {
     /// Frequency range in Hz; `None`: around the fitted mode, else the whole span.
     pub x_range_hz: Option<(f64, f64)>,
     /// Draw the fitted mode.
@@ -225,7 +225,11 @@ impl Figure {
     ///
     /// # Errors
     /// [`FigureError::Empty`] if the range holds no positive finite PSD value.
-    pub fn from_analysis(spectrum: &Spectrum, report: &Report, view: &FigureView) -> Result<Self> {
+    pub(crate) fn from_analysis(
+        spectrum: &Spectrum,
+        report: &Report,
+        view: &FigureView,
+    ) -> Result<Self> {
         let cal = report
             .calibration
             .m_per_v
@@ -374,7 +378,7 @@ impl Figure {
     ///
     /// # Errors
     /// As [`Figure::png`].
-    pub fn render(&self, format: FigureFormat) -> Result<Vec<u8>> {
+    pub(crate) fn render(&self, format: FigureFormat) -> Result<Vec<u8>> {
         match format {
             FigureFormat::Svg => Ok(self.svg().into_bytes()),
             FigureFormat::Png => self.png(),
@@ -649,7 +653,7 @@ fn decimate(
 ///
 /// # Errors
 /// A bad extension, an empty range, a rendering failure.
-pub fn render_for_path(
+pub(crate) fn render_for_path(
     path: &Path,
     spectrum: &Spectrum,
     report: &Report,

@@ -14,7 +14,7 @@ use super::fnv1a64;
 
 /// Failure of an atomic write: the file system, or the caller's writer.
 #[derive(Debug)]
-pub enum AtomicError<E> {
+pub(crate) enum AtomicError<E> {
     /// Creating, syncing or renaming the file failed (or the target exists and overwriting
     /// was not allowed: [`io::ErrorKind::AlreadyExists`]).
     Io(io::Error),
@@ -27,7 +27,7 @@ static TEMP_COUNTER: AtomicU64 = AtomicU64::new(0);
 /// A fully written and fsynced temporary file beside its target, not yet in place. Dropping
 /// it without [`PendingFile::commit`] deletes the temporary file.
 #[derive(Debug)]
-pub struct PendingFile {
+pub(crate) struct PendingFile {
     temp: PathBuf,
     target: PathBuf,
     committed: bool,
@@ -84,7 +84,7 @@ fn temp_path_for(target: &Path) -> PathBuf {
 ///
 /// # Errors
 /// What the file system said (permission denied, read-only, name too long, not a folder).
-pub fn check_can_write(target: &Path) -> io::Result<()> {
+pub(crate) fn check_can_write(target: &Path) -> io::Result<()> {
     match fs::symlink_metadata(target) {
         Ok(_) => {}
         Err(e) if e.kind() == io::ErrorKind::NotFound => {}
@@ -98,7 +98,7 @@ pub fn check_can_write(target: &Path) -> io::Result<()> {
 
 /// A temporary file of an earlier save of some target (see [`stale_temp_files`]).
 #[derive(Debug, Clone, PartialEq, Eq)]
-pub struct StaleTemp {
+pub(crate) struct StaleTemp {
     /// Its path.
     pub path: PathBuf,
     /// The process that wrote it (from its name), if readable.
@@ -108,12 +108,12 @@ pub struct StaleTemp {
 }
 
 /// Temporary files beside `target` left by saves of it (names `PREFIX.PID.….tmp`, see
-/// [`temp_path_for`]), with the process id each name carries. Whether that process still
+/// `temp_path_for`), with the process id each name carries. Whether that process still
 /// runs is for the caller to judge.
 ///
 /// # Errors
 /// The folder cannot be read.
-pub fn stale_temp_files(target: &Path) -> io::Result<Vec<StaleTemp>> {
+pub(crate) fn stale_temp_files(target: &Path) -> io::Result<Vec<StaleTemp>> {
     let Some(name) = target.file_name().map(|n| n.to_string_lossy().into_owned()) else {
         return Ok(Vec::new());
     };
@@ -149,7 +149,10 @@ impl PendingFile {
     /// # Errors
     /// [`AtomicError::Io`] if the file cannot be created or synced, [`AtomicError::Inner`]
     /// if `write` fails; the temporary file is removed in both cases.
-    pub fn prepare<E, F>(target: &Path, write: F) -> std::result::Result<Self, AtomicError<E>>
+    pub(crate) fn prepare<E, F>(
+        target: &Path,
+        write: F,
+    ) -> std::result::Result<Self, AtomicError<E>>
     where
         F: FnOnce(&mut BufWriter<File>) -> std::result::Result<(), E>,
     {
@@ -178,16 +181,6 @@ impl PendingFile {
         Ok(pending)
     }
 
-    /// The target path.
-    pub fn target(&self) -> &Path {
-        &self.target
-    }
-
-    /// The temporary path.
-    pub fn temp_path(&self) -> &Path {
-        &self.temp
-    }
-
     /// Moves the file into place. With `overwrite = false` an existing target is never
     /// replaced (a hard link, which fails if the target exists, then the temporary name is
     /// removed; where hard links are unsupported, a check then a rename).
@@ -195,7 +188,7 @@ impl PendingFile {
     /// # Errors
     /// [`io::ErrorKind::AlreadyExists`] or any rename/link error; the temporary file is
     /// removed on error.
-    pub fn commit(mut self, overwrite: bool) -> io::Result<()> {
+    pub(crate) fn commit(mut self, overwrite: bool) -> io::Result<()> {
         if overwrite {
             fs::rename(&self.temp, &self.target)?;
         } else {
@@ -250,7 +243,7 @@ pub(crate) fn sync_dir(dir: &Path) {
 /// # Errors
 /// [`AtomicError::Inner`] from `write`; [`AtomicError::Io`] from the file system, including
 /// [`io::ErrorKind::AlreadyExists`] when `overwrite` is false and `path` exists.
-pub fn write_atomic<E, F>(
+pub(crate) fn write_atomic<E, F>(
     path: &Path,
     overwrite: bool,
     write: F,

@@ -14,7 +14,7 @@ use crate::physics::quantum;
 
 /// A mechanical mode as fitted, for drawing.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub struct ModeShape {
+pub(crate) struct ModeShape {
     /// Resonance frequency f_m, Hz.
     pub frequency_hz: f64,
     /// FWHM linewidth γ, Hz.
@@ -39,25 +39,25 @@ impl ModeShape {
     }
 
     /// Zero-point displacement spectrum 2ħ Im χ, m²/Hz.
-    pub fn zero_point_m2_per_hz(self, f_hz: f64, mass_kg: f64) -> f64 {
+    pub(crate) fn zero_point_m2_per_hz(self, f_hz: f64, mass_kg: f64) -> f64 {
         quantum::zero_point_psd_at(&self.oscillator(mass_kg), f_hz)
     }
 
     /// SQL of the added noise 2ħ|χ|, m²/Hz.
-    pub fn sql_m2_per_hz(self, f_hz: f64, mass_kg: f64) -> f64 {
+    pub(crate) fn sql_m2_per_hz(self, f_hz: f64, mass_kg: f64) -> f64 {
         quantum::sql_psd_at(&self.oscillator(mass_kg), f_hz)
     }
 
     /// Thermal (symmetrised, quantum) expectation 2ħ coth(ħΩ/2k_BT) Im χ at bath T, m²/Hz
     /// (METHODS.md §2b; [`quantum::quantum_thermal_psd_at`]).
-    pub fn thermal_m2_per_hz(self, f_hz: f64, mass_kg: f64, temperature_k: f64) -> f64 {
+    pub(crate) fn thermal_m2_per_hz(self, f_hz: f64, mass_kg: f64, temperature_k: f64) -> f64 {
         quantum::quantum_thermal_psd_at(&self.oscillator(mass_kg), temperature_k, f_hz)
     }
 }
 
 /// `points` frequencies log-spaced over `range_hz` (both ends included), plus f_m itself
 /// when it lies inside, sorted ascending; empty for a bad range.
-pub fn log_grid(range_hz: (f64, f64), points: usize, also_hz: Option<f64>) -> Vec<f64> {
+pub(crate) fn log_grid(range_hz: (f64, f64), points: usize, also_hz: Option<f64>) -> Vec<f64> {
     let (lo, hi) = range_hz;
     if !(lo.is_finite() && hi.is_finite() && lo > 0.0 && hi > lo) || points < 2 {
         return Vec::new();
@@ -76,7 +76,7 @@ pub fn log_grid(range_hz: (f64, f64), points: usize, also_hz: Option<f64>) -> Ve
 /// A grid dense around a narrow line: `points` log-spaced over the range plus `points`
 /// linearly spaced over f_m ± 20 γ (clipped to the range), sorted and de-duplicated, so a
 /// line much narrower than one pixel column is still drawn with its true peak.
-pub fn grid_around_mode(range_hz: (f64, f64), points: usize, mode: ModeShape) -> Vec<f64> {
+pub(crate) fn grid_around_mode(range_hz: (f64, f64), points: usize, mode: ModeShape) -> Vec<f64> {
     let mut v = log_grid(range_hz, points, Some(mode.frequency_hz));
     let (lo, hi) = range_hz;
     let half = 20.0 * mode.linewidth_hz;

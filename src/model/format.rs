@@ -6,7 +6,7 @@
 use crate::figure::format::{round_to_uncertainty, superscript};
 
 /// `value` with `sig` significant digits: plain between 10⁻³ and 10⁷, else `m × 10ⁿ`.
-pub fn format_significant(value: f64, sig: usize) -> String {
+pub(crate) fn format_significant(value: f64, sig: usize) -> String {
     if !value.is_finite() {
         return "—".into();
     }
@@ -34,7 +34,7 @@ pub fn format_significant(value: f64, sig: usize) -> String {
 /// decimal place: 15085 ± 1895 → "15100 ± 1900", 9.04e5 ± 92724 → "904000 ± 93000",
 /// 1.957e−9 ± 2.1e−11 → "(1.957 ± 0.021) × 10⁻⁹". Plain notation between 10⁻³ and 10⁷,
 /// else a common power of ten. Without a usable σ: four significant digits.
-pub fn format_uncertain(value: f64, sigma: Option<f64>) -> String {
+pub(crate) fn format_uncertain(value: f64, sigma: Option<f64>) -> String {
     if !value.is_finite() {
         return "—".into();
     }
@@ -61,7 +61,7 @@ pub fn format_uncertain(value: f64, sigma: Option<f64>) -> String {
 
 /// A sample rate with an SI prefix and at most four significant digits, trailing zeros
 /// dropped: 250000 → "250 kS/s", 44100 → "44.1 kS/s", 1.25e6 → "1.25 MS/s".
-pub fn format_rate(rate_hz: f64) -> String {
+pub(crate) fn format_rate(rate_hz: f64) -> String {
     if !(rate_hz.is_finite() && rate_hz > 0.0) {
         return "— S/s".into();
     }
@@ -88,7 +88,7 @@ pub fn format_rate(rate_hz: f64) -> String {
 }
 
 /// A count rounded to a whole number, grouped by thousands with spaces ("320 000").
-pub fn group_thousands(count: f64) -> String {
+pub(crate) fn group_thousands(count: f64) -> String {
     if !count.is_finite() {
         return "—".into();
     }
@@ -111,7 +111,7 @@ pub fn group_thousands(count: f64) -> String {
 /// Seconds since 1970-01-01 00:00 UTC as "YYYY-MM-DD_HH-MM-SS" (UTC; no characters that
 /// file systems refuse). The civil-date conversion is the days-from-civil inverse of
 /// H. Hinnant's "chrono-Compatible Low-Level Date Algorithms" (common practice).
-pub fn utc_file_stamp(unix_s: u64) -> String {
+pub(crate) fn utc_file_stamp(unix_s: u64) -> String {
     let days = (unix_s / 86_400) as i64;
     let rem = unix_s % 86_400;
     let (h, m, s) = (rem / 3600, (rem % 3600) / 60, rem % 60);
@@ -159,7 +159,7 @@ const WINDOW_WORDS: [(&str, &str); 24] = [
 
 /// `text` in the window's words: command-line option names become the labels of the
 /// window's controls, and JSON wording ("keys are null") becomes what the window shows.
-pub fn window_words(text: &str) -> String {
+pub(crate) fn window_words(text: &str) -> String {
     let mut out = text.to_string();
     for (flag, label) in WINDOW_WORDS {
         if out.contains(flag) {
@@ -178,7 +178,7 @@ pub fn window_words(text: &str) -> String {
 /// The band-rms readout of the mode panel: (label, value). In metres when the axis shows a
 /// displacement unit and the report is calibrated, else in volts. The band itself is the fit
 /// band the plot shades and the band fields show.
-pub fn band_rms_readout(
+pub(crate) fn band_rms_readout(
     rms: &crate::report::RmsReport,
     displacement_axis: bool,
 ) -> (String, String) {

@@ -99,13 +99,13 @@ impl Waterfall {
     }
 
     /// Changes whenever the history is cleared.
-    pub fn epoch(&self) -> u64 {
+    pub(crate) fn epoch(&self) -> u64 {
         self.epoch
     }
 
     /// Robust colour range (2nd percentile, maximum) of log10 PSD over the held rows, or
     /// `None` with no finite data.
-    pub fn value_range(&self) -> Option<(f32, f32)> {
+    pub(crate) fn value_range(&self) -> Option<(f32, f32)> {
         let mut all: Vec<f32> = self
             .rows
             .iter()
@@ -135,7 +135,7 @@ pub struct CalibrationDrift {
 
 impl CalibrationDrift {
     /// More than 3σ away from no drift.
-    pub fn is_significant(&self) -> bool {
+    pub(crate) fn is_significant(&self) -> bool {
         self.sigma_percent
             .is_some_and(|s| self.percent.abs() > 3.0 * s)
     }
@@ -225,7 +225,7 @@ impl TrendBuffer {
     /// Drift of the calibration over the session: the median reading of the newest tenth of
     /// the points against that of the oldest tenth (robust to single bad fits), with 1σ from
     /// the two readings' reported uncertainties. `None` with fewer than 20 calibrated points.
-    pub fn calibration_drift(&self) -> Option<CalibrationDrift> {
+    pub(crate) fn calibration_drift(&self) -> Option<CalibrationDrift> {
         let calibrated: Vec<&TrendPoint> = self
             .points
             .iter()

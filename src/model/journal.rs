@@ -30,9 +30,9 @@ use super::trend::{TRACK_HEADER, TrendRow};
 /// `format` of a journal header.
 pub const FORMAT: &str = "stillpoint-journal";
 /// Version of the format.
-pub const VERSION: u32 = 1;
+pub(crate) const VERSION: u32 = 1;
 /// The first column of a journal line (before the 22 `track` columns).
-pub const WALL_COLUMN: &str = "wall_time_unix_s";
+pub(crate) const WALL_COLUMN: &str = "wall_time_unix_s";
 
 /// Errors of the journal.
 #[derive(Debug, thiserror::Error)]
@@ -106,12 +106,12 @@ pub fn now_unix_s() -> f64 {
 }
 
 /// The CSV header line of a journal (without `\n`).
-pub fn header_line() -> String {
+pub(crate) fn header_line() -> String {
     format!("{WALL_COLUMN},{TRACK_HEADER}")
 }
 
 /// The default journal folder (module docs), `None` if no home folder is known.
-pub fn default_folder() -> Option<PathBuf> {
+pub(crate) fn default_folder() -> Option<PathBuf> {
     let env = |name: &str| std::env::var_os(name).filter(|v| !v.is_empty());
     if let Some(dir) = env("STILLPOINT_JOURNAL_DIR") {
         return Some(PathBuf::from(dir));
@@ -247,7 +247,10 @@ impl JournalWriter {
     ///
     /// # Errors
     /// The header cannot be written.
-    pub fn settings_changed(&mut self, settings: serde_json::Value) -> Result<(), JournalError> {
+    pub(crate) fn settings_changed(
+        &mut self,
+        settings: serde_json::Value,
+    ) -> Result<(), JournalError> {
         self.header.changes.push((now_unix_s(), settings));
         self.write_header()
     }
@@ -263,11 +266,6 @@ impl JournalWriter {
     /// The CSV file.
     pub fn path(&self) -> &Path {
         &self.csv_path
-    }
-
-    /// The header file.
-    pub fn header_path(&self) -> &Path {
-        &self.header_path
     }
 
     /// Points appended.
@@ -360,7 +358,7 @@ pub fn list_journals(folder: &Path) -> Vec<PathBuf> {
 ///
 /// # Errors
 /// Writing fails.
-pub fn write_track_csv<'a>(
+pub(crate) fn write_track_csv<'a>(
     out: &mut dyn Write,
     rows: impl IntoIterator<Item = &'a TrendRow>,
 ) -> io::Result<()> {

@@ -6,6 +6,10 @@
 //! The window (`crate::ui`) owns a [`LiveState`] and an [`Engine`]; each repaint it drains the
 //! engine's frames into the live state and draws from it.
 
+// The view helpers here (units, number formats, curves) serve the window; a build without the
+// `gui` feature compiles them unused (they stay `pub(crate)` so the full build finds dead code).
+#![cfg_attr(not(feature = "gui"), allow(dead_code))]
+
 pub mod cross_curves;
 pub mod curves;
 pub mod decimate;
@@ -65,7 +69,7 @@ pub struct LiveState {
 }
 
 /// Session marks kept.
-pub const SESSION_MARKS: usize = 256;
+pub(crate) const SESSION_MARKS: usize = 256;
 
 impl Default for LiveState {
     fn default() -> Self {

@@ -102,7 +102,7 @@ fn from_snapshot(s: crate::snapshot::Snapshot) -> LoadedSnapshot {
 }
 
 /// How a source is described in a snapshot's metadata.
-pub fn source_name(source: &crate::acquire::SourceConfig) -> String {
+pub(crate) fn source_name(source: &crate::acquire::SourceConfig) -> String {
     use crate::acquire::SourceSpec;
     match &source.spec {
         SourceSpec::Path(p) => p.display().to_string(),

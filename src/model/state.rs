@@ -12,7 +12,7 @@ use crate::dsp::units::DensityUnit;
 use crate::dsp::{Averaging, Detrend, WelchConfig, WindowKind};
 
 /// Display units in the order the unit button cycles through them.
-pub const UNIT_CYCLE: [DensityUnit; 6] = [
+pub(crate) const UNIT_CYCLE: [DensityUnit; 6] = [
     DensityUnit::V2PerHz,
     DensityUnit::VPerRtHz,
     DensityUnit::DbV2PerHz,
@@ -22,7 +22,7 @@ pub const UNIT_CYCLE: [DensityUnit; 6] = [
 ];
 
 /// Axis label of a display unit ("PSD (m²/Hz)").
-pub fn unit_label(unit: DensityUnit) -> &'static str {
+pub(crate) fn unit_label(unit: DensityUnit) -> &'static str {
     match unit {
         DensityUnit::V2PerHz => "PSD (V²/Hz)",
         DensityUnit::VPerRtHz => "ASD (V/√Hz)",
@@ -34,7 +34,7 @@ pub fn unit_label(unit: DensityUnit) -> &'static str {
 }
 
 /// Short unit name for buttons and read-outs.
-pub fn unit_short(unit: DensityUnit) -> &'static str {
+pub(crate) fn unit_short(unit: DensityUnit) -> &'static str {
     match unit {
         DensityUnit::V2PerHz => "V²/Hz",
         DensityUnit::VPerRtHz => "V/√Hz",
@@ -46,7 +46,7 @@ pub fn unit_short(unit: DensityUnit) -> &'static str {
 }
 
 /// True for units that need a calibration (metres).
-pub fn unit_is_displacement(unit: DensityUnit) -> bool {
+pub(crate) fn unit_is_displacement(unit: DensityUnit) -> bool {
     matches!(
         unit,
         DensityUnit::M2PerHz | DensityUnit::MPerRtHz | DensityUnit::DbM2PerHz
@@ -54,7 +54,7 @@ pub fn unit_is_displacement(unit: DensityUnit) -> bool {
 }
 
 /// True for the dB units (linear y axis); the others are drawn on a log10 y axis.
-pub fn unit_is_db(unit: DensityUnit) -> bool {
+pub(crate) fn unit_is_db(unit: DensityUnit) -> bool {
     matches!(unit, DensityUnit::DbV2PerHz | DensityUnit::DbM2PerHz)
 }
 
@@ -62,7 +62,7 @@ pub fn unit_is_db(unit: DensityUnit) -> bool {
 /// V/√Hz, m²/Hz, m/√Hz) or the dB value itself. `m_per_v` converts V to m (S_xx = c² S_VV);
 /// a displacement unit without a calibration, a non-positive PSD or a non-finite input
 /// gives `None`.
-pub fn plot_y(psd_v2_per_hz: f64, unit: DensityUnit, m_per_v: Option<f64>) -> Option<f64> {
+pub(crate) fn plot_y(psd_v2_per_hz: f64, unit: DensityUnit, m_per_v: Option<f64>) -> Option<f64> {
     if !(psd_v2_per_hz.is_finite() && psd_v2_per_hz > 0.0) {
         return None;
     }
@@ -85,7 +85,7 @@ pub fn plot_y(psd_v2_per_hz: f64, unit: DensityUnit, m_per_v: Option<f64>) -> Op
 /// The plot's y as an affine function of log10(PSD / (V²/Hz)): `y = a·log10(S) + b` with
 /// a > 0 (so min/max decimation commutes with it). `None` for a displacement unit without a
 /// calibration. Agrees with [`plot_y`].
-pub fn unit_affine(unit: DensityUnit, m_per_v: Option<f64>) -> Option<(f64, f64)> {
+pub(crate) fn unit_affine(unit: DensityUnit, m_per_v: Option<f64>) -> Option<(f64, f64)> {
     let log_c2 = match m_per_v {
         Some(c) if c.is_finite() && c > 0.0 => Some(2.0 * c.log10()),
         _ => None,
@@ -102,7 +102,11 @@ pub fn unit_affine(unit: DensityUnit, m_per_v: Option<f64>) -> Option<(f64, f64)
 
 /// Same as [`plot_y`] for a value already in m²/Hz (quantum reference curves): `None` for
 /// a voltage unit unless `m_per_v` lets it be converted back to V²/Hz.
-pub fn plot_y_from_m2(psd_m2_per_hz: f64, unit: DensityUnit, m_per_v: Option<f64>) -> Option<f64> {
+pub(crate) fn plot_y_from_m2(
+    psd_m2_per_hz: f64,
+    unit: DensityUnit,
+    m_per_v: Option<f64>,
+) -> Option<f64> {
     let c = m_per_v.filter(|c| c.is_finite() && *c > 0.0)?;
     plot_y(psd_m2_per_hz / (c * c), unit, Some(c))
 }
@@ -126,7 +130,7 @@ pub enum AveragingChoice {
 
 impl AveragingChoice {
     /// All choices, in menu order.
-    pub const ALL: [Self; 5] = [
+    pub(crate) const ALL: [Self; 5] = [
         Self::Auto,
         Self::Linear,
         Self::Exponential,
@@ -148,7 +152,7 @@ impl AveragingChoice {
 
 /// Segment length of a live source when the segment is left to the window (2¹⁴: a new
 /// spectrum several times a second at the usual digitiser rates).
-pub const LIVE_SEGMENT: usize = 16_384;
+pub(crate) const LIVE_SEGMENT: usize = 16_384;
 
 /// What the source is, for settings chosen automatically.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -221,7 +225,7 @@ impl WelchSettings {
     }
 
     /// The segment length used on `source`.
-    pub fn segment_for(&self, source: SourceKind) -> usize {
+    pub(crate) fn segment_for(&self, source: SourceKind) -> usize {
         if !self.segment_auto {
             return self.segment;
         }
@@ -232,7 +236,7 @@ impl WelchSettings {
     }
 
     /// The averaging used on `source` (`Auto` resolved).
-    pub fn averaging_for(&self, source: SourceKind) -> AveragingChoice {
+    pub(crate) fn averaging_for(&self, source: SourceKind) -> AveragingChoice {
         match (self.averaging, source) {
             (AveragingChoice::Auto, SourceKind::Recording(_)) => AveragingChoice::Linear,
             (AveragingChoice::Auto, SourceKind::Live) => AveragingChoice::Exponential,
@@ -242,7 +246,7 @@ impl WelchSettings {
 
     /// One line for the user: what averages on `source` ("mean of every segment (auto:
     /// a recording)").
-    pub fn describe_for(&self, source: SourceKind) -> String {
+    pub(crate) fn describe_for(&self, source: SourceKind) -> String {
         let what = match self.averaging_for(source) {
             AveragingChoice::Linear => match self.max_averages {
                 Some(k) => format!("mean of the first {k} segments"),
@@ -270,7 +274,7 @@ impl WelchSettings {
     }
 
     /// The averager configuration at `sample_rate_hz` for `source`.
-    pub fn to_config_for(&self, sample_rate_hz: f64, source: SourceKind) -> WelchConfig {
+    pub(crate) fn to_config_for(&self, sample_rate_hz: f64, source: SourceKind) -> WelchConfig {
         let averaging = match self.averaging_for(source) {
             AveragingChoice::Linear => Averaging::Linear,
             AveragingChoice::Exponential | AveragingChoice::Auto => Averaging::Exponential {
@@ -288,11 +292,6 @@ impl WelchSettings {
             averaging,
             max_averages: self.max_averages,
         }
-    }
-
-    /// The averager configuration at `sample_rate_hz` for a live source.
-    pub fn to_config(&self, sample_rate_hz: f64) -> WelchConfig {
-        self.to_config_for(sample_rate_hz, SourceKind::Live)
     }
 }
 
@@ -316,7 +315,7 @@ pub enum CalibrationMethod {
 
 impl CalibrationMethod {
     /// All methods, in menu order.
-    pub const ALL: [Self; 5] = [
+    pub(crate) const ALL: [Self; 5] = [
         Self::None,
         Self::Given,
         Self::ToneDisplacement,
@@ -438,7 +437,7 @@ impl Default for AppState {
 
 impl AppState {
     /// The next display unit in [`UNIT_CYCLE`].
-    pub fn cycle_unit(&mut self) {
+    pub(crate) fn cycle_unit(&mut self) {
         let i = UNIT_CYCLE.iter().position(|u| *u == self.unit).unwrap_or(0);
         self.unit = UNIT_CYCLE[(i + 1) % UNIT_CYCLE.len()];
     }
@@ -536,6 +535,6 @@ mod tests {
             time_constant_segments: 8.0,
         };
         let s = WelchSettings::from_config(&cfg);
-        assert_eq!(s.to_config(1e5), cfg);
+        assert_eq!(s.to_config_for(1e5, SourceKind::Live), cfg);
     }
 }

@@ -18,7 +18,7 @@ use crate::report::Report;
 
 /// Γ·T_i below which an interval cannot measure the mode's energy (occupancy, temperature):
 /// the area then scatters by more than √(2/10) ≈ 45 % (METHODS.md §11).
-pub const MIN_GAMMA_T: f64 = 10.0;
+pub(crate) const MIN_GAMMA_T: f64 = 10.0;
 
 /// The CSV header of `track` (BRIEF.md), in the contract's order: 22 columns.
 pub const TRACK_HEADER: &str = "t_start_s,t_end_s,averages,frequency_hz,frequency_hz_uncertainty,\
@@ -31,7 +31,7 @@ sideband_occupancy_uncertainty,band_low_hz,band_high_hz,status";
 pub const TRACK_COLUMNS: usize = 22;
 
 /// A value and its 1σ (either may be missing).
-pub type Measured = Option<(f64, Option<f64>)>;
+pub(crate) type Measured = Option<(f64, Option<f64>)>;
 
 /// One interval's results (empty cells are `None`).
 #[derive(Debug, Clone, Default, PartialEq)]
@@ -66,7 +66,7 @@ pub struct TrendRow {
 
 /// Relative scatter √(2/(Γ T)) of a line's area over an interval of `seconds` (METHODS.md
 /// §11), Γ = 2π·FWHM.
-pub fn area_scatter(linewidth_hz: f64, seconds: f64) -> f64 {
+pub(crate) fn area_scatter(linewidth_hz: f64, seconds: f64) -> f64 {
     (2.0 / (2.0 * std::f64::consts::PI * linewidth_hz * seconds)).sqrt()
 }
 
@@ -100,7 +100,7 @@ impl TrendRow {
     /// The row of one analysed interval of `t_end_s − t_start_s` seconds; `band_hz` is the
     /// mode band the analysis used; `calibration_asked`: a calibration was requested, so a
     /// missing m/V is this interval's failure.
-    pub fn from_report(
+    pub(crate) fn from_report(
         report: &Report,
         t_start_s: f64,
         t_end_s: f64,
@@ -201,7 +201,7 @@ impl TrendRow {
     }
 
     /// One CSV line of [`TRACK_HEADER`]'s columns, ending in `\n`.
-    pub fn to_csv_line(&self) -> String {
+    pub(crate) fn to_csv_line(&self) -> String {
         let mut out = String::with_capacity(256);
         out.push_str(&format!("{:?}", self.t_start_s));
         cell(&mut out, Some(self.t_end_s));

@@ -1,13 +1,12 @@
 //! Volts → metres (METHODS.md §5): a tone of known equivalent rms displacement, a
 //! phase-modulation tone of known depth β and frequency pull G/2π (Gorodetsky et al., Opt.
-//! Express 18, 23236 (2010) [G10]), thermal equipartition at a known bath temperature, or a
+//! Express 18, 23236 (2010) \[G10\]), thermal equipartition at a known bath temperature, or a
 //! given m/V; the vacuum coupling rate g₀/2π; and a bounded history of the tone for drift.
 //!
 //! Tone power is read robustly as P = Σ_{|k−k₀|≤M} (PSD_k − B_k) Δf (METHODS.md §1, Heinzel et
 //! al. 2002 §9), never as peak × Δf; B is the local floor from bias-corrected medians of the
 //! bins on either side of the tone, interpolated linearly across it.
 
-use std::collections::VecDeque;
 use std::f64::consts::PI;
 
 use super::occupancy::{bose_einstein, quantum_variance_m2, variance_temperature_sensitivity};
@@ -51,7 +50,7 @@ pub struct Calibration {
 
 impl Calibration {
     /// c² (m²/V²) with its 1σ (relative σ doubles).
-    pub fn m2_per_v2(&self) -> Estimate {
+    pub(crate) fn m2_per_v2(&self) -> Estimate {
         let c = self.m_per_v.value;
         Estimate::new(c * c, 2.0 * c.abs() * self.m_per_v.sigma)
     }
@@ -64,7 +63,7 @@ impl Calibration {
 pub fn given(m_per_v: f64) -> Result<Calibration> {
     Ok(Calibration {
         method: CalibrationMethod::Given,
-        m_per_v: Estimate::new(require_positive("--m-per-v", m_per_v)?, 0.0),
+        m_per_v: Estimate::new(require_positive("the calibration (m/V)", m_per_v)?, 0.0),
         tone: None,
     })
 }
@@ -128,7 +127,7 @@ pub fn read_tone(
     let nyquist = df * n.saturating_sub(1) as f64;
     if !(frequency_hz.is_finite() && frequency_hz > 0.0 && frequency_hz <= nyquist) {
         return Err(PhysicsError::Input(format!(
-            "--tone-freq {frequency_hz} Hz lies outside the spectrum (0 to {nyquist} Hz)"
+            "the tone frequency {frequency_hz} Hz lies outside the spectrum (0 to {nyquist} Hz)"
         )));
     }
     let base = |k: usize| baseline.map_or(0.0, |b| b(k as f64 * df));
@@ -224,19 +223,22 @@ pub fn read_tone(
     })
 }
 
-/// Equivalent rms displacement of a phase-modulation tone [G10]:
+/// Equivalent rms displacement of a phase-modulation tone \[G10\]:
 /// x_cal,pk = β f_mod/|G/2π|, x_rms = x_pk/√2.
 ///
 /// # Errors
 /// [`PhysicsError::Input`] for a non-positive depth, frequency or pull.
-pub fn pm_tone_rms_m(
+pub(crate) fn pm_tone_rms_m(
     pm_depth_rad: f64,
     tone_frequency_hz: f64,
     freq_pull_hz_per_m: f64,
 ) -> Result<f64> {
-    let beta = require_positive("--pm-depth", pm_depth_rad)?;
-    let f = require_positive("--tone-freq", tone_frequency_hz)?;
-    let g = require_positive("--freq-pull (absolute value)", freq_pull_hz_per_m.abs())?;
+    let beta = require_positive("the phase-modulation depth", pm_depth_rad)?;
+    let f = require_positive("the tone frequency", tone_frequency_hz)?;
+    let g = require_positive(
+        "the frequency pull (absolute value)",
+        freq_pull_hz_per_m.abs(),
+    )?;
     Ok(beta * f / g / std::f64::consts::SQRT_2)
 }
 
@@ -244,8 +246,8 @@ pub fn pm_tone_rms_m(
 ///
 /// # Errors
 /// [`PhysicsError::Input`] for a non-positive rms displacement or tone power.
-pub fn from_tone(reading: &ToneReading, tone_rms_m: f64) -> Result<Calibration> {
-    let x = require_positive("--tone-rms-m", tone_rms_m)?;
+pub(crate) fn from_tone(reading: &ToneReading, tone_rms_m: f64) -> Result<Calibration> {
+    let x = require_positive("the tone's rms displacement", tone_rms_m)?;
     let p = require_positive("tone power", reading.power.value)?;
     let c = x / p.sqrt();
     Ok(Calibration {
@@ -272,11 +274,11 @@ pub fn equipartition(
 ) -> Result<Calibration> {
     let a = require_positive("mode area (V²)", mode_area_v2.value)?;
     let f = require_positive("mode frequency (Hz)", mode_frequency_hz)?;
-    let m = require_positive("--mass", mass_kg.value)?;
-    let t = require_positive("--bath-temperature", bath_temperature_k.value)?;
+    let m = require_positive("the effective mass", mass_kg.value)?;
+    let t = require_positive("the bath temperature", bath_temperature_k.value)?;
     for (name, sigma) in [
-        ("--mass-uncertainty", mass_kg.sigma),
-        ("--bath-temperature-uncertainty", bath_temperature_k.sigma),
+        ("the 1σ of the effective mass", mass_kg.sigma),
+        ("the 1σ of the bath temperature", bath_temperature_k.sigma),
     ] {
         if !(sigma.is_finite() && sigma >= 0.0) {
             return Err(PhysicsError::Input(format!(
@@ -296,7 +298,7 @@ pub fn equipartition(
     })
 }
 
-/// Vacuum coupling rate g₀/2π (Hz) from a phase-modulation tone [G10], in the general form
+/// Vacuum coupling rate g₀/2π (Hz) from a phase-modulation tone \[G10\], in the general form
 /// g₀² = (β²Ω_mod²/2)(A_mech/P_tone)/(2n̄+1) (METHODS.md §5b), with 1σ from the two powers.
 ///
 /// # Errors
@@ -308,8 +310,8 @@ pub fn g0_hz(
     tone_power: Estimate,
     occupancy: f64,
 ) -> Result<Estimate> {
-    let beta = require_positive("--pm-depth", pm_depth_rad)?;
-    let f = require_positive("--tone-freq", tone_frequency_hz)?;
+    let beta = require_positive("the phase-modulation depth", pm_depth_rad)?;
+    let f = require_positive("the tone frequency", tone_frequency_hz)?;
     let a = require_positive("mode area", mode_area.value)?;
     let p = require_positive("tone power", tone_power.value)?;
     if !(occupancy.is_finite() && occupancy >= 0.0) {
@@ -327,7 +329,7 @@ pub fn g0_hz(
 ///
 /// # Errors
 /// As [`g0_hz`], and for a non-positive temperature.
-pub fn g0_hz_at_temperature(
+pub(crate) fn g0_hz_at_temperature(
     pm_depth_rad: f64,
     tone_frequency_hz: f64,
     mode_area: Estimate,
@@ -335,7 +337,7 @@ pub fn g0_hz_at_temperature(
     mode_frequency_hz: f64,
     bath_temperature_k: f64,
 ) -> Result<Estimate> {
-    let t = require_positive("--bath-temperature", bath_temperature_k)?;
+    let t = require_positive("the bath temperature", bath_temperature_k)?;
     let f = require_positive("mode frequency (Hz)", mode_frequency_hz)?;
     g0_hz(
         pm_depth_rad,
@@ -344,105 +346,6 @@ pub fn g0_hz_at_temperature(
         tone_power,
         bose_einstein(f, t),
     )
-}
-
-/// One entry of the tone history.
-#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
-pub struct ToneSample {
-    /// Time of the spectrum (s, any origin).
-    pub time_s: f64,
-    /// Tone frequency (Hz).
-    pub frequency_hz: f64,
-    /// Tone power (PSD unit × Hz) with 1σ.
-    pub power: Estimate,
-}
-
-/// Bounded history of the calibration tone (power and frequency), for drift plots.
-#[derive(Debug, Clone, PartialEq, Default)]
-pub struct ToneTracker {
-    capacity: usize,
-    samples: VecDeque<ToneSample>,
-}
-
-/// Drift summary over the tracked history.
-#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
-pub struct ToneDrift {
-    /// Entries used.
-    pub count: usize,
-    /// Mean power.
-    pub mean_power: f64,
-    /// Sample standard deviation of the power, relative to the mean.
-    pub relative_power_scatter: f64,
-    /// (last − first)/mean of the power.
-    pub relative_power_change: f64,
-    /// Last minus first frequency (Hz).
-    pub frequency_change_hz: f64,
-}
-
-impl ToneTracker {
-    /// A tracker keeping at most `capacity` entries (at least 1).
-    pub fn new(capacity: usize) -> Self {
-        Self {
-            capacity: capacity.max(1),
-            samples: VecDeque::with_capacity(capacity.clamp(1, 1 << 16)),
-        }
-    }
-
-    /// Records a reading at `time_s`; the oldest entry drops out when full.
-    pub fn push(&mut self, time_s: f64, reading: &ToneReading) {
-        if self.samples.len() == self.capacity {
-            self.samples.pop_front();
-        }
-        self.samples.push_back(ToneSample {
-            time_s,
-            frequency_hz: reading.frequency_hz,
-            power: reading.power,
-        });
-    }
-
-    /// The history, oldest first.
-    pub fn samples(&self) -> impl Iterator<Item = &ToneSample> {
-        self.samples.iter()
-    }
-
-    /// Entries held.
-    pub fn len(&self) -> usize {
-        self.samples.len()
-    }
-
-    /// True when empty.
-    pub fn is_empty(&self) -> bool {
-        self.samples.is_empty()
-    }
-
-    /// Forgets the history.
-    pub fn clear(&mut self) {
-        self.samples.clear();
-    }
-
-    /// Drift statistics, `None` with fewer than two entries.
-    pub fn drift(&self) -> Option<ToneDrift> {
-        let n = self.samples.len();
-        if n < 2 {
-            return None;
-        }
-        let mean = self.samples.iter().map(|s| s.power.value).sum::<f64>() / n as f64;
-        let var = self
-            .samples
-            .iter()
-            .map(|s| (s.power.value - mean).powi(2))
-            .sum::<f64>()
-            / (n - 1) as f64;
-        let first = self.samples.front()?;
-        let last = self.samples.back()?;
-        Some(ToneDrift {
-            count: n,
-            mean_power: mean,
-            relative_power_scatter: var.sqrt() / mean,
-            relative_power_change: (last.power.value - first.power.value) / mean,
-            frequency_change_hz: last.frequency_hz - first.frequency_hz,
-        })
-    }
 }
 
 #[cfg(test)]
@@ -456,25 +359,5 @@ mod tests {
         let x = pm_tone_rms_m(1e-3, 1.05e6, 1e18).unwrap();
         assert!((x * std::f64::consts::SQRT_2 / 1.05e-15 - 1.0).abs() < 1e-12);
         assert!(pm_tone_rms_m(-1e-3, 1.05e6, 1e18).is_err());
-    }
-
-    #[test]
-    fn tracker_is_bounded() {
-        let mut t = ToneTracker::new(3);
-        for i in 0..5 {
-            let r = ToneReading {
-                frequency_hz: 100.0 + i as f64,
-                bin: 1,
-                power: Estimate::new(1.0 + i as f64, 0.1),
-                peak_power: 1.0,
-                floor_psd: 0.0,
-                half_width_bins: 3,
-            };
-            t.push(i as f64, &r);
-        }
-        assert_eq!(t.len(), 3);
-        let d = t.drift().unwrap();
-        assert!((d.frequency_change_hz - 2.0).abs() < 1e-12);
-        assert!((d.mean_power - 4.0).abs() < 1e-12);
     }
 }

@@ -1,7 +1,7 @@
 //! CODATA 2018 / SI 2019 exact constants (Tiesinga et al., Rev. Mod. Phys. 93, 025010 (2021)).
 
 /// Planck constant h, J s (exact).
-pub const PLANCK_J_S: f64 = 6.626_070_15e-34;
+pub(crate) const PLANCK_J_S: f64 = 6.626_070_15e-34;
 /// Reduced Planck constant ħ = h/2π, J s.
 pub const HBAR_J_S: f64 = PLANCK_J_S / (2.0 * std::f64::consts::PI);
 /// Boltzmann constant k_B, J/K (exact).

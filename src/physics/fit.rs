@@ -92,7 +92,7 @@ pub struct ModeFit {
 
 impl ModeFit {
     /// The line alone (no background) at one frequency.
-    pub fn line_psd_at(&self, frequency_hz: f64) -> f64 {
+    pub(crate) fn line_psd_at(&self, frequency_hz: f64) -> f64 {
         line(
             self.line_shape,
             frequency_hz,
@@ -102,46 +102,12 @@ impl ModeFit {
         )
     }
 
-    /// Background at one frequency.
-    pub fn background_psd_at(&self, frequency_hz: f64) -> f64 {
-        let s = self.background_slope_per_hz.map_or(0.0, |e| e.value);
-        // background_psd is stored at f_m.
-        self.background_psd.value + s * (frequency_hz - self.frequency_hz.value)
-    }
-
-    /// Fitted model (line + background) at one frequency.
-    pub fn model_psd_at(&self, frequency_hz: f64) -> f64 {
-        self.line_psd_at(frequency_hz) + self.background_psd_at(frequency_hz)
-    }
-
-    /// Fitted model on a frequency grid (for overlays).
-    pub fn model_curve(&self, frequencies_hz: &[f64]) -> Vec<f64> {
-        frequencies_hz
-            .iter()
-            .map(|&f| self.model_psd_at(f))
-            .collect()
-    }
-
     /// Energy damping rate Γ = 2πγ (rad/s) with its 1σ.
     pub fn damping_rad_s(&self) -> Estimate {
         Estimate::new(
             2.0 * PI * self.linewidth_hz.value,
             2.0 * PI * self.linewidth_hz.sigma,
         )
-    }
-
-    /// The same fit expressed on a PSD multiplied by `factor` (e.g. c² in m²/V²): area, peak
-    /// and background scale, frequency, linewidth and Q do not. The factor's own uncertainty
-    /// is not included (combine it separately).
-    pub fn scaled(&self, factor: f64) -> Self {
-        let sc = |e: Estimate| Estimate::new(e.value * factor, e.sigma * factor.abs());
-        Self {
-            area: sc(self.area),
-            peak_psd: sc(self.peak_psd),
-            background_psd: sc(self.background_psd),
-            background_slope_per_hz: self.background_slope_per_hz.map(sc),
-            ..self.clone()
-        }
     }
 }
 
@@ -805,7 +771,7 @@ fn signed_guess(freqs: &[f64], data: &[f64], df: f64) -> Option<(f64, f64, f64, 
 ///
 /// # Errors
 /// As [`fit_mode_with`].
-pub fn fit_mode_given_variance(
+pub(crate) fn fit_mode_given_variance(
     data: &Spectrum,
     band_hz: (f64, f64),
     options: &FitOptions,

@@ -117,7 +117,7 @@ impl Kernel {
             .0
     }
 
-    /// As [`Self::convolved_lorentzian`], with the derivatives by the centre and by the
+    /// As `convolved_lorentzian` (test-only), with the derivatives by the centre and by the
     /// width (both in bins), from the closed-form derivatives of the hat integrals.
     pub(crate) fn convolved_lorentzian_with_gradient(
         &self,

@@ -42,7 +42,7 @@ pub fn effective_temperature(frequency_hz: f64, occupancy: Estimate) -> Option<E
 
 /// n̄ = (⟨x²⟩/x_zpf² − 1)/2 from a calibrated symmetrised area, with σ_n̄ = σ_⟨x²⟩/(2 x_zpf²).
 /// May be negative when the area is below the zero-point level (noise or a bad calibration).
-pub fn occupancy_from_variance(variance_m2: Estimate, x_zpf_m: f64) -> Estimate {
+pub(crate) fn occupancy_from_variance(variance_m2: Estimate, x_zpf_m: f64) -> Estimate {
     let z2 = x_zpf_m * x_zpf_m;
     Estimate::new(
         (variance_m2.value / z2 - 1.0) / 2.0,

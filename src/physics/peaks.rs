@@ -173,7 +173,7 @@ fn masked_running_median(psd: &[f64], mask: &[bool], half_max: usize, bias: f64)
 /// bins whose 5-bin mean stands more than 4σ above the current floor are masked, each
 /// stretch widened by half its length, and the median recomputed, until the mask stops
 /// growing.
-pub fn clipped_floor(
+pub(crate) fn clipped_floor(
     spectrum: &Spectrum,
     window_bins: usize,
     exclude_hz: &[(f64, f64)],

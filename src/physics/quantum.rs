@@ -1,6 +1,6 @@
 //! Quantum and thermal reference spectra of a mode, as curves on a frequency grid so the window
 //! can overlay them (METHODS.md §2–§3). All single-sided in f: the two-sided symmetrised forms
-//! of Clerk et al., RMP 82, 1155 (2010) [C10] and [A14] are doubled (S^(1)(f) = 2 S̄(Ω)).
+//! of Clerk et al., RMP 82, 1155 (2010) \[C10\] and \[A14\] are doubled (S^(1)(f) = 2 S̄(Ω)).
 
 use super::constants::{BOLTZMANN_J_PER_K, HBAR_J_S};
 use super::oscillator::Oscillator;
@@ -17,7 +17,11 @@ pub fn classical_thermal_psd_at(osc: &Oscillator, temperature_k: f64, frequency_
 /// T = 0 gives the zero-point spectrum 2ħ Im χ; ħΩ ≪ k_BT the classical 4k_BT Im χ/Ω.
 /// Evaluated as 4 k_B T (Im χ/Ω)·x coth x for x = ħΩ/2k_BT < 1 (finite at DC) and as
 /// 2ħΩ (Im χ/Ω)·coth x above (finite for any T > 0, however small).
-pub fn quantum_thermal_psd_at(osc: &Oscillator, temperature_k: f64, frequency_hz: f64) -> f64 {
+pub(crate) fn quantum_thermal_psd_at(
+    osc: &Oscillator,
+    temperature_k: f64,
+    frequency_hz: f64,
+) -> f64 {
     if temperature_k <= 0.0 {
         return zero_point_psd_at(osc, frequency_hz);
     }
@@ -33,14 +37,14 @@ pub fn quantum_thermal_psd_at(osc: &Oscillator, temperature_k: f64, frequency_hz
 }
 
 /// Zero-point displacement PSD 2ħ Im χ(Ω) (m²/Hz), symmetrised, single-sided.
-pub fn zero_point_psd_at(osc: &Oscillator, frequency_hz: f64) -> f64 {
+pub(crate) fn zero_point_psd_at(osc: &Oscillator, frequency_hz: f64) -> f64 {
     let omega = 2.0 * std::f64::consts::PI * frequency_hz;
     2.0 * HBAR_J_S * omega * osc.im_susceptibility_over_omega(frequency_hz)
 }
 
 /// SQL of the added noise 2ħ|χ(Ω)| (m²/Hz), single-sided; an envelope, each frequency needing
 /// its own probe strength. Does not include the zero-point motion itself.
-pub fn sql_psd_at(osc: &Oscillator, frequency_hz: f64) -> f64 {
+pub(crate) fn sql_psd_at(osc: &Oscillator, frequency_hz: f64) -> f64 {
     2.0 * HBAR_J_S * osc.susceptibility_abs2(frequency_hz).sqrt()
 }
 

@@ -12,7 +12,7 @@ use super::{Estimate, PhysicsError, Result, calibration, window_stats};
 use crate::dsp::Spectrum;
 
 /// The caution that goes with every sideband result (METHODS.md §6 caveat).
-pub const CLASSICAL_NOISE_NOTE: &str = "sideband asymmetry: classical laser amplitude/phase noise or excess cavity occupation interferes with opposite signs in the two sidebands and can mimic or mask the quantum asymmetry (Safavi-Naeini et al. 2013, Jayich et al. 2012); characterise the laser noise at f_m or vary the probe power";
+pub(crate) const CLASSICAL_NOISE_NOTE: &str = "sideband asymmetry: classical laser amplitude/phase noise or excess cavity occupation interferes with opposite signs in the two sidebands and can mimic or mask the quantum asymmetry (Safavi-Naeini et al. 2013, Jayich et al. 2012); characterise the laser noise at f_m or vary the probe power";
 
 /// Inputs of the sideband analysis.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -82,7 +82,7 @@ pub fn occupancy_from_ratio(ratio: Estimate) -> Option<Estimate> {
 ///
 /// # Errors
 /// As [`calibration::read_tone`].
-pub fn imbalance_from_tones(
+pub(crate) fn imbalance_from_tones(
     spectrum: &Spectrum,
     red_tone_hz: f64,
     blue_tone_hz: f64,
@@ -146,17 +146,17 @@ fn fit_sidebands_joint(spectrum: &Spectrum, options: &SidebandOptions) -> Result
     let fc = options.carrier_hz;
     if !(fc.is_finite() && fc > 0.0) {
         return Err(PhysicsError::Input(format!(
-            "--carrier must be a positive frequency, got {fc}"
+            "the carrier must be a positive frequency, got {fc}"
         )));
     }
     if !(lo.is_finite() && hi.is_finite() && lo >= 0.0 && lo < hi) {
         return Err(PhysicsError::Input(format!(
-            "--mode-band with --carrier must be LO:HI offsets with 0 <= LO < HI, got {lo}:{hi}"
+            "with a carrier, the mode band must be offsets LO:HI from it with 0 <= LO < HI, got {lo}:{hi}"
         )));
     }
     if fc - hi <= 0.0 {
         return Err(PhysicsError::Input(format!(
-            "--carrier {fc} Hz minus the --mode-band top {hi} Hz is below 0 Hz"
+            "the carrier {fc} Hz minus the top of the mode band {hi} Hz is below 0 Hz"
         )));
     }
     let up = fit::band_bins(
@@ -433,7 +433,7 @@ fn band_sum_sidebands(spectrum: &Spectrum, options: &SidebandOptions) -> Result<
 ///
 /// # Errors
 /// As [`calibration::read_tone`].
-pub fn read_pm_lines(
+pub(crate) fn read_pm_lines(
     spectrum: &Spectrum,
     carrier_hz: f64,
     f_mod_hz: f64,
@@ -456,7 +456,7 @@ pub fn read_pm_lines(
 /// x_zpf²(n̄+1) and x_zpf² n̄, so c²(A_red + A_blue) = x_zpf²(2n̄+1) and
 /// n̄ = (c²(A_red + A_blue)/x_zpf² − 1)/2. σ by first-order propagation (independent areas,
 /// the calibration's relative error).
-pub fn occupancy_from_areas(
+pub(crate) fn occupancy_from_areas(
     red_v2: Estimate,
     blue_v2: Estimate,
     m2_per_v2: Estimate,

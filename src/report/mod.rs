@@ -1,7 +1,7 @@
 //! The `analyze` report: the contract types whose dotted paths are the JSON keys of BRIEF.md
 //! (`welch.*`, `calibration.*`, `mode.*`, `quantum.*`, `sidebands.*`, `peaks[]`, `rms.*`,
 //! `cross.*`). All values are SI with unit-named keys; never NaN or Inf (the analysis nulls
-//! non-finite numbers, [`crate::analysis::sanitize`]). Filled by [`crate::analysis::analyze`].
+//! non-finite numbers, `analysis/sanitize.rs`). Filled by [`crate::analysis::analyze`].
 //!
 //! A value that needs an input that was not given is `null`, and [`Report::notes`] says why.
 

@@ -18,7 +18,7 @@
 //!
 //! Loading gives one-line errors for damaged files (bad JSON, missing columns, non-numeric or
 //! non-finite values, a row count or frequency grid that does not match the metadata).
-//! [`compare`] forms ratio and difference of two spectra (interpolating the reference when the
+//! [`compare()`] forms ratio and difference of two spectra (interpolating the reference when the
 //! grids differ); [`excess_bands`] and [`mark_new_peaks`] list what is new since a reference.
 
 mod compare;
@@ -41,9 +41,9 @@ use crate::report::Report;
 use spectrum_csv::{parse_csv, truncate};
 
 /// Name written in every snapshot's `format` field.
-pub const FORMAT_NAME: &str = "stillpoint-snapshot";
+pub(crate) const FORMAT_NAME: &str = "stillpoint-snapshot";
 /// Version of the snapshot format this program writes and reads.
-pub const FORMAT_VERSION: u32 = 1;
+pub(crate) const FORMAT_VERSION: u32 = 1;
 /// Largest metadata file accepted (bytes).
 const MAX_JSON_BYTES: u64 = 64 << 20;
 /// Largest data file accepted (bytes).
@@ -269,7 +269,7 @@ pub fn snapshot_paths(path: &Path) -> (PathBuf, PathBuf) {
 
 /// UTC time as ISO 8601 with seconds, e.g. `2026-12-02T06:10:41Z` (days → civil date by
 /// H. Hinnant's `civil_from_days` algorithm).
-pub fn iso8601_utc(time: SystemTime) -> String {
+pub(crate) fn iso8601_utc(time: SystemTime) -> String {
     let secs = match time.duration_since(SystemTime::UNIX_EPOCH) {
         Ok(d) => i64::try_from(d.as_secs()).unwrap_or(i64::MAX),
         Err(e) => -i64::try_from(e.duration().as_secs()).unwrap_or(i64::MAX),
@@ -509,7 +509,7 @@ fn read_limited(path: &Path, limit: u64) -> Result<Vec<u8>> {
 /// # Errors
 /// [`SnapshotError::Metadata`] (with `path` for the message) if it is not valid JSON, not a
 /// snapshot, a newer format version, or inconsistent.
-pub fn parse_meta(bytes: &[u8], path: &Path) -> Result<SnapshotMeta> {
+pub(crate) fn parse_meta(bytes: &[u8], path: &Path) -> Result<SnapshotMeta> {
     let err = |message: String| SnapshotError::Metadata {
         path: path.to_path_buf(),
         message,
@@ -583,7 +583,7 @@ fn journal_meta(json_path: &Path, hash: &str, data_file: &str) -> Option<(PathBu
 ///
 /// # Errors
 /// The rename failed.
-pub fn complete_interrupted_save(path: &Path) -> io::Result<bool> {
+pub(crate) fn complete_interrupted_save(path: &Path) -> io::Result<bool> {
     let (json_path, csv_path) = snapshot_paths(path);
     let Ok(csv) = read_limited(&csv_path, MAX_CSV_BYTES) else {
         return Ok(false);

@@ -850,7 +850,7 @@ impl ScenarioConfig {
     ///
     /// # Errors
     /// Invalid configuration.
-    pub fn build_live(&self) -> Result<Box<dyn Generator>> {
+    pub(crate) fn build_live(&self) -> Result<Box<dyn Generator>> {
         if self.quantum.is_some() {
             return Ok(Box::new(quantum::QuantumStream::new(self, true)?));
         }
@@ -858,7 +858,7 @@ impl ScenarioConfig {
     }
 
     /// Number of samples of a file: round(duration × rate).
-    pub fn sample_count(&self) -> u64 {
+    pub(crate) fn sample_count(&self) -> u64 {
         let n = (self.duration_secs * self.sample_rate_hz).round();
         if n.is_finite() && n > 0.0 {
             n as u64

@@ -34,7 +34,7 @@ use super::{Result, SynthError, rng::Rng};
 
 /// Parameters of one oscillator: undamped frequency, FWHM linewidth and stationary variance.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub struct OscillatorParams {
+pub(crate) struct OscillatorParams {
     /// f₀ = Ω₀/2π (the Ω_m of χ), Hz.
     pub frequency_hz: f64,
     /// γ = Γ/2π, the FWHM of the displacement PSD, Hz.
@@ -108,8 +108,9 @@ fn step_coefficients(p: &OscillatorParams, dt_secs: f64) -> Step {
     Step { phi, l11, l21, l22 }
 }
 
-/// The noise covariance Q (q11, q12, q22) of one exact step (exposed for tests).
-pub fn step_noise_covariance(p: &OscillatorParams, dt_secs: f64) -> (f64, f64, f64) {
+/// The noise covariance Q (q11, q12, q22) of one exact step (for the tests).
+#[cfg(test)]
+fn step_noise_covariance(p: &OscillatorParams, dt_secs: f64) -> (f64, f64, f64) {
     let st = step_coefficients(p, dt_secs);
     (
         st.l11 * st.l11,
@@ -118,14 +119,15 @@ pub fn step_noise_covariance(p: &OscillatorParams, dt_secs: f64) -> (f64, f64, f
     )
 }
 
-/// The transition matrix Φ = e^{Ah} of one step (exposed for tests).
-pub fn step_transition(p: &OscillatorParams, dt_secs: f64) -> [[f64; 2]; 2] {
+/// The transition matrix Φ = e^{Ah} of one step (for the tests).
+#[cfg(test)]
+fn step_transition(p: &OscillatorParams, dt_secs: f64) -> [[f64; 2]; 2] {
     step_coefficients(p, dt_secs).phi
 }
 
 /// A thermally driven oscillator advanced exactly, one sample at a time.
 #[derive(Debug, Clone)]
-pub struct ThermalOscillator {
+pub(crate) struct ThermalOscillator {
     params: OscillatorParams,
     dt_secs: f64,
     step: Step,
@@ -166,20 +168,15 @@ impl ThermalOscillator {
     ///
     /// # Errors
     /// [`SynthError::Parameter`] for invalid parameters (the old ones stay in force).
-    pub fn set_params(&mut self, params: OscillatorParams) -> Result<()> {
+    pub(crate) fn set_params(&mut self, params: OscillatorParams) -> Result<()> {
         params.validate(1.0 / self.dt_secs)?;
         self.params = params;
         self.step = step_coefficients(&params, self.dt_secs);
         Ok(())
     }
 
-    /// Current parameters.
-    pub fn params(&self) -> &OscillatorParams {
-        &self.params
-    }
-
     /// Returns the current displacement and advances the state by one sample.
-    pub fn next_sample(&mut self, rng: &mut Rng) -> f64 {
+    pub(crate) fn next_sample(&mut self, rng: &mut Rng) -> f64 {
         let out = self.x;
         let g1 = rng.normal();
         let g2 = rng.normal();

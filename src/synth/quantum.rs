@@ -26,7 +26,7 @@
 //! Simulation: each sideband is a unit-variance damped oscillator (exact discrete-time update,
 //! [`super::oscillator`]) at its electronic frequency with linewidth γ_eff, scaled by the
 //! square root of its area; the parameters are updated every
-//! [`super::stream::UPDATE_INTERVAL_SAMPLES`] samples. The occupancy therefore follows the
+//! `UPDATE_INTERVAL_SAMPLES` (256) samples. The occupancy therefore follows the
 //! schedule adiabatically: right for the laser-cooling stages (1/Γ_eff ≲ 1 ms) and for a real
 //! cryostat (hours, ≫ 1/Γ_m); the demo's cryostat stage is a time-lapse
 //! ([`QuantumParams::cryostat_lab_hours`] of lab time shown in `cryostat_secs`).
@@ -298,7 +298,7 @@ impl QuantumParams {
     }
 
     /// Electronic frequencies (red, blue) of lines offset ± `offset_hz` from the carrier.
-    pub fn red_blue_hz(&self, offset_hz: f64) -> (f64, f64) {
+    pub(crate) fn red_blue_hz(&self, offset_hz: f64) -> (f64, f64) {
         if self.lo_above {
             (self.carrier_hz + offset_hz, self.carrier_hz - offset_hz)
         } else {

@@ -85,11 +85,6 @@ impl Rng {
             }
         }
     }
-
-    /// Uniform phase in [0, 2π).
-    pub fn phase_rad(&mut self) -> f64 {
-        std::f64::consts::TAU * self.uniform()
-    }
 }
 
 #[cfg(test)]

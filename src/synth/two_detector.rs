@@ -22,7 +22,7 @@ use crate::physics::constants::{BOLTZMANN_J_PER_K, HBAR_J_S};
 
 /// Settings of the two-detector scenario (defaults: [`TwoDetectorConfig::default`]).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct TwoDetectorConfig {
+pub(crate) struct TwoDetectorConfig {
     /// RNG seed.
     pub seed: u64,
     /// Samples per second per channel.
@@ -70,7 +70,7 @@ impl Default for TwoDetectorConfig {
 
 /// What the record holds, written beside it as JSON.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct TwoDetectorTruth {
+pub(crate) struct TwoDetectorTruth {
     /// `two-detector`.
     pub scenario: String,
     /// The settings used.
@@ -201,7 +201,10 @@ impl TwoDetectorConfig {
 ///
 /// # Errors
 /// [`SynthError::Parameter`] for invalid settings or a rate that is no integer; I/O errors.
-pub fn write_two_detector_wav(config: &TwoDetectorConfig, path: &Path) -> Result<TwoDetectorTruth> {
+pub(crate) fn write_two_detector_wav(
+    config: &TwoDetectorConfig,
+    path: &Path,
+) -> Result<TwoDetectorTruth> {
     let (a, b, mut truth) = config.record()?;
     let fs = config.sample_rate_hz;
     if fs.fract() != 0.0 || fs > f64::from(u32::MAX) {
