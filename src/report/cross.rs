@@ -73,9 +73,12 @@ pub fn analyze_cross(
     channels: (usize, usize),
 ) -> Result<Report, AnalysisError> {
     if options.carrier_hz.is_some() {
-        return Err(AnalysisError::Input(
-            "--carrier (sideband thermometry) is not available with --cross-channel".into(),
-        ));
+        return Err(AnalysisError::Setting {
+            setting: analysis::Setting::Carrier,
+            message: "sideband thermometry (a carrier frequency) is not available with two \
+                      detectors (a second channel)"
+                .into(),
+        });
     }
     analysis::validate(&cross.a, options)?;
     let spectrum_b = cross.spectrum_b();
