@@ -18,6 +18,10 @@ pub struct LoadedSnapshot {
     pub frequencies_hz: Vec<f64>,
     /// The saved spectrum (PSD in V²/Hz and its settings).
     pub spectrum: Spectrum,
+    /// log10 of its PSD in V²/Hz (NaN where not positive), computed once at load so the
+    /// window only decimates and maps it (as the live trace's `Frame::log_psd`); shared, so
+    /// the window's plot caches can tell this snapshot's data apart from any other.
+    pub log_psd: std::sync::Arc<Vec<f64>>,
     /// Calibration saved with it, m/V.
     pub m_per_v: Option<f64>,
     /// Stray resonances found in it (the reference list for "new since snapshot").
@@ -95,6 +99,13 @@ fn from_snapshot(s: crate::snapshot::Snapshot) -> LoadedSnapshot {
             .as_ref()
             .map(|r| r.peaks.clone())
             .unwrap_or_default(),
+        log_psd: std::sync::Arc::new(
+            s.spectrum
+                .psd_v2_per_hz
+                .iter()
+                .map(|&p| if p > 0.0 { p.log10() } else { f64::NAN })
+                .collect(),
+        ),
         spectrum: s.spectrum,
         path: s.path,
         visible: true,
