@@ -10,7 +10,7 @@ use std::time::{Duration, Instant};
 
 use crossbeam_channel::{Receiver, Sender, TrySendError, bounded, never, select};
 
-use super::decimate::log_columns_max;
+use super::decimate::{MinMaxBlocks, log_columns_max};
 use super::history::{TrendPoint, WaterfallRow};
 use super::state::{SourceKind, WelchSettings};
 use super::{ModelError, Result};
@@ -168,6 +168,9 @@ pub struct Frame {
     /// log10 of `spectrum`'s PSD in V²/Hz (NaN where the PSD is not positive), computed here
     /// so the window only decimates and maps (see [`super::state::unit_affine`]).
     pub log_psd: Option<Arc<Vec<f64>>>,
+    /// Min/max blocks of `log_psd` (made here once per spectrum, so the window's decimation
+    /// reads wide pixel columns from them).
+    pub log_psd_blocks: Option<Arc<MinMaxBlocks>>,
     /// Analysis of that spectrum.
     pub report: Option<Arc<Report>>,
     /// Why the analysis failed (bad options), if it did.
@@ -340,6 +343,7 @@ struct Worker {
     spectrum: Option<Arc<Spectrum>>,
     frequencies_hz: Option<Arc<Vec<f64>>>,
     log_psd: Option<Arc<Vec<f64>>>,
+    log_psd_blocks: Option<Arc<MinMaxBlocks>>,
     report: Option<Arc<Report>>,
     analysis_error: Option<String>,
     segments_at_analysis: usize,
@@ -387,6 +391,7 @@ impl Worker {
             spectrum: None,
             frequencies_hz: None,
             log_psd: None,
+            log_psd_blocks: None,
             report: None,
             analysis_error: None,
             segments_at_analysis: 0,
@@ -460,6 +465,7 @@ impl Worker {
                 self.spectrum = None;
                 self.frequencies_hz = None;
                 self.log_psd = None;
+                self.log_psd_blocks = None;
                 self.report = None;
                 self.analysis_error = None;
                 self.last_history = None;
@@ -767,6 +773,10 @@ impl Worker {
                         })
                         .collect(),
                 ));
+                self.log_psd_blocks = self
+                    .log_psd
+                    .as_deref()
+                    .map(|l| Arc::new(MinMaxBlocks::new(l)));
             }
             self.segments_at_analysis = segments;
             self.analyse();
@@ -836,6 +846,7 @@ impl Worker {
             spectrum: self.spectrum.clone(),
             frequencies_hz: self.frequencies_hz.clone(),
             log_psd: self.log_psd.clone(),
+            log_psd_blocks: self.log_psd_blocks.clone(),
             report: self.report.clone(),
             analysis_error: self.analysis_error.clone(),
             band_hz: self.band_hz,

@@ -22,6 +22,8 @@ pub struct LoadedSnapshot {
     /// window only decimates and maps it (as the live trace's `Frame::log_psd`); shared, so
     /// the window's plot caches can tell this snapshot's data apart from any other.
     pub log_psd: std::sync::Arc<Vec<f64>>,
+    /// Min/max blocks of `log_psd` (for the plot's decimation).
+    pub log_psd_blocks: std::sync::Arc<super::MinMaxBlocks>,
     /// Calibration saved with it, m/V.
     pub m_per_v: Option<f64>,
     /// Stray resonances found in it (the reference list for "new since snapshot").
@@ -89,7 +91,15 @@ fn from_snapshot(s: crate::snapshot::Snapshot) -> LoadedSnapshot {
     } else {
         s.meta.label.clone()
     };
+    let log_psd: Vec<f64> = s
+        .spectrum
+        .psd_v2_per_hz
+        .iter()
+        .map(|&p| if p > 0.0 { p.log10() } else { f64::NAN })
+        .collect();
     LoadedSnapshot {
+        log_psd_blocks: std::sync::Arc::new(super::MinMaxBlocks::new(&log_psd)),
+        log_psd: std::sync::Arc::new(log_psd),
         name,
         frequencies_hz: s.spectrum.frequencies_hz(),
         m_per_v: s.meta.calibration.as_ref().map(|c| c.m_per_v),
@@ -99,13 +109,6 @@ fn from_snapshot(s: crate::snapshot::Snapshot) -> LoadedSnapshot {
             .as_ref()
             .map(|r| r.peaks.clone())
             .unwrap_or_default(),
-        log_psd: std::sync::Arc::new(
-            s.spectrum
-                .psd_v2_per_hz
-                .iter()
-                .map(|&p| if p > 0.0 { p.log10() } else { f64::NAN })
-                .collect(),
-        ),
         spectrum: s.spectrum,
         path: s.path,
         visible: true,

@@ -20,7 +20,7 @@ use crate::model::curves::{ModeShape, grid_around_mode};
 use crate::model::state::{
     plot_y, plot_y_from_m2, unit_affine, unit_is_db, unit_is_displacement, unit_label, unit_short,
 };
-use crate::model::{AppState, LiveState, LoadedSnapshot, decimate_minmax};
+use crate::model::{AppState, LiveState, LoadedSnapshot, MinMaxBlocks, decimate_minmax_with};
 
 /// Plot-side state: view requests, band dragging, cached per-bin y values.
 #[derive(Debug, Default)]
@@ -52,7 +52,7 @@ pub struct PlotState {
     view_initialised: bool,
 }
 
-/// A min/max-decimated trace ([`decimate_minmax`]) kept until its data, the view or the
+/// A min/max-decimated trace ([`decimate_minmax_with`]) kept until its data, the view or the
 /// plot's width change: a frame that only redraws (the pointer moves, a panel opens) makes
 /// no pass over the bins; a new analysis or a pan or zoom makes exactly one.
 #[derive(Debug, Default)]
@@ -74,6 +74,7 @@ impl TraceCache {
         &mut self,
         freqs: &[f64],
         values: &Arc<Vec<f64>>,
+        blocks: Option<&MinMaxBlocks>,
         view_hz: (f64, f64),
         columns: usize,
     ) -> &[[f64; 2]] {
@@ -81,7 +82,7 @@ impl TraceCache {
             && self.view_hz == view_hz
             && self.columns == columns;
         if !same {
-            self.points = decimate_minmax(freqs, values, view_hz, columns);
+            self.points = decimate_minmax_with(freqs, values, blocks, view_hz, columns);
             self.range = self
                 .points
                 .iter()
@@ -147,6 +148,7 @@ impl PlotState {
             .unwrap_or(&empty);
         let logs_arc: Arc<Vec<f64>> = frame.and_then(|f| f.log_psd.clone()).unwrap_or_default();
         let logs: &[f64] = &logs_arc;
+        let blocks = frame.and_then(|f| f.log_psd_blocks.clone());
         let affine = unit_affine(unit, m_per_v);
         let have_data = affine.is_some() && logs.iter().any(|y| y.is_finite());
         if !have_data {
@@ -335,7 +337,7 @@ impl PlotState {
             // The live trace for this view: decimated once per new spectrum, pan or zoom.
             let mut pts = self
                 .live_trace
-                .update(freqs, &logs_arc, view_hz, columns)
+                .update(freqs, &logs_arc, blocks.as_deref(), view_hz, columns)
                 .to_vec();
             for p in &mut pts {
                 p[1] = ya * p[1] + yb;
@@ -377,7 +379,13 @@ impl PlotState {
                         continue;
                     };
                     let mut pts = cache
-                        .update(&s.frequencies_hz, &s.log_psd, view_hz, columns)
+                        .update(
+                            &s.frequencies_hz,
+                            &s.log_psd,
+                            Some(&s.log_psd_blocks),
+                            view_hz,
+                            columns,
+                        )
                         .to_vec();
                     for p in &mut pts {
                         p[1] = sa * p[1] + sb;

@@ -24,7 +24,9 @@ use eframe::egui;
 use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
 use stillpoint::dsp::{Averaging, Detrend, Spectrum, WindowKind};
-use stillpoint::model::{EngineStatus, Frame, TrendPoint, WaterfallRow, log_columns_max};
+use stillpoint::model::{
+    EngineStatus, Frame, MinMaxBlocks, TrendPoint, WaterfallRow, log_columns_max,
+};
 use stillpoint::report::AnalysisOptions;
 use stillpoint::ui::{MonitorOptions, StillpointApp};
 
@@ -48,7 +50,7 @@ fn spectrum(seed: u64) -> Spectrum {
             let f = k as f64;
             let g: f64 = 25.0;
             let mode = 1e-9 * (g / 2.0).powi(2) / ((f - 86_000.0).powi(2) + (g / 2.0).powi(2));
-            let line = if k > 0 && k % 61_231 == 0 { 1e-10 } else { 0.0 };
+            let line = if k > 0 && k.is_multiple_of(61_231) { 1e-10 } else { 0.0 };
             1e-12 * (0.8 + 0.4 * u) + mode + line
         })
         .collect();
@@ -99,8 +101,10 @@ fn frame(seed: u64, freqs: &Arc<Vec<f64>>, options: &AnalysisOptions) -> Frame {
         rbw_hz: 1.5,
         ..EngineStatus::default()
     };
+    let blocks = MinMaxBlocks::new(&log_psd);
     Frame {
         generation: 1,
+        log_psd_blocks: Some(Arc::new(blocks)),
         spectrum: Some(Arc::new(s)),
         frequencies_hz: Some(Arc::clone(freqs)),
         log_psd: Some(Arc::new(log_psd)),
@@ -175,8 +179,9 @@ fn main() {
         // A new analysis each frame (new shared buffers, as the engine publishes them).
         f.spectrum = f.spectrum.map(|s| Arc::new((*s).clone()));
         f.log_psd = f.log_psd.map(|l| Arc::new((*l).clone()));
+        f.log_psd_blocks = f.log_psd_blocks.map(|b| Arc::new((*b).clone()));
         f.report = f.report.map(|r| Arc::new((*r).clone()));
-        if seq % 8 != 0 {
+        if !seq.is_multiple_of(8) {
             f.waterfall_row = None;
             f.trend = None;
         }
