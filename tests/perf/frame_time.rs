@@ -50,7 +50,11 @@ fn spectrum(seed: u64) -> Spectrum {
             let f = k as f64;
             let g: f64 = 25.0;
             let mode = 1e-9 * (g / 2.0).powi(2) / ((f - 86_000.0).powi(2) + (g / 2.0).powi(2));
-            let line = if k > 0 && k.is_multiple_of(61_231) { 1e-10 } else { 0.0 };
+            let line = if k > 0 && k.is_multiple_of(61_231) {
+                1e-10
+            } else {
+                0.0
+            };
             1e-12 * (0.8 + 0.4 * u) + mode + line
         })
         .collect();
