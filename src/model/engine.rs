@@ -339,9 +339,6 @@ struct Worker {
     generation: u64,
     status: EngineStatus,
     band_hz: Option<(f64, f64)>,
-    /// The union of the bands the fit followed the mode through since the source opened (a
-    /// recording's whole-record mean is fitted over it when the last band finds no mode).
-    band_seen_hz: Option<(f64, f64)>,
     waterfall_range_hz: Option<(f64, f64)>,
     spectrum: Option<Arc<Spectrum>>,
     frequencies_hz: Option<Arc<Vec<f64>>>,
@@ -390,7 +387,6 @@ impl Worker {
             generation: 0,
             status: EngineStatus::default(),
             band_hz,
-            band_seen_hz: None,
             waterfall_range_hz: None,
             spectrum: None,
             frequencies_hz: None,
@@ -475,7 +471,6 @@ impl Worker {
                 self.last_history = None;
                 self.last_segment_arrival = None;
                 self.band_hz = self.config.analysis.mode_band_hz;
-                self.band_seen_hz = None;
                 self.waterfall_range_hz = None;
                 self.status = EngineStatus::default();
                 self.marks.clear();
@@ -581,7 +576,6 @@ impl Worker {
                     self.mark(format!("fit band set to {:.0} … {:.0} Hz", lo, hi));
                 }
                 self.band_hz = options.mode_band_hz;
-                self.band_seen_hz = None;
                 self.config.analysis = options;
                 self.config.follow_mode = follow_mode;
                 self.analyse();
@@ -740,29 +734,6 @@ impl Worker {
                 self.band_hz = new_band;
                 options.mode_band_hz = new_band;
                 result = report::analyze(&spectrum, &options);
-            }
-            if let Some((lo, hi)) = self.band_hz {
-                self.band_seen_hz = Some(
-                    self.band_seen_hz
-                        .map_or((lo, hi), |(a, b)| (a.min(lo), b.max(hi))),
-                );
-            }
-            // The end of a recording: the mean of the whole record smears a mode that moved
-            // (a cooldown); when the last band finds no mode, fit over every band the mode
-            // was followed through.
-            let ended_recording = self.status.ended.is_some()
-                && !self.status.failed
-                && !self.source.as_ref().is_some_and(|s| s.live);
-            if ended_recording
-                && result.as_ref().is_ok_and(|r| r.mode.frequency_hz.is_none())
-                && let Some(seen) = self.band_seen_hz.filter(|b| Some(*b) != self.band_hz)
-            {
-                options.mode_band_hz = Some(seen);
-                let wide = report::analyze(&spectrum, &options);
-                if wide.as_ref().is_ok_and(|r| r.mode.frequency_hz.is_some()) {
-                    self.band_hz = Some(seen);
-                    result = wide;
-                }
             }
         }
         match result {
