@@ -50,6 +50,9 @@ pub struct PlotState {
     /// left half in the last frame), else to the top left: it never covers the mode's peak.
     legend_right: bool,
     view_initialised: bool,
+    /// The user has panned or zoomed the plot: the y range is theirs from then on (until a
+    /// zoom command or a unit change); before that it follows each new spectrum.
+    user_view: bool,
 }
 
 /// A min/max-decimated trace ([`decimate_minmax_with`]) kept until its data, the view or the
@@ -253,6 +256,9 @@ impl PlotState {
         let with_refs = move |r: Option<(f64, f64)>| {
             r.map(|(a, b)| (zp_y.map_or(a, |z| a.min(z - if db { 5.0 } else { 0.5 })), b))
         };
+        if self.request_x.is_some() || self.reset_y {
+            self.user_view = false;
+        }
         if let Some((x0, x1)) = self.request_x.take() {
             let (y0, y1) = with_refs(y_range_in(
                 freqs,
@@ -272,6 +278,7 @@ impl PlotState {
         let mut zoom_to: Option<(f64, f64)> = None;
         let mut hovered = false;
         let mut legend_right = self.legend_right;
+        let mut user_view = self.user_view;
         let mut plot_rect = self.rect;
 
         let y_label = unit_label(unit);
@@ -335,6 +342,11 @@ impl PlotState {
             self.view_hz = Some(view_hz);
             let columns = pui.response().rect.width().max(100.0) as usize;
             // The live trace for this view: decimated once per new spectrum, pan or zoom.
+            let new_data = !self
+                .live_trace
+                .data
+                .as_ref()
+                .is_some_and(|d| Arc::ptr_eq(d, &logs_arc));
             let mut pts = self
                 .live_trace
                 .update(freqs, &logs_arc, blocks.as_deref(), view_hz, columns)
@@ -347,7 +359,10 @@ impl PlotState {
             // falls by decades): re-fit as if asked to.
             let (by0, by1) = (bounds.min()[1], bounds.max()[1]);
             let lost = in_view.is_some_and(|(d0, d1)| d1 < by0 + 0.15 * (by1 - by0) || d0 > by1);
-            if (reset_y || lost)
+            // Until the user pans or zooms, the y range follows every new spectrum (the first
+            // one may be a young average with the mode's peak still far below its final height).
+            let follow = new_data && !self.user_view;
+            if (reset_y || lost || follow)
                 && let Some((y0, y1)) = with_refs(in_view)
             {
                 let pad = if db { 3.0 } else { 0.3 };
@@ -570,6 +585,13 @@ impl PlotState {
                 }
             }
             hovered = resp.contains_pointer();
+            let scrolled = hovered
+                && pui
+                    .ctx()
+                    .input(|i| i.smooth_scroll_delta != egui::Vec2::ZERO);
+            if resp.dragged() || scrolled {
+                user_view = true;
+            }
             plot_rect = Some(resp.rect);
             if band_mode {
                 if resp.drag_started() {
@@ -594,6 +616,7 @@ impl PlotState {
         self.band_drag_start = drag_start;
         self.hovered = hovered;
         self.legend_right = legend_right;
+        self.user_view = user_view;
         self.rect = plot_rect;
         if let Some((lo, hi)) = zoom_to {
             out.push(UiCommand::ZoomTo(lo, hi));
