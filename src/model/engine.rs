@@ -10,7 +10,7 @@ use std::time::{Duration, Instant};
 
 use crossbeam_channel::{Receiver, Sender, TrySendError, bounded, never, select};
 
-use super::decimate::log_columns_max;
+use super::decimate::{MinMaxBlocks, log_columns_max};
 use super::history::{TrendPoint, WaterfallRow};
 use super::state::{SourceKind, WelchSettings};
 use super::{ModelError, Result};
@@ -170,6 +170,9 @@ pub struct Frame {
     /// log10 of `spectrum`'s PSD in V²/Hz (NaN where the PSD is not positive), computed here
     /// so the window only decimates and maps (see [`super::state::unit_affine`]).
     pub log_psd: Option<Arc<Vec<f64>>>,
+    /// Min/max blocks of `log_psd` (made here once per spectrum, so the window's decimation
+    /// reads wide pixel columns from them).
+    pub log_psd_blocks: Option<Arc<MinMaxBlocks>>,
     /// Two detectors (`cross_channel` set on the source): both channels' PSDs, the
     /// cross-spectral density and the coherence, of which `spectrum` is channel a.
     pub cross: Option<Arc<CrossSpectrum>>,
@@ -351,6 +354,7 @@ struct Worker {
     spectrum: Option<Arc<Spectrum>>,
     frequencies_hz: Option<Arc<Vec<f64>>>,
     log_psd: Option<Arc<Vec<f64>>>,
+    log_psd_blocks: Option<Arc<MinMaxBlocks>>,
     report: Option<Arc<Report>>,
     analysis_error: Option<String>,
     segments_at_analysis: usize,
@@ -400,6 +404,7 @@ impl Worker {
             spectrum: None,
             frequencies_hz: None,
             log_psd: None,
+            log_psd_blocks: None,
             report: None,
             analysis_error: None,
             segments_at_analysis: 0,
@@ -482,6 +487,7 @@ impl Worker {
                 self.cross_spectrum = None;
                 self.frequencies_hz = None;
                 self.log_psd = None;
+                self.log_psd_blocks = None;
                 self.report = None;
                 self.analysis_error = None;
                 self.last_history = None;
@@ -851,6 +857,10 @@ impl Worker {
                         })
                         .collect(),
                 ));
+                self.log_psd_blocks = self
+                    .log_psd
+                    .as_deref()
+                    .map(|l| Arc::new(MinMaxBlocks::new(l)));
             }
             self.segments_at_analysis = segments;
             self.analyse();
@@ -925,6 +935,7 @@ impl Worker {
             cross_channels: self.cross_channels(),
             frequencies_hz: self.frequencies_hz.clone(),
             log_psd: self.log_psd.clone(),
+            log_psd_blocks: self.log_psd_blocks.clone(),
             report: self.report.clone(),
             analysis_error: self.analysis_error.clone(),
             band_hz: self.band_hz,

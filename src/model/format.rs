@@ -157,10 +157,65 @@ const WINDOW_WORDS: [(&str, &str); 24] = [
     ("--rate", "rate (Hz)"),
 ];
 
+/// Whole phrases of the command line's wording (option syntax, JSON keys) and what the
+/// window says instead, applied before the single option names of [`WINDOW_WORDS`].
+const WINDOW_PHRASES: [(&str, &str); 15] = [
+    (
+        "areas are per sideband (sidebands.*)",
+        "areas are per sideband (the Sidebands section)",
+    ),
+    (
+        "mode: no --mode-band given; mode and quantum keys are null",
+        "mode: no fit band (set band low and band high, or let the band follow the mode); no mode fit and no quantum values",
+    ),
+    (
+        "calibration: none (give --m-per-v, a tone, or --bath-temperature with --mass); calibrated keys are null",
+        "calibration: none (choose a calibration method); nothing is shown in metres",
+    ),
+    (
+        "--mode-band with --carrier must be LO:HI offsets with 0 <= LO < HI, got",
+        "with a carrier the fit band is of f_m (offsets from the carrier) and needs 0 ≤ band low < band high; got",
+    ),
+    (
+        "--mode-band must be LO:HI with LO < HI, got",
+        "the fit band needs band low below band high; got",
+    ),
+    (
+        "--carrier needs --mode-band LO:HI (the band of f_m, offsets from the carrier)",
+        "carrier needs a fit band: band low and band high of f_m (offsets from the carrier)",
+    ),
+    (
+        "--carrier needs --lo-side above|below",
+        "carrier needs 'LO is above/below the laser'",
+    ),
+    (
+        "needs --mass (effective mass, kg)",
+        "needs the effective mass (kg)",
+    ),
+    (
+        "occupancy from the sideband ratio (sidebands.occupancy); quantum.occupancy needs a calibration",
+        "occupancy from the sideband ratio; the occupancy from the line areas needs a calibration",
+    ),
+    (
+        "--rms-band must be LO:HI in Hz with 0 <= LO < HI, got",
+        "the rms band needs 0 ≤ low < high; got",
+    ),
+    ("--rms-band", "the rms band"),
+    ("--imbalance-tones", "the imbalance tones"),
+    ("--follow", "follow growing file"),
+    ("--sloped-background", "sloped background under the mode"),
+    ("--sideband-imbalance", "imbalance η_r/η_b"),
+];
+
 /// `text` in the window's words: command-line option names become the labels of the
 /// window's controls, and JSON wording ("keys are null") becomes what the window shows.
 pub(crate) fn window_words(text: &str) -> String {
     let mut out = text.to_string();
+    for (phrase, words) in WINDOW_PHRASES {
+        if out.contains(phrase) {
+            out = out.replace(phrase, words);
+        }
+    }
     for (flag, label) in WINDOW_WORDS {
         if out.contains(flag) {
             out = out.replace(flag, label);
@@ -239,7 +294,7 @@ mod tests {
             window_words(
                 "calibration: none (give --m-per-v, a tone, or --bath-temperature with --mass); calibrated keys are null"
             ),
-            "calibration: none (give m/V, a tone, or bath T with the effective mass); nothing is shown in metres"
+            "calibration: none (choose a calibration method); nothing is shown in metres"
         );
         assert_eq!(
             window_words("--bath-temperature-uncertainty (K) must be ≥ 0"),
@@ -247,11 +302,142 @@ mod tests {
         );
         assert_eq!(
             window_words("--carrier needs --lo-side above|below"),
-            "carrier needs LO above/below the laser"
+            "carrier needs 'LO is above/below the laser'"
         );
         assert!(
             !window_words("no --mode-band given; mode and quantum keys are null").contains("--")
         );
+    }
+
+    /// Every note, warning and error the analysis gives for a range of settings reads in
+    /// the window's words: no option name, no option syntax, no JSON key wording.
+    #[test]
+    fn analysis_messages_in_the_window_name_no_flags() {
+        use crate::analysis::{AnalysisOptions, analyze};
+        use crate::dsp::{Averaging, Detrend, Spectrum, WindowKind};
+        let n = 8193;
+        let psd: Vec<f64> = (0..n)
+            .map(|k| {
+                let f = k as f64 * 10.0;
+                let line = |f0: f64, a: f64| a * 100.0 / ((f - f0).powi(2) + 100.0);
+                1e-12 + line(30_000.0, 1e-9) + line(24_000.0, 1e-10) + line(36_000.0, 2e-10)
+            })
+            .collect();
+        let spectrum = Spectrum {
+            sample_rate_hz: 163_840.0,
+            segment: 16_384,
+            overlap: 0.5,
+            window: WindowKind::Hann,
+            detrend: Detrend::Mean,
+            averaging: Averaging::Linear,
+            averages: 20,
+            k_eff: 18.0,
+            resolution_hz: 10.0,
+            enbw_hz: 15.0,
+            psd_v2_per_hz: psd,
+        };
+        let band = Some((29_000.0, 31_000.0));
+        let base = AnalysisOptions::default;
+        let cases = [
+            base(),
+            AnalysisOptions {
+                mode_band_hz: band,
+                ..base()
+            },
+            AnalysisOptions {
+                mode_band_hz: band,
+                m_per_v: Some(1e-9),
+                tone_frequency_hz: Some(24_000.0),
+                tone_rms_m: Some(1e-12),
+                ..base()
+            },
+            AnalysisOptions {
+                mode_band_hz: band,
+                bath_temperature_k: Some(4.0),
+                ..base()
+            },
+            AnalysisOptions {
+                mode_band_hz: band,
+                bath_temperature_k: Some(4.0),
+                mass_kg: Some(1e-12),
+                ..base()
+            },
+            AnalysisOptions {
+                tone_frequency_hz: Some(24_000.0),
+                ..base()
+            },
+            AnalysisOptions {
+                tone_rms_m: Some(1e-12),
+                ..base()
+            },
+            AnalysisOptions {
+                pm_depth_rad: Some(0.1),
+                ..base()
+            },
+            AnalysisOptions {
+                carrier_hz: Some(30_000.0),
+                ..base()
+            },
+            AnalysisOptions {
+                carrier_hz: Some(30_000.0),
+                lo_above: Some(true),
+                ..base()
+            },
+            AnalysisOptions {
+                carrier_hz: Some(30_000.0),
+                lo_above: Some(true),
+                mode_band_hz: Some((5_000.0, 7_000.0)),
+                ..base()
+            },
+            AnalysisOptions {
+                carrier_hz: Some(30_000.0),
+                lo_above: Some(true),
+                mode_band_hz: Some((5_000.0, 40_000.0)),
+                ..base()
+            },
+            AnalysisOptions {
+                mode_band_hz: Some((31_000.0, 29_000.0)),
+                ..base()
+            },
+            AnalysisOptions {
+                mass_kg: Some(-1.0),
+                ..base()
+            },
+            AnalysisOptions {
+                m_per_v: Some(0.0),
+                ..base()
+            },
+            AnalysisOptions {
+                tone_frequency_hz: Some(1e9),
+                tone_rms_m: Some(1e-12),
+                ..base()
+            },
+        ];
+        let mut seen = 0;
+        let mut wrong: Vec<String> = Vec::new();
+        for options in &cases {
+            let texts: Vec<String> = match analyze(&spectrum, options) {
+                Ok(r) => r.notes.iter().chain(&r.warnings).cloned().collect(),
+                Err(e) => vec![e.to_string()],
+            };
+            for t in texts {
+                seen += 1;
+                let w = window_words(&t);
+                if ["--", "keys are null", "LO:HI", "sidebands.", "quantum."]
+                    .iter()
+                    .any(|bad| w.contains(bad))
+                {
+                    wrong.push(format!("{w}    (from: {t})"));
+                }
+            }
+        }
+        wrong.dedup();
+        assert!(
+            wrong.is_empty(),
+            "not in the window's words:\n{}",
+            wrong.join("\n")
+        );
+        assert!(seen >= 20, "only {seen} messages");
     }
 
     #[test]

@@ -21,7 +21,9 @@ pub mod snapshots;
 pub mod state;
 pub mod trend;
 
-pub use decimate::{bench_plot_prep, decimate_minmax, log_columns_max};
+pub use decimate::{
+    MinMaxBlocks, bench_plot_prep, decimate_minmax, decimate_minmax_with, log_columns_max,
+};
 pub use engine::{
     Engine, EngineCommand, EngineConfig, EngineNotice, EngineStatus, Frame, SessionMark, Waker,
 };
@@ -135,6 +137,7 @@ mod tests {
             cross_channels: None,
             frequencies_hz: None,
             log_psd: None,
+            log_psd_blocks: None,
             report: None,
             analysis_error: None,
             band_hz: None,

@@ -18,6 +18,12 @@ pub struct LoadedSnapshot {
     pub frequencies_hz: Vec<f64>,
     /// The saved spectrum (PSD in V²/Hz and its settings).
     pub spectrum: Spectrum,
+    /// log10 of its PSD in V²/Hz (NaN where not positive), computed once at load so the
+    /// window only decimates and maps it (as the live trace's `Frame::log_psd`); shared, so
+    /// the window's plot caches can tell this snapshot's data apart from any other.
+    pub log_psd: std::sync::Arc<Vec<f64>>,
+    /// Min/max blocks of `log_psd` (for the plot's decimation).
+    pub log_psd_blocks: std::sync::Arc<super::MinMaxBlocks>,
     /// Calibration saved with it, m/V.
     pub m_per_v: Option<f64>,
     /// Stray resonances found in it (the reference list for "new since snapshot").
@@ -85,7 +91,15 @@ fn from_snapshot(s: crate::snapshot::Snapshot) -> LoadedSnapshot {
     } else {
         s.meta.label.clone()
     };
+    let log_psd: Vec<f64> = s
+        .spectrum
+        .psd_v2_per_hz
+        .iter()
+        .map(|&p| if p > 0.0 { p.log10() } else { f64::NAN })
+        .collect();
     LoadedSnapshot {
+        log_psd_blocks: std::sync::Arc::new(super::MinMaxBlocks::new(&log_psd)),
+        log_psd: std::sync::Arc::new(log_psd),
         name,
         frequencies_hz: s.spectrum.frequencies_hz(),
         m_per_v: s.meta.calibration.as_ref().map(|c| c.m_per_v),

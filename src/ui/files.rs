@@ -38,8 +38,19 @@ pub struct FileState {
     pub dialog_note: Option<String>,
     /// The two snapshots compared (indices).
     pub compare: Option<(usize, usize)>,
+    /// The comparison drawn: made once per pair of snapshots, not per frame.
+    pub compare_cache: Option<CompareCache>,
     /// Results of PNG exports, written by the screenshot callback (another thread).
     pub png_results: std::sync::Arc<std::sync::Mutex<Vec<Result<String, String>>>>,
+}
+
+/// A comparison of two snapshots ready to draw, with the data it was made from.
+#[derive(Debug, Clone)]
+pub struct CompareCache {
+    /// The log10 PSDs of the two snapshots (held, so other data are never taken for them).
+    pub of: (std::sync::Arc<Vec<f64>>, std::sync::Arc<Vec<f64>>),
+    /// `[log10 f, dB]` points of the ratio, or why there is none.
+    pub points: Result<Vec<[f64; 2]>, String>,
 }
 
 /// True if a native file dialog has a chance of opening (a D-Bus session for the desktop

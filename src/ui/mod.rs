@@ -244,6 +244,8 @@ pub struct StillpointApp {
     frame_cpu_s: f64,
     /// CPU time of this frame's logic, s.
     logic_cpu_s: f64,
+    /// CPU time of the last frame (logic + drawing), s, not smoothed (the benchmark reads it).
+    last_frame_cpu_s: f64,
     /// Where the panels and the plot were drawn in the last frame (tests read it).
     layout: Layout,
 }
@@ -379,6 +381,7 @@ impl StillpointApp {
             sent_welch: WelchSettings::default(),
             frame_cpu_s: 0.0,
             logic_cpu_s: 0.0,
+            last_frame_cpu_s: 0.0,
             layout: Layout::default(),
         };
         app.ui.sync_from(&app.state);
@@ -475,6 +478,18 @@ impl StillpointApp {
     /// Where the panels and the plot were drawn in the last frame (tests read it).
     pub fn layout(&self) -> Layout {
         self.layout
+    }
+
+    /// CPU time of the last frame (logic and drawing), not smoothed, s.
+    pub fn last_frame_cpu_s(&self) -> f64 {
+        self.last_frame_cpu_s
+    }
+
+    /// Stops the engine and shows `frame` as if the engine had sent it (the frame-time
+    /// benchmark, `tests/frame_time.rs`, feeds its own spectra with it).
+    pub fn show_frame(&mut self, frame: model::Frame) {
+        self.engine = None;
+        self.live.apply(frame);
     }
 
     fn error(&mut self, kind: MessageKind, text: impl Into<String>) {
@@ -1155,6 +1170,7 @@ impl eframe::App for StillpointApp {
             ctx.request_repaint_after(Duration::from_secs_f64(dt.clamp(0.05, 60.0)));
         }
         let cpu = self.logic_cpu_s + t0.elapsed().as_secs_f64();
+        self.last_frame_cpu_s = cpu;
         self.frame_cpu_s = if self.frame_cpu_s > 0.0 {
             0.9 * self.frame_cpu_s + 0.1 * cpu
         } else {

@@ -5,6 +5,7 @@
 //! drawing, so a 10⁶-bin spectrum costs about a millisecond per frame and narrow lines stay.
 
 use std::ops::RangeInclusive;
+use std::sync::Arc;
 
 use eframe::egui::{self, Ui, Vec2b};
 use egui_plot::{
@@ -19,7 +20,7 @@ use crate::model::curves::{ModeShape, grid_around_mode};
 use crate::model::state::{
     plot_y, plot_y_from_m2, unit_affine, unit_is_db, unit_is_displacement, unit_label, unit_short,
 };
-use crate::model::{AppState, LiveState, LoadedSnapshot, decimate_minmax};
+use crate::model::{AppState, LiveState, LoadedSnapshot, MinMaxBlocks, decimate_minmax_with};
 
 /// Plot-side state: view requests, band dragging, cached per-bin y values.
 #[derive(Debug, Default)]
@@ -41,10 +42,68 @@ pub struct PlotState {
     pub hovered: bool,
     /// Where the plot was drawn in the last frame.
     pub rect: Option<egui::Rect>,
+    /// The live trace decimated for the view.
+    live_trace: TraceCache,
+    /// Each snapshot's trace decimated for the view (in the order of the list).
+    snapshot_traces: Vec<TraceCache>,
     /// The legend goes to the top right (the highest point of the trace in view was in the
     /// left half in the last frame), else to the top left: it never covers the mode's peak.
     legend_right: bool,
     view_initialised: bool,
+    /// The user has panned or zoomed the plot: the y range is theirs from then on (until a
+    /// zoom command or a unit change); before that it follows each new spectrum.
+    user_view: bool,
+}
+
+/// A min/max-decimated trace ([`decimate_minmax_with`]) kept until its data, the view or the
+/// plot's width change: a frame that only redraws (the pointer moves, a panel opens) makes
+/// no pass over the bins; a new analysis or a pan or zoom makes exactly one.
+#[derive(Debug, Default)]
+struct TraceCache {
+    /// The data decimated (held, so a new buffer is never mistaken for it).
+    data: Option<Arc<Vec<f64>>>,
+    view_hz: (f64, f64),
+    columns: usize,
+    /// `[log10 f, value]`, ascending in f.
+    points: Vec<[f64; 2]>,
+    /// (min, max) of the points' values.
+    range: Option<(f64, f64)>,
+}
+
+impl TraceCache {
+    /// The decimated points of `values` (on `freqs`) for the view, from the cache when
+    /// nothing changed.
+    fn update(
+        &mut self,
+        freqs: &[f64],
+        values: &Arc<Vec<f64>>,
+        blocks: Option<&MinMaxBlocks>,
+        view_hz: (f64, f64),
+        columns: usize,
+    ) -> &[[f64; 2]] {
+        let same = self.data.as_ref().is_some_and(|d| Arc::ptr_eq(d, values))
+            && self.view_hz == view_hz
+            && self.columns == columns;
+        if !same {
+            self.points = decimate_minmax_with(freqs, values, blocks, view_hz, columns);
+            self.range = self
+                .points
+                .iter()
+                .fold(None, |r: Option<(f64, f64)>, p| {
+                    Some(r.map_or((p[1], p[1]), |(a, b)| (a.min(p[1]), b.max(p[1]))))
+                })
+                .filter(|(a, b)| b > a);
+            self.data = Some(Arc::clone(values));
+            self.view_hz = view_hz;
+            self.columns = columns;
+        }
+        &self.points
+    }
+
+    /// (min, max) of the cached trace mapped by `y = a·v + b` (a > 0).
+    fn y_range(&self, (a, b): (f64, f64)) -> Option<(f64, f64)> {
+        self.range.map(|(lo, hi)| (a * lo + b, a * hi + b))
+    }
 }
 
 /// (min, max) of the finite log10 PSD values in a frequency range, mapped to plot y.
@@ -90,7 +149,9 @@ impl PlotState {
         let freqs: &[f64] = frame
             .and_then(|f| f.frequencies_hz.as_deref())
             .unwrap_or(&empty);
-        let logs: &[f64] = frame.and_then(|f| f.log_psd.as_deref()).unwrap_or(&empty);
+        let logs_arc: Arc<Vec<f64>> = frame.and_then(|f| f.log_psd.clone()).unwrap_or_default();
+        let logs: &[f64] = &logs_arc;
+        let blocks = frame.and_then(|f| f.log_psd_blocks.clone());
         let affine = unit_affine(unit, m_per_v);
         let have_data = affine.is_some() && logs.iter().any(|y| y.is_finite());
         if !have_data {
@@ -195,6 +256,9 @@ impl PlotState {
         let with_refs = move |r: Option<(f64, f64)>| {
             r.map(|(a, b)| (zp_y.map_or(a, |z| a.min(z - if db { 5.0 } else { 0.5 })), b))
         };
+        if self.request_x.is_some() || self.reset_y {
+            self.user_view = false;
+        }
         if let Some((x0, x1)) = self.request_x.take() {
             let (y0, y1) = with_refs(y_range_in(
                 freqs,
@@ -214,6 +278,7 @@ impl PlotState {
         let mut zoom_to: Option<(f64, f64)> = None;
         let mut hovered = false;
         let mut legend_right = self.legend_right;
+        let mut user_view = self.user_view;
         let mut plot_rect = self.rect;
 
         let y_label = unit_label(unit);
@@ -275,18 +340,34 @@ impl PlotState {
             let (x0, x1) = (bounds.min()[0], bounds.max()[0]);
             let view_hz = (10f64.powf(x0), 10f64.powf(x1));
             self.view_hz = Some(view_hz);
+            let columns = pui.response().rect.width().max(100.0) as usize;
+            // The live trace for this view: decimated once per new spectrum, pan or zoom.
+            let new_data = !self
+                .live_trace
+                .data
+                .as_ref()
+                .is_some_and(|d| Arc::ptr_eq(d, &logs_arc));
+            let mut pts = self
+                .live_trace
+                .update(freqs, &logs_arc, blocks.as_deref(), view_hz, columns)
+                .to_vec();
+            for p in &mut pts {
+                p[1] = ya * p[1] + yb;
+            }
+            let in_view = self.live_trace.y_range((ya, yb));
             // Follow the data when the whole trace has left the y range (a cooling mode
             // falls by decades): re-fit as if asked to.
             let (by0, by1) = (bounds.min()[1], bounds.max()[1]);
-            let lost = y_range_in(freqs, logs, view_hz, (ya, yb))
-                .is_some_and(|(d0, d1)| d1 < by0 + 0.15 * (by1 - by0) || d0 > by1);
-            if (reset_y || lost)
-                && let Some((y0, y1)) = with_refs(y_range_in(freqs, logs, view_hz, (ya, yb)))
+            let lost = in_view.is_some_and(|(d0, d1)| d1 < by0 + 0.15 * (by1 - by0) || d0 > by1);
+            // Until the user pans or zooms, the y range follows every new spectrum (the first
+            // one may be a young average with the mode's peak still far below its final height).
+            let follow = new_data && !self.user_view;
+            if (reset_y || lost || follow)
+                && let Some((y0, y1)) = with_refs(in_view)
             {
                 let pad = if db { 3.0 } else { 0.3 };
                 pui.set_plot_bounds_y(y0 - pad..=y1 + pad);
             }
-            let columns = pui.response().rect.width().max(100.0) as usize;
 
             // Fit band (shaded) first, so the traces draw over it.
             if overlays.band {
@@ -298,23 +379,32 @@ impl PlotState {
                     );
                 }
             }
-            // Snapshots.
+            // Snapshots (each decimated once per view, from log10 values made at load).
             if overlays.snapshots {
+                self.snapshot_traces
+                    .resize_with(snapshots.len(), TraceCache::default);
                 for (i, s) in snapshots.iter().filter(|s| s.visible).enumerate() {
                     // A snapshot is drawn in metres only with its own calibration (never the
                     // live source's); an uncalibrated one is left out in metre units and the
                     // snapshot list says so.
-                    if unit_is_displacement(unit) && s.m_per_v.is_none() {
+                    let Some((sa, sb)) = unit_affine(unit, s.m_per_v) else {
                         continue;
+                    };
+                    let Some(cache) = self.snapshot_traces.get_mut(i) else {
+                        continue;
+                    };
+                    let mut pts = cache
+                        .update(
+                            &s.frequencies_hz,
+                            &s.log_psd,
+                            Some(&s.log_psd_blocks),
+                            view_hz,
+                            columns,
+                        )
+                        .to_vec();
+                    for p in &mut pts {
+                        p[1] = sa * p[1] + sb;
                     }
-                    let c = s.m_per_v;
-                    let sy: Vec<f64> = s
-                        .spectrum
-                        .psd_v2_per_hz
-                        .iter()
-                        .map(|&p| plot_y(p, unit, c).unwrap_or(f64::NAN))
-                        .collect();
-                    let pts = decimate_minmax(&s.frequencies_hz, &sy, view_hz, columns);
                     if !pts.is_empty() {
                         let colour = theme::SNAPSHOT_COLOURS[i % theme::SNAPSHOT_COLOURS.len()];
                         pui.line(
@@ -326,10 +416,6 @@ impl PlotState {
                 }
             }
             // The live trace.
-            let mut pts = decimate_minmax(freqs, logs, view_hz, columns);
-            for p in &mut pts {
-                p[1] = ya * p[1] + yb;
-            }
             if let Some(top) = pts.iter().max_by(|a, b| a[1].total_cmp(&b[1])) {
                 // Hysteresis: the legend moves only when the peak is clearly on the other side.
                 let u = (top[0] - x0) / (x1 - x0);
@@ -499,6 +585,13 @@ impl PlotState {
                 }
             }
             hovered = resp.contains_pointer();
+            let scrolled = hovered
+                && pui
+                    .ctx()
+                    .input(|i| i.smooth_scroll_delta != egui::Vec2::ZERO);
+            if resp.dragged() || scrolled {
+                user_view = true;
+            }
             plot_rect = Some(resp.rect);
             if band_mode {
                 if resp.drag_started() {
@@ -523,6 +616,7 @@ impl PlotState {
         self.band_drag_start = drag_start;
         self.hovered = hovered;
         self.legend_right = legend_right;
+        self.user_view = user_view;
         self.rect = plot_rect;
         if let Some((lo, hi)) = zoom_to {
             out.push(UiCommand::ZoomTo(lo, hi));

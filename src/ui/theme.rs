@@ -88,7 +88,17 @@ pub fn install(ctx: &egui::Context) {
     v.widgets.hovered.weak_bg_fill = Color32::from_rgb(218, 208, 186);
     v.widgets.active.weak_bg_fill = Color32::from_rgb(205, 190, 150);
     ctx.set_visuals_of(egui::Theme::Light, v);
+    // egui's small text is 9 px: too small to read for notes, captions and plot titles.
+    ctx.all_styles_mut(|style| {
+        style.text_styles.insert(
+            egui::TextStyle::Small,
+            egui::FontId::proportional(SMALL_TEXT_PX),
+        );
+    });
 }
+
+/// Size of the window's small text (notes under panels, plot captions), px.
+pub const SMALL_TEXT_PX: f32 = 11.5;
 
 /// Colour of a waterfall cell: `t` in 0..1 from paper through sand and terracotta to plum.
 pub fn waterfall_colour(t: f32) -> Color32 {

@@ -1,10 +1,12 @@
 //! The snapshot list of the right panel: save (typed path or dialog), load, overlay,
 //! reference, compare.
 
+use std::sync::Arc;
+
 use eframe::egui::{self, RichText, Ui};
 
 use crate::model::{AppState, LoadedSnapshot};
-use crate::ui::files::FileState;
+use crate::ui::files::{CompareCache, FileState};
 use crate::ui::{UiCommand, theme};
 
 /// The snapshot list: save (typed path or dialog), load, overlay, reference, compare.
@@ -112,24 +114,17 @@ pub fn snapshots_ui(
         if let (Some(sa), Some(sb)) = (snapshots.get(a), snapshots.get(b))
             && a != b
         {
-            match crate::snapshot::compare(&sa.spectrum, &sb.spectrum) {
-                Ok(c) => {
-                    let pts: Vec<[f64; 2]> = c
-                        .frequency_hz
-                        .iter()
-                        .zip(&c.ratio)
-                        .filter(|(f, r)| **f > 0.0 && **r > 0.0 && r.is_finite())
-                        .map(|(f, r)| [f.log10(), 10.0 * r.log10()])
-                        .collect();
-                    let pts = crate::model::decimate_minmax(
-                        &pts.iter().map(|p| 10f64.powf(p[0])).collect::<Vec<_>>(),
-                        &pts.iter().map(|p| p[1]).collect::<Vec<_>>(),
-                        (
-                            c.frequency_hz.get(1).copied().unwrap_or(1.0),
-                            c.frequency_hz.last().copied().unwrap_or(10.0),
-                        ),
-                        400,
-                    );
+            let same = files.compare_cache.as_ref().is_some_and(|c| {
+                Arc::ptr_eq(&c.of.0, &sa.log_psd) && Arc::ptr_eq(&c.of.1, &sb.log_psd)
+            });
+            if !same {
+                files.compare_cache = Some(CompareCache {
+                    of: (Arc::clone(&sa.log_psd), Arc::clone(&sb.log_psd)),
+                    points: compare_points(sa, sb),
+                });
+            }
+            match files.compare_cache.as_ref().map(|c| &c.points) {
+                Some(Ok(pts)) => {
                     ui.label(
                         RichText::new(format!("{} ÷ {} (dB)", sa.name, sb.name))
                             .small()
@@ -142,16 +137,41 @@ pub fn snapshots_ui(
                         .y_axis_label("dB")
                         .show(ui, |pui| {
                             pui.line(
-                                egui_plot::Line::new("ratio", egui_plot::PlotPoints::new(pts))
-                                    .color(theme::TRACE),
+                                egui_plot::Line::new(
+                                    "ratio",
+                                    egui_plot::PlotPoints::new(pts.clone()),
+                                )
+                                .color(theme::TRACE),
                             );
                         });
                 }
-                Err(e) => {
-                    ui.label(RichText::new(e.to_string()).color(theme::WARN));
+                Some(Err(e)) => {
+                    ui.label(RichText::new(e).color(theme::WARN));
                 }
+                None => {}
             }
         }
     }
     out
+}
+
+/// The ratio a ÷ b in dB against log10 f, min/max-decimated to 400 columns.
+fn compare_points(a: &LoadedSnapshot, b: &LoadedSnapshot) -> Result<Vec<[f64; 2]>, String> {
+    let c = crate::snapshot::compare(&a.spectrum, &b.spectrum).map_err(|e| e.to_string())?;
+    let (freqs, db): (Vec<f64>, Vec<f64>) = c
+        .frequency_hz
+        .iter()
+        .zip(&c.ratio)
+        .filter(|(f, r)| **f > 0.0 && **r > 0.0 && r.is_finite())
+        .map(|(f, r)| (*f, 10.0 * r.log10()))
+        .unzip();
+    Ok(crate::model::decimate_minmax(
+        &freqs,
+        &db,
+        (
+            c.frequency_hz.get(1).copied().unwrap_or(1.0),
+            c.frequency_hz.last().copied().unwrap_or(10.0),
+        ),
+        400,
+    ))
 }
