@@ -592,7 +592,7 @@ pub(crate) fn validate(
         if !(lo.is_finite() && hi.is_finite() && lo >= 0.0 && lo < hi) {
             return Err(bad(
                 Setting::RmsBand,
-                format!("the rms band must be LO:HI in Hz with 0 <= LO < HI, got {lo}:{hi}"),
+                format!("the rms band needs 0 ≤ its low edge < its high edge, got {lo} … {hi} Hz"),
             ));
         }
         let half_rate = 0.5 * spectrum.sample_rate_hz;
@@ -614,7 +614,7 @@ pub(crate) fn validate(
         if !(lo.is_finite() && hi.is_finite() && lo < hi) {
             return Err(bad(
                 Setting::ModeBand,
-                format!("the mode band must be LO:HI with LO < HI, got {lo}:{hi}"),
+                format!("the mode band needs its low edge below its high edge, got {lo} … {hi} Hz"),
             ));
         }
         if options.carrier_hz.is_none() {

@@ -220,7 +220,7 @@ pub fn band_bins(spectrum: &Spectrum, band_hz: (f64, f64), what: &str) -> Result
     let nyquist = spectrum.resolution_hz * spectrum.len().saturating_sub(1) as f64;
     if !(lo.is_finite() && hi.is_finite()) || lo >= hi {
         return Err(PhysicsError::Input(format!(
-            "{what} must be LO:HI with LO < HI, got {lo}:{hi}"
+            "{what} needs its low edge below its high edge, got {lo} … {hi} Hz"
         )));
     }
     if lo < 0.0 || hi > nyquist * (1.0 + 1e-12) {
