@@ -75,35 +75,62 @@ pub(crate) fn welch_throughput(
     let mut welch = Welch::new(config.clone())?;
     welch.set_threads(threads);
     let record = synthetic_samples(record_len(&config), 1);
-    let per_pass = ((record.len() - config.segment) / config.hop() + 1) as u64;
+    let median = matches!(config.averaging, super::Averaging::Median);
+    let threads = welch.threads();
+    Ok(timed_passes(
+        &config,
+        record.len(),
+        duration_s,
+        threads,
+        &mut welch,
+        |welch| {
+            welch.push(&record);
+            // Each pass starts its own segments (drop the partial tail between passes).
+            welch.discard_pending();
+            if median {
+                welch.restart();
+            }
+        },
+        |welch| {
+            // Every pushed segment is averaged before the clock stops.
+            welch.flush();
+            std::hint::black_box(welch.spectrum());
+        },
+    ))
+}
+
+/// Runs `pass` on `averager` (one pass over a record of `len` samples per channel) until
+/// `duration_s` has passed, then `finish` (averaging what is in flight) before the clock
+/// stops.
+fn timed_passes<A>(
+    config: &WelchConfig,
+    len: usize,
+    duration_s: f64,
+    threads: usize,
+    averager: &mut A,
+    mut pass: impl FnMut(&mut A),
+    finish: impl FnOnce(&mut A),
+) -> Throughput {
+    let per_pass = ((len - config.segment) / config.hop() + 1) as u64;
     let start = Instant::now();
-    let mut segments = 0u64;
     let mut passes = 0u64;
     loop {
-        welch.push(&record);
-        segments += per_pass;
+        pass(averager);
         passes += 1;
-        // Each pass starts its own segments (drop the partial tail between passes).
-        welch.discard_pending();
-        if matches!(config.averaging, super::Averaging::Median) {
-            welch.restart();
-        }
         if start.elapsed().as_secs_f64() >= duration_s {
             break;
         }
     }
-    // Every pushed segment is averaged before the clock stops.
-    welch.flush();
+    finish(averager);
     let elapsed_s = start.elapsed().as_secs_f64().max(1e-9);
-    std::hint::black_box(welch.spectrum());
-    let samples = passes * record.len() as u64;
-    Ok(Throughput {
+    let samples = passes * len as u64;
+    Throughput {
         samples,
-        segments,
+        segments: passes * per_pass,
         elapsed_s,
         samples_per_s: samples as f64 / elapsed_s,
-        threads: welch.threads(),
-    })
+        threads,
+    }
 }
 
 /// Measures the FFT-only floor on one thread for about `duration_s` seconds: the same record
@@ -173,30 +200,21 @@ pub fn cross_throughput(
     let mut cross = super::cross::CrossWelch::new(config.clone())?.with_threads(threads);
     let a = synthetic_samples(record_len(&config), 1);
     let b = synthetic_samples(a.len(), 2);
-    let per_pass = ((a.len() - config.segment) / config.hop() + 1) as u64;
-    let start = Instant::now();
-    let mut segments = 0u64;
-    let mut passes = 0u64;
-    loop {
-        cross.push(&a, &b);
-        segments += per_pass;
-        passes += 1;
-        cross.discard_pending();
-        if start.elapsed().as_secs_f64() >= duration_s {
-            break;
-        }
-    }
-    cross.flush();
-    let elapsed_s = start.elapsed().as_secs_f64().max(1e-9);
-    std::hint::black_box(cross.spectrum());
-    let samples = passes * a.len() as u64;
-    Ok(Throughput {
-        samples,
-        segments,
-        elapsed_s,
-        samples_per_s: samples as f64 / elapsed_s,
-        threads: threads.clamp(1, 64),
-    })
+    Ok(timed_passes(
+        &config,
+        a.len(),
+        duration_s,
+        threads.clamp(1, 64),
+        &mut cross,
+        |cross| {
+            cross.push(&a, &b);
+            cross.discard_pending();
+        },
+        |cross| {
+            cross.flush();
+            std::hint::black_box(cross.spectrum());
+        },
+    ))
 }
 
 /// Runs both measurements, each for about `duration_s`.
