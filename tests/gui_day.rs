@@ -593,3 +593,43 @@ fn a_tcp_source_that_stops_is_reconnected_with_the_average_and_history_kept() {
     // (the connection used by the test itself is gone with the engine)
     let _ = TcpStream::connect_timeout(&addr, Duration::from_millis(10));
 }
+
+/// Two detectors from the Source panel: the path of a two-channel recording and "1" as the
+/// second detector's channel, then Open: the engine averages the cross-spectrum and the
+/// two-detector view appears. A second channel equal to the first is refused with a visible
+/// one-line message, and the running source goes on.
+#[test]
+fn second_detector_channel_typed_in_the_source_panel_opens_two_detectors() {
+    let mut h = harness(demo_options());
+    wait_for(&mut h, DEADLINE, "a spectrum", has_spectrum);
+    let path = repo("sample-streams/two_detector.wav");
+    type_into(&mut h, SOURCE_FIELD, &path.display().to_string());
+    type_into(&mut h, "second detector: channel", "0");
+    h.get_by_label("Open source").click();
+    h.run_steps(3);
+    assert!(
+        h.state()
+            .messages()
+            .iter()
+            .any(|m| m.error && m.text.contains("already the first detector's channel")),
+        "{:?}",
+        h.state().messages()
+    );
+    assert!(matches!(h.state().source().spec, SourceSpec::Demo { .. }));
+    type_into(&mut h, "second detector: channel", "1");
+    h.get_by_label("Open source").click();
+    wait_for(
+        &mut h,
+        DEADLINE,
+        "the cross-spectrum of both detectors",
+        |a| {
+            a.live()
+                .frame
+                .as_ref()
+                .is_some_and(|f| f.cross.is_some() && f.cross_channels == Some((0, 1)))
+        },
+    );
+    assert_eq!(h.state().source().cross_channel, Some(1));
+    h.run_steps(3);
+    h.get_by_label_contains("Two detectors: channel 0 (a) × channel 1 (b)");
+}

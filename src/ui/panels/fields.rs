@@ -200,6 +200,24 @@ impl PanelState {
         }
         c.channels = self.channels.max(1);
         c.channel = self.channel;
+        let second = self.cross_channel_text.trim();
+        if !second.is_empty() {
+            let j: usize = second.parse().map_err(|_| {
+                format!("second detector: '{second}' is not a channel number (0, 1, …)")
+            })?;
+            if j == self.channel {
+                return Err(format!(
+                    "second detector: channel {j} is already the first detector's channel"
+                ));
+            }
+            if !c.spec.is_wav() && j >= c.channels {
+                return Err(format!(
+                    "second detector: channel {j} does not exist in a stream of {} channels",
+                    c.channels
+                ));
+            }
+            c.cross_channel = Some(j);
+        }
         Ok(c)
     }
 }

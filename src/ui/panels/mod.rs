@@ -35,6 +35,8 @@ pub struct PanelState {
     endian: Endian,
     channels: usize,
     channel: usize,
+    /// A second detector's channel (two detectors), blank for none.
+    cross_channel_text: String,
     rate_text: String,
     volts_per_unit_text: String,
     follow: bool,
@@ -92,6 +94,9 @@ impl PanelState {
             endian: source.endian,
             channels: source.channels,
             channel: source.channel,
+            cross_channel_text: source
+                .cross_channel
+                .map_or_else(String::new, |j| j.to_string()),
             rate_text: opt_text(source.rate_hz),
             volts_per_unit_text: num_text(source.volts_per_unit),
             follow: source.follow,

@@ -38,6 +38,19 @@ impl PanelState {
                 out.push(UiCommand::OpenDemo);
             }
         });
+        ui.horizontal(|ui| {
+            let l = ui.label("second detector: channel");
+            ui.add(
+                egui::TextEdit::singleline(&mut self.cross_channel_text)
+                    .hint_text("none")
+                    .desired_width(48.0),
+            )
+            .labelled_by(l.id)
+            .on_hover_text(
+                "another channel of the same source read with the first (0-based): the window \
+                 then averages the cross-spectrum of the two detectors and fits the mode on it",
+            );
+        });
         egui::CollapsingHeader::new("raw format")
             .default_open(false)
             .show(ui, |ui| {
