@@ -33,10 +33,48 @@ const CROSS: egui::Color32 = egui::Color32::from_rgb(150, 60, 140);
 const RESIDUAL: egui::Color32 = egui::Color32::from_rgb(150, 146, 138);
 
 /// The view's cache: the curves of the newest cross-spectrum over the range shown.
+/// What the cached curves were made from: the cross-spectrum and the report (their
+/// addresses) and the range shown (bits of its ends).
+type CacheKey = (usize, usize, Option<(u64, u64)>);
+
 #[derive(Default)]
 pub struct CrossViewState {
-    key: Option<(usize, Option<(u64, u64)>)>,
+    key: Option<CacheKey>,
     curves: CrossCurves,
+    band: InBand,
+}
+
+/// The right-hand plots' points inside the fit band (all bins without one): made with the
+/// curves, not per frame.
+#[derive(Default)]
+struct InBand {
+    /// Re P_ab.
+    re: Vec<[f64; 2]>,
+    /// The ±1σ band of uncorrelated noise as a closed polygon.
+    sigma_polygon: Vec<[f64; 2]>,
+    /// The fitted mode on Re P_ab.
+    fit: Option<Vec<[f64; 2]>>,
+    /// The coherence.
+    coherence: Vec<[f64; 2]>,
+}
+
+impl InBand {
+    /// Only the fit band: a calibration tone or another common line outside it would set
+    /// the linear scales and flatten the mode.
+    fn new(c: &CrossCurves, fit: Option<Vec<[f64; 2]>>, fit_band: Option<(f64, f64)>) -> Self {
+        let inside = |p: &&[f64; 2]| fit_band.is_none_or(|(lo, hi)| p[0] >= lo && p[0] <= hi);
+        let sigma: Vec<&[f64; 2]> = c.re_sigma.iter().filter(inside).collect();
+        Self {
+            re: c.re.iter().filter(inside).copied().collect(),
+            sigma_polygon: sigma
+                .iter()
+                .map(|p| [p[0], p[1]])
+                .chain(sigma.iter().rev().map(|p| [p[0], -p[1]]))
+                .collect(),
+            fit: fit.map(|points| points.iter().filter(inside).copied().collect()),
+            coherence: c.coherence.iter().filter(inside).copied().collect(),
+        }
+    }
 }
 
 impl CrossViewState {
@@ -57,10 +95,13 @@ impl CrossViewState {
         });
         let key = (
             Arc::as_ptr(cross) as usize,
+            frame.report.as_ref().map_or(0, |r| Arc::as_ptr(r) as usize),
             range.map(|(a, b)| (a.to_bits(), b.to_bits())),
         );
         if self.key != Some(key) {
             self.curves = cross_curves(cross, range, COLUMNS);
+            let fit = fit_curve(cross, report, self.curves.range_hz);
+            self.band = InBand::new(&self.curves, fit, frame.band_hz);
             self.key = Some(key);
         }
         let (a, b) = frame.cross_channels.unwrap_or((0, 1));
@@ -69,9 +110,8 @@ impl CrossViewState {
         ui.columns(2, |cols| {
             if let [left, right] = cols {
                 spectra_plot(left, h, &self.curves, a, b);
-                let fit = fit_curve(cross, report, self.curves.range_hz);
-                re_plot(right, 0.58 * h, &self.curves, fit, report, frame.band_hz);
-                coherence_plot(right, 0.42 * h - 4.0, &self.curves, report, frame.band_hz);
+                re_plot(right, 0.58 * h, &self.band, report);
+                coherence_plot(right, 0.42 * h - 4.0, &self.curves, &self.band, report);
             }
         });
     }
@@ -197,25 +237,7 @@ fn fit_curve(
     )
 }
 
-fn re_plot(
-    ui: &mut Ui,
-    height: f32,
-    c: &CrossCurves,
-    fit: Option<Vec<[f64; 2]>>,
-    report: Option<&Report>,
-    fit_band: Option<(f64, f64)>,
-) {
-    // Only the fit band: a calibration tone or another common line outside it would set
-    // the linear scale and flatten the mode.
-    let inside = |p: &&[f64; 2]| fit_band.is_none_or(|(lo, hi)| p[0] >= lo && p[0] <= hi);
-    let re: Vec<[f64; 2]> = c.re.iter().filter(inside).copied().collect();
-    let sigma: Vec<&[f64; 2]> = c.re_sigma.iter().filter(inside).collect();
-    let band: Vec<[f64; 2]> = sigma
-        .iter()
-        .map(|p| [p[0], p[1]])
-        .chain(sigma.iter().rev().map(|p| [p[0], -p[1]]))
-        .collect();
-    let fit = fit.map(|points| points.iter().filter(inside).copied().collect::<Vec<_>>());
+fn re_plot(ui: &mut Ui, height: f32, in_band: &InBand, report: Option<&Report>) {
     legend_row(
         ui,
         &[
@@ -230,21 +252,24 @@ fn re_plot(
         .auto_bounds(Vec2b::new(true, true))
         .allow_scroll(false)
         .show(ui, |pui| {
-            if !band.is_empty() {
+            if !in_band.sigma_polygon.is_empty() {
                 pui.polygon(
-                    Polygon::new("±1σ of uncorrelated noise", PlotPoints::new(band))
-                        .fill_color(egui::Color32::from_rgba_unmultiplied(150, 146, 138, 50))
-                        .stroke(egui::Stroke::NONE),
+                    Polygon::new(
+                        "±1σ of uncorrelated noise",
+                        PlotPoints::new(in_band.sigma_polygon.clone()),
+                    )
+                    .fill_color(egui::Color32::from_rgba_unmultiplied(150, 146, 138, 50))
+                    .stroke(egui::Stroke::NONE),
                 );
             }
             pui.line(
-                Line::new("Re cross-spectrum", PlotPoints::new(re))
+                Line::new("Re cross-spectrum", PlotPoints::new(in_band.re.clone()))
                     .color(CROSS)
                     .width(1.0),
             );
-            if let Some(points) = fit {
+            if let Some(points) = &in_band.fit {
                 pui.line(
-                    Line::new("mode fitted on Re", PlotPoints::new(points))
+                    Line::new("mode fitted on Re", PlotPoints::new(points.clone()))
                         .color(theme::FIT)
                         .width(1.8),
                 );
@@ -255,20 +280,15 @@ fn re_plot(
         });
 }
 
+/// The coherence in the fit band, on a scale that shows a weak coherence next to its noise
+/// level.
 fn coherence_plot(
     ui: &mut Ui,
     height: f32,
     c: &CrossCurves,
+    in_band: &InBand,
     report: Option<&Report>,
-    fit_band: Option<(f64, f64)>,
 ) {
-    // The fit band only, on a scale that shows a weak coherence next to its noise level.
-    let points: Vec<[f64; 2]> = c
-        .coherence
-        .iter()
-        .filter(|p| fit_band.is_none_or(|(lo, hi)| p[0] >= lo && p[0] <= hi))
-        .copied()
-        .collect();
     legend_row(
         ui,
         &[
@@ -292,7 +312,7 @@ fn coherence_plot(
         .allow_scroll(false)
         .show(ui, |pui| {
             pui.line(
-                Line::new("coherence", PlotPoints::new(points))
+                Line::new("coherence", PlotPoints::new(in_band.coherence.clone()))
                     .color(CROSS)
                     .width(1.0),
             );
