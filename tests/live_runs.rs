@@ -331,8 +331,9 @@ fn stopped_by(signal: &str) -> (Output, tempfile::TempDir, PathBuf) {
             "256",
             "--averages",
             "1000",
+            // The first stall report comes at half the timeout (4 s), the give-up at 8 s.
             "--stall-timeout",
-            "60",
+            "8",
         ],
         s(&out),
     );
@@ -340,7 +341,7 @@ fn stopped_by(signal: &str) -> (Output, tempfile::TempDir, PathBuf) {
     let mut stdin = running.child.stdin.take().unwrap();
     stdin.write_all(&noise_bytes(1024, 6)).unwrap();
     stdin.flush().unwrap();
-    // The first stall report (after 10 s) proves the run is waiting with the data read.
+    // The first stall report (after 4 s) proves the run is waiting with the data read.
     running.wait_for("no sample from stdin");
     running.signal(signal);
     let output = running.finish();
@@ -423,7 +424,7 @@ fn sigint_before_one_segment_exits_130_and_writes_nothing() {
     let out = dir.path().join("early.csv");
     let a = args(
         "-",
-        &["--segment", "4096", "--stall-timeout", "60"],
+        &["--segment", "4096", "--stall-timeout", "8"], // first report at 4 s
         s(&out),
     );
     let mut running = Running::spawn(&a, Stdio::piped());
