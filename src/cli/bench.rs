@@ -95,9 +95,10 @@ pub fn run(args: &BenchArgs) -> Result<ExitCode> {
             cross_rates.push(bench::cross_throughput(&welch, slice_s, threads)?.samples_per_s);
         }
     }
-    let cross_throughput = (channels == 2).then(|| median(&mut cross_rates));
-    let throughput = median(&mut welch_rates);
-    let floor = median(&mut floor_rates);
+    let cross_throughput =
+        (channels == 2).then(|| crate::dsp::median::median(&mut cross_rates).unwrap_or(0.0));
+    let throughput = crate::dsp::median::median(&mut welch_rates).unwrap_or(0.0);
+    let floor = crate::dsp::median::median(&mut floor_rates).unwrap_or(0.0);
     let plot_prep_ms = crate::model::bench_plot_prep(RUNS).as_secs_f64() * 1e3;
     // With two channels the rate is per channel and the cross-spectral averager must keep up.
     let headroom = cross_throughput.unwrap_or(throughput) / args.rate;
@@ -153,21 +154,6 @@ pub fn run(args: &BenchArgs) -> Result<ExitCode> {
         write_text(&mut out, &output).context("cannot write to stdout")?;
     }
     Ok(ExitCode::SUCCESS)
-}
-
-/// Median of `values` (sorted in place); 0 for none.
-fn median(values: &mut [f64]) -> f64 {
-    values.sort_by(f64::total_cmp);
-    let n = values.len();
-    match n {
-        0 => 0.0,
-        _ if n % 2 == 1 => values.get(n / 2).copied().unwrap_or(0.0),
-        _ => {
-            let a = values.get(n / 2 - 1).copied().unwrap_or(0.0);
-            let b = values.get(n / 2).copied().unwrap_or(0.0);
-            0.5 * (a + b)
-        }
-    }
 }
 
 /// A number with up to 6 decimals and no trailing zeros (`10`, `0.25`).
@@ -269,10 +255,7 @@ mod tests {
     use super::*;
 
     #[test]
-    fn median_of_odd_and_even() {
-        assert_eq!(median(&mut [3.0, 1.0, 2.0]), 2.0);
-        assert_eq!(median(&mut [4.0, 1.0, 3.0, 2.0]), 2.5);
-        assert_eq!(median(&mut []), 0.0);
+    fn trimmed_drops_trailing_zeros() {
         assert_eq!(trimmed(10.0), "10");
         assert_eq!(trimmed(0.25), "0.25");
     }

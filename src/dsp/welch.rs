@@ -620,7 +620,7 @@ impl Accumulator {
                     for (r, c) in column.iter_mut().enumerate() {
                         *c = self.history.get(r * bins + k).copied().unwrap_or(0.0);
                     }
-                    *o = median(&mut column) / bias;
+                    *o = super::median::median(&mut column).unwrap_or(0.0) / bias;
                 }
             }
         }
@@ -811,28 +811,6 @@ fn detrend_and_window(
         detrend,
     );
     true
-}
-
-/// numpy's median (mean of the two middle values for an even count); 0 for no values.
-fn median(values: &mut [f64]) -> f64 {
-    let m = values.len();
-    if m == 0 {
-        return 0.0;
-    }
-    let (_, upper, right) = values.select_nth_unstable_by(m / 2, f64::total_cmp);
-    let upper = *upper;
-    if !m.is_multiple_of(2) {
-        return upper;
-    }
-    // The lower middle value is the largest of the left part.
-    let _ = right;
-    let lower = values
-        .get(..m / 2)
-        .unwrap_or(&[])
-        .iter()
-        .copied()
-        .fold(f64::NEG_INFINITY, f64::max);
-    (lower + upper) / 2.0
 }
 
 /// scipy's median bias for `n` periodograms (`scipy.signal._spectral_py._median_bias`):
@@ -1328,10 +1306,6 @@ mod tests {
         assert!((median_bias(3) - (1.0 + 1.0 / 3.0 - 0.5)).abs() < 1e-15);
         // Large n → ln 2 (the median of χ²₂/2).
         assert!((median_bias(100_001) - std::f64::consts::LN_2).abs() < 1e-5);
-        let mut v = [4.0, 1.0, 3.0, 2.0];
-        assert_eq!(median(&mut v), 2.5);
-        let mut v = [5.0, 1.0, 3.0];
-        assert_eq!(median(&mut v), 3.0);
     }
 
     #[test]
