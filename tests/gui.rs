@@ -9,14 +9,13 @@
 use std::time::Duration;
 
 use eframe::egui;
-use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
 use stillpoint::dsp::units::DensityUnit;
 use stillpoint::ui::{MonitorOptions, StillpointApp};
 
 #[path = "common/gui.rs"]
 mod gui_util;
-use gui_util::{harness, has_spectrum, step_until};
+use gui_util::{harness, harness_sized, has_spectrum, step_until};
 
 fn demo_options() -> MonitorOptions {
     let mut o = MonitorOptions::demo();
@@ -168,9 +167,7 @@ fn demo_window_end_to_end() {
 #[test]
 fn side_panels_leave_the_plot_the_largest_part() {
     for (w, hgt) in [(1280.0, 800.0), (1600.0, 900.0)] {
-        let mut h = Harness::builder()
-            .with_size(egui::vec2(w, hgt))
-            .build_eframe(|cc| StillpointApp::new(cc, demo_options()));
+        let mut h = harness_sized(egui::vec2(w, hgt), demo_options());
         let sidebands = |app: &StillpointApp| {
             app.live()
                 .frame

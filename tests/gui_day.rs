@@ -22,18 +22,17 @@ use std::time::{Duration, Instant};
 
 use clap::{CommandFactory, FromArgMatches};
 use eframe::egui;
-use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
 use stillpoint::acquire::{SampleFormat, SourceConfig, SourceSpec};
 use stillpoint::analysis::AnalysisOptions;
 use stillpoint::cli::args::{Cli, Command};
 use stillpoint::dsp::Welch;
 use stillpoint::model::{AveragingChoice, Engine, EngineConfig, LiveState, WelchSettings};
-use stillpoint::ui::{MonitorOptions, StillpointApp};
+use stillpoint::ui::MonitorOptions;
 
 #[path = "common/gui.rs"]
 mod gui_util;
-use gui_util::{has_spectrum, wait_for};
+use gui_util::{AppHarness, has_spectrum, wait_for};
 
 const DEADLINE: Duration = Duration::from_secs(60);
 
@@ -50,7 +49,7 @@ fn demo_options() -> MonitorOptions {
     o
 }
 
-fn harness(mut options: MonitorOptions) -> Harness<'static, StillpointApp> {
+fn harness(mut options: MonitorOptions) -> AppHarness {
     // No session journal in the user's folder from a test.
     options.no_journal = true;
     gui_util::harness(options)
@@ -58,7 +57,7 @@ fn harness(mut options: MonitorOptions) -> Harness<'static, StillpointApp> {
 
 const SOURCE_FIELD: &str = "source path (.wav or raw), '-' for stdin, or tcp://HOST:PORT:";
 
-fn type_into(h: &mut Harness<'static, StillpointApp>, label: &str, text: &str) {
+fn type_into(h: &mut AppHarness, label: &str, text: &str) {
     h.get_by_label(label).set_text_value_accesskit(text);
     h.run_steps(2);
 }

@@ -21,14 +21,17 @@ use std::sync::Arc;
 use std::time::{Duration, Instant};
 
 use eframe::egui;
-use egui_kittest::Harness;
 use egui_kittest::kittest::Queryable;
 use stillpoint::analysis::AnalysisOptions;
 use stillpoint::dsp::{Averaging, Detrend, Spectrum, WindowKind};
 use stillpoint::model::{
     EngineStatus, Frame, MinMaxBlocks, TrendPoint, WaterfallRow, log_columns_max,
 };
-use stillpoint::ui::{MonitorOptions, StillpointApp};
+use stillpoint::ui::MonitorOptions;
+
+#[path = "../common/gui.rs"]
+mod gui_util;
+use gui_util::{AppHarness, harness_sized};
 
 /// Segment 2²¹ at 2²¹ S/s: 1 048 577 bins 1 Hz apart.
 const SEGMENT: usize = 1 << 21;
@@ -134,9 +137,9 @@ fn median(mut v: Vec<f64>) -> f64 {
 /// Runs `frames` frames after 10 warm-up ones; `before` prepares each (outside the timing).
 /// Returns the medians (app, step) in ms.
 fn measure(
-    h: &mut Harness<'static, StillpointApp>,
+    h: &mut AppHarness,
     frames: usize,
-    mut before: impl FnMut(&mut Harness<'static, StillpointApp>, usize),
+    mut before: impl FnMut(&mut AppHarness, usize),
 ) -> (f64, f64) {
     let mut app = Vec::new();
     let mut step = Vec::new();
@@ -170,9 +173,7 @@ fn main() {
     println!("preparing 4 frames of {} bins…", SEGMENT / 2 + 1);
     let pool: Vec<Frame> = (1..=4).map(|s| frame(s, &freqs, &options)).collect();
 
-    let mut h = Harness::builder()
-        .with_size(egui::vec2(1600.0, 900.0))
-        .build_eframe(|cc| StillpointApp::new(cc, o));
+    let mut h = harness_sized(egui::vec2(1600.0, 900.0), o);
     h.state_mut().show_frame(pool[0].clone());
     h.run_steps(5);
     // The whole span in view (1600 px of plot columns over 10⁶ bins).
@@ -181,7 +182,7 @@ fn main() {
 
     let mut results = Vec::new();
     let mut seq = 0u64;
-    let mut next = |h: &mut Harness<'static, StillpointApp>, _i: usize| {
+    let mut next = |h: &mut AppHarness, _i: usize| {
         seq += 1;
         let mut f = pool[(seq % 4) as usize].clone();
         // A new analysis each frame (new shared buffers, as the engine publishes them).
