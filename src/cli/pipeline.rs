@@ -15,7 +15,9 @@ use crate::acquire::{
     compact_number,
 };
 pub(super) use crate::analysis::stream::format_seconds;
-use crate::analysis::stream::{self, Averager, Outcome, Stop, StreamMessage, StreamSink, Watch};
+use crate::analysis::stream::{
+    self, Averager, Outcome, Stop, StreamError, StreamMessage, StreamSink, Watch,
+};
 use crate::dsp::{Averaging, MEDIAN_MEMORY_LIMIT_BYTES, Spectrum};
 
 use super::args::{SourceArgs, WelchArgs};
@@ -485,7 +487,11 @@ pub(super) fn stream_into(
     let acquisition = Acquisition::spawn(reader, options, None)?;
     let outcome = stream::drive(&acquisition, averager, watch, sink);
     drop(acquisition);
-    Ok(outcome?)
+    outcome.map_err(|e| match e {
+        // The reader's own error, so the exit status is the one its kind gives.
+        StreamError::Source(e) => anyhow::Error::from(e),
+        other => anyhow::Error::from(other),
+    })
 }
 
 /// Acquisition settings of the headless commands: block on a full channel (no sample is
