@@ -668,7 +668,10 @@ mod tests {
         let direct = welch(&a, &config).unwrap();
         // ⌊(L − N)/H⌋ + 1 segments (common practice), the same bits as the whole record.
         assert_eq!(averager.segments(), (20_000 - 512) / 256 + 1);
-        assert_eq!(averager.spectrum().unwrap().psd_v2_per_hz, direct.psd_v2_per_hz);
+        assert_eq!(
+            averager.spectrum().unwrap().psd_v2_per_hz,
+            direct.psd_v2_per_hz
+        );
     }
 
     #[test]
@@ -688,7 +691,10 @@ mod tests {
         let got = averager.cross_spectrum().unwrap();
         assert_eq!(got.csd_re_v2_per_hz, direct.csd_re_v2_per_hz);
         assert_eq!(got.psd_b_v2_per_hz, direct.psd_b_v2_per_hz);
-        assert_eq!(averager.spectrum().unwrap().psd_v2_per_hz, direct.a.psd_v2_per_hz);
+        assert_eq!(
+            averager.spectrum().unwrap().psd_v2_per_hz,
+            direct.a.psd_v2_per_hz
+        );
     }
 
     #[test]
@@ -713,7 +719,10 @@ mod tests {
         assert_eq!(outcome.stop, Stop::Complete);
         assert_eq!(averager.segments(), 10);
         let direct = welch(&a[..9 * 256 + 512], &config).unwrap();
-        assert_eq!(averager.spectrum().unwrap().psd_v2_per_hz, direct.psd_v2_per_hz);
+        assert_eq!(
+            averager.spectrum().unwrap().psd_v2_per_hz,
+            direct.psd_v2_per_hz
+        );
     }
 
     /// A sink that counts what it is given and asks to stop after `stop_after` samples.
