@@ -4,15 +4,13 @@
 //! delivers, word what was skipped and why the run stopped.
 
 use std::io::IsTerminal;
-use std::path::Path;
 use std::time::{Duration, Instant};
 
 use anyhow::{Context, Result};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 
 use crate::acquire::{
-    self, AcqOptions, AcquireError, Acquisition, SourceConfig, SourceSpec, WavReader,
-    compact_number,
+    self, AcqOptions, AcquireError, Acquisition, SourceConfig, SourceSpec, compact_number,
 };
 pub(super) use crate::analysis::stream::format_seconds;
 use crate::analysis::stream::{
@@ -129,6 +127,9 @@ pub(super) struct Averaged {
 /// [`super::interrupt`]) do the same for a live source; for a recording they end the run
 /// with [`Interrupted`].
 ///
+/// Long because it is the one ordered list of checks a headless run makes before its first
+/// sample (each refusal must come before anything is read); each step is a few lines.
+///
 /// # Errors
 /// Bad source options, unreadable source, too little data for one segment, a stall or an
 /// interruption before one segment was averaged.
@@ -169,7 +170,7 @@ pub(super) fn average_source(
     let record_samples = if stream_path {
         None
     } else {
-        known_length(source_config)
+        acquire::known_length(source_config)
     };
     let welch_config = config::welch_config(welch, sample_rate_hz, record_samples)?;
     if let Some(len) = record_samples
@@ -212,7 +213,8 @@ pub(super) fn average_source(
 
 /// The warnings and notes of a finished run (one or two channels), or the error of a run
 /// that has nothing to write: stopped by a signal or a stall before one segment, or a
-/// recording interrupted.
+/// recording interrupted. Long because it is one `match` over how the run stopped, each arm
+/// a sentence; together they are the whole wording of a run's end for one and two channels.
 fn word_outcome(
     outcome: &Outcome,
     averager: &Averager,
@@ -526,38 +528,6 @@ pub(super) fn source_label(spec: &SourceSpec) -> String {
         SourceSpec::Tcp(addr) => format!("tcp://{addr}"),
         SourceSpec::Demo { scenario, .. } => format!("demo stream `{scenario}`"),
     }
-}
-
-/// Samples of the selected channel in a recording whose length is known before reading
-/// (a WAV or raw file that is not followed); `None` for streams.
-pub(super) fn known_length(config: &SourceConfig) -> Option<u64> {
-    let SourceSpec::Path(path) = &config.spec else {
-        return None;
-    };
-    if config.follow {
-        return None;
-    }
-    if config.spec.is_wav() {
-        return wav_length(path);
-    }
-    if config.spec.is_npy() || config.spec.is_hdf5() {
-        return acquire::lab_file_length(config, path);
-    }
-    let frame_bytes = config.sample_format?.bytes() as u64 * config.channels.max(1) as u64;
-    let bytes = std::fs::metadata(path).ok()?.len();
-    Some(bytes / frame_bytes)
-}
-
-/// Frames of a WAV file per its header, capped by what the file actually holds.
-fn wav_length(path: &Path) -> Option<u64> {
-    let header = WavReader::open(path, 0, 1.0, None).ok()?.header();
-    let frame_bytes = header.frame_bytes() as u64;
-    let file_bytes = std::fs::metadata(path).ok()?.len();
-    let present = file_bytes.saturating_sub(header.data_offset);
-    let bytes = header
-        .data_bytes_declared
-        .map_or(present, |d| d.min(present));
-    bytes.checked_div(frame_bytes)
 }
 
 /// A progress bar on stderr that appears only on a terminal and only after ~1 s.

@@ -91,7 +91,7 @@ pub fn run(args: &TrackArgs) -> Result<ExitCode> {
     })?;
     let rate = reader.sample_rate_hz();
     let interval = interval_samples(args.every, rate)?;
-    let record_samples = pipeline::known_length(&source_config);
+    let record_samples = acquire::known_length(&source_config);
     let welch_config = config::welch_config(&args.welch, rate, Some(interval))?;
     if (welch_config.segment as u64) > interval {
         return Err(InputError(format!(
