@@ -6,7 +6,8 @@ use std::path::Path;
 use super::{SourceConfig, SourceSpec, WavReader};
 
 /// Samples of the selected channel in a recording whose length is known before reading
-/// (a WAV or raw file that is not followed); `None` for streams and the demo.
+/// (a WAV, raw, `.npy` or HDF5 file that is not followed); `None` for streams and the demo.
+/// The command line and the window both size their automatic segment from it.
 pub fn known_length(config: &SourceConfig) -> Option<u64> {
     let SourceSpec::Path(path) = &config.spec else {
         return None;
@@ -16,6 +17,9 @@ pub fn known_length(config: &SourceConfig) -> Option<u64> {
     }
     if config.spec.is_wav() {
         return wav_length(path);
+    }
+    if config.spec.is_npy() || config.spec.is_hdf5() {
+        return super::lab_file_length(config, path);
     }
     let frame_bytes = config.sample_format?.bytes() as u64 * config.channels.max(1) as u64;
     let bytes = std::fs::metadata(path).ok()?.len();

@@ -6,6 +6,7 @@
 //! A value that needs an input that was not given is `null`, and [`Report::notes`] says why.
 
 mod sanitize;
+pub mod stream;
 
 pub(crate) use sanitize::sanitize;
 

@@ -352,11 +352,7 @@ pub fn measure(
         None => Some(Duration::from_secs_f64(seconds)),
     };
     let start = Instant::now();
-    let streamed = if channels == 2 {
-        super::cross::average_cross_stream(reader, welch, threads, stop_after)
-    } else {
-        pipeline::average_stream(reader, welch, threads, stop_after)
-    };
+    let streamed = pipeline::average_stream(reader, welch, channels, threads, stop_after);
     let elapsed_s = start.elapsed().as_secs_f64();
     let streamed = match streamed {
         Ok(s) => s,

@@ -1,18 +1,22 @@
-//! The headless pipeline shared by `spectrum` and `analyze`: open the source, feed every
-//! sample into the Welch averager as fast as the source delivers, report what was skipped.
+//! The headless pipeline shared by `spectrum`, `analyze` (one channel or two with
+//! `--cross-channel`) and `bench`: open the source, feed every sample through the library's
+//! stream loop ([`crate::analysis::stream`]) into the averager as fast as the source
+//! delivers, word what was skipped and why the run stopped.
 
 use std::io::IsTerminal;
-use std::path::Path;
 use std::time::{Duration, Instant};
 
 use anyhow::{Context, Result};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 
 use crate::acquire::{
-    self, AcqEvent, AcqOptions, AcquireError, Acquisition, ReaderStats, SourceConfig, SourceSpec,
-    WavReader, compact_number,
+    self, AcqOptions, AcquireError, Acquisition, SourceConfig, SourceSpec, compact_number,
 };
-use crate::dsp::{Averaging, MEDIAN_MEMORY_LIMIT_BYTES, Spectrum, Welch};
+pub(super) use crate::analysis::stream::format_seconds;
+use crate::analysis::stream::{
+    self, Averager, Outcome, Stop, StreamError, StreamMessage, StreamSink, Watch,
+};
+use crate::dsp::{Averaging, MEDIAN_MEMORY_LIMIT_BYTES, Spectrum};
 
 use super::args::{SourceArgs, WelchArgs};
 use super::interrupt::{self, Interrupted};
@@ -24,11 +28,6 @@ const MIN_BLOCK_SAMPLES: usize = 1 << 16;
 /// blocks only hold memory: at segment 2²⁰, blocks of 6 MiB raised the peak RSS from 135 to
 /// 154–163 MiB once the thread kept its blocks for reuse.
 const MAX_BLOCK_SAMPLES: usize = 1 << 18;
-/// How often the consumer looks at the stop flag and the stall clock while waiting.
-const POLL: Duration = Duration::from_millis(100);
-/// A stalled live source is reported this often (the first time after this long, or after
-/// half the stall timeout if that is shorter).
-const STALL_REPORT_EVERY: Duration = Duration::from_secs(10);
 /// Working memory above which a run is announced with its estimate (bytes).
 const MEMORY_WARN_BYTES: f64 = 2.0 * (1u64 << 30) as f64;
 
@@ -48,15 +47,8 @@ pub(crate) struct SpectrumRun {
 /// Reads the source described by `source` and `welch` to the end (or to `--averages`
 /// segments) and returns the averaged spectrum.
 ///
-/// Live sources (stdin, TCP, a FIFO or other non-regular file, `--follow`) are watched: a
-/// stall is reported every 10 s, and after `--stall-timeout` seconds without a sample the
-/// run gives up and returns the average it has (with a warning). SIGINT/SIGTERM (see
-/// [`super::interrupt`]) do the same for a live source; for a recording they end the run
-/// with [`Interrupted`].
-///
 /// # Errors
-/// Bad source options, unreadable source, too little data for one segment, no usable
-/// segment, a non-finite spectrum, an interruption before one segment was averaged.
+/// As [`average_source`]; also no usable segment or a non-finite spectrum.
 pub(crate) fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result<SpectrumRun> {
     let source_config = config::source_config(source)?;
     if source_config.cross_channel.is_some() {
@@ -65,160 +57,32 @@ pub(crate) fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result
             InputError("--cross-channel works with spectrum and analyze only".into()).into(),
         );
     }
-    if source_config.follow && welch.averages.is_none() {
-        return Err(InputError(
-            "--follow reads a growing file without end; give --averages K to say when to stop"
-                .into(),
-        )
-        .into());
-    }
-    let stream_path = is_stream_path(&source_config.spec);
-    if stream_path && source_config.spec.is_wav() && !source_config.follow {
-        return Err(InputError(format!(
-            "{} is a pipe, not a file: a WAV header needs a seekable file; save the WAV first \
-             or send raw samples (--sample-format, --rate)",
-            source_label(&source_config.spec)
-        ))
-        .into());
-    }
-    let live = source_config.spec.is_live() || source_config.follow || stream_path;
-    interrupt::install();
-    let reader = acquire::open(&source_config).map_err(|e| match e {
-        // These already name the path or address.
-        AcquireError::Open { .. } | AcquireError::Connect { .. } => anyhow::Error::from(e),
-        other => anyhow::Error::from(other)
-            .context(format!("cannot read {}", source_label(&source_config.spec))),
-    })?;
-    let sample_rate_hz = reader.sample_rate_hz();
-    let record_samples = if stream_path {
-        None
-    } else {
-        known_length(&source_config)
-    };
-    let welch_config = config::welch_config(welch, sample_rate_hz, record_samples)?;
-    if let Some(len) = record_samples
-        && len < welch_config.segment as u64
-        && !source_config.follow
-    {
-        return Err(too_short(len, welch_config.segment).into());
-    }
-    let threads = config::worker_threads();
-    check_memory(&welch_config, threads)?;
-    let mut averager = Welch::new(welch_config.clone())?.with_threads(threads);
-    let progress = Progress::new(record_samples);
-    let description = reader.describe();
-    let label = source_label(&source_config.spec);
-    let guard = Guard {
-        live,
-        label: label.clone(),
-        stall_timeout: (source.stall_timeout > 0.0)
-            .then(|| Duration::try_from_secs_f64(source.stall_timeout).ok())
-            .flatten(),
-        follow: source_config.follow,
-    };
-    let fed = stream_into(reader, &mut averager, &progress, None, &guard)
-        .with_context(|| format!("while reading {label}"))?;
-    let stats = fed.stats;
-    progress.finish();
-    let mut warnings = reader_warnings(&stats, averager.skipped_segments());
-    let mut notes = Vec::new();
-    if stats.connection_reset {
-        warnings.push(format!(
-            "{label} reset the connection after {} samples; kept what had arrived",
-            stats.samples
-        ));
-    }
-    if fed.ended && live {
-        notes.push(format!(
-            "{label} closed after {} samples ({} s at {} Hz)",
-            stats.samples,
-            format_seconds(stats.samples as f64 / sample_rate_hz),
-            compact_number(sample_rate_hz)
-        ));
-    }
-    match fed.stop {
-        Some(Stop::Signal(signal)) if !live => {
-            return Err(Interrupted {
-                signal,
-                what: format!("while reading {label} ({} samples read)", stats.samples),
-            }
-            .into());
-        }
-        Some(Stop::Signal(signal)) => {
-            if averager.segments() == 0 {
-                return Err(Interrupted {
-                    signal,
-                    what: format!(
-                        "after {} samples of {label}, fewer than one segment of {}",
-                        stats.samples, welch_config.segment
-                    ),
-                }
-                .into());
-            }
-            notes.push(format!(
-                "stopped by {signal} after {} samples of {label}: writing the average of the \
-                 {} segment{} complete",
-                stats.samples,
-                averager.segments(),
-                plural(averager.segments())
-            ));
-        }
-        Some(Stop::Stalled(waited)) => {
-            let why = format!(
-                "no sample from {label} for {:.1} s (--stall-timeout): gave up after {} samples",
-                waited.as_secs_f64(),
-                stats.samples
-            );
-            if averager.segments() == 0 {
-                return Err(InputError(format!(
-                    "{why}, fewer than one segment of {}; nothing was written",
-                    welch_config.segment
-                ))
-                .into());
-            }
-            warnings.push(format!(
-                "{why}; writing the average of the {} segment{} complete",
-                averager.segments(),
-                plural(averager.segments())
-            ));
-        }
-        None => {}
-    }
-    if let Some(k) = welch_config.max_averages
-        && (fed.ended || fed.stop.is_some())
-        && averager.segments() < k
-    {
-        warnings.push(format!(
-            "the source {} after {} samples: {} of the {k} averages asked for",
-            if fed.ended { "ended" } else { "was stopped" },
-            stats.samples,
-            averager.segments()
-        ));
-    }
-    if averager.median_is_capped() {
-        warnings.push(format!(
+    let mut run = average_source(source, welch, &source_config)?;
+    if run.averager.median_is_capped() {
+        run.warnings.push(format!(
             "median of the last {} segments only (the stored periodograms reached {} MiB); \
              give --averages to choose how many",
-            averager.median_rows_limit(),
+            run.averager.median_rows_limit(),
             MEDIAN_MEMORY_LIMIT_BYTES >> 20
         ));
     }
-    let Some(spectrum) = averager.spectrum() else {
-        if stats.samples < welch_config.segment as u64 {
-            return Err(too_short(stats.samples, welch_config.segment).into());
+    let stats = &run.outcome.stats;
+    let segment = run.averager.config().segment;
+    let Some(spectrum) = run.averager.spectrum() else {
+        if stats.samples < segment as u64 {
+            return Err(too_short(stats.samples, segment).into());
         }
+        let skipped = run.averager.skipped_segments();
         if stats.non_finite_samples == 0 {
             return Err(InputError(format!(
-                "no usable segment: the periodograms of all {} segments overflowed (the \
-                 samples are finite but too large, beyond ~1e140 V; check --volts-per-unit)",
-                averager.skipped_segments()
+                "no usable segment: the periodograms of all {skipped} segments overflowed (the \
+                 samples are finite but too large, beyond ~1e140 V; check --volts-per-unit)"
             ))
             .into());
         }
         return Err(InputError(format!(
-            "no usable segment: all {} segments held non-finite samples or overflowed ({} \
+            "no usable segment: all {skipped} segments held non-finite samples or overflowed ({} \
              NaN/Inf samples in the record)",
-            averager.skipped_segments(),
             stats.non_finite_samples
         ))
         .into());
@@ -232,10 +96,258 @@ pub(crate) fn compute_spectrum(source: &SourceArgs, welch: &WelchArgs) -> Result
     }
     Ok(SpectrumRun {
         spectrum,
-        warnings,
-        description,
-        notes,
+        warnings: run.warnings,
+        description: run.description,
+        notes: run.notes,
     })
+}
+
+/// A source read to its end (or until the average was complete, a signal or a stall) through
+/// [`stream::drive`], with the run's warnings and notes worded.
+pub(super) struct Averaged {
+    /// The averager holding the estimate.
+    pub averager: Averager,
+    /// What the loop saw.
+    pub outcome: Outcome,
+    /// One line per problem with the input or the run.
+    pub warnings: Vec<String>,
+    /// Status lines that are not problems.
+    pub notes: Vec<String>,
+    /// Human description of the source.
+    pub description: String,
+}
+
+/// Opens the source of `source_config` (one channel, or two with `--cross-channel`), averages
+/// it through [`stream::drive`] and words what happened (the same for one and two channels;
+/// two count samples per channel).
+///
+/// Live sources (stdin, TCP, a FIFO or other non-regular file, `--follow`) are watched: a
+/// stall is reported every 10 s, and after `--stall-timeout` seconds without a sample the
+/// run gives up and returns the average it has (with a warning). SIGINT/SIGTERM (see
+/// [`super::interrupt`]) do the same for a live source; for a recording they end the run
+/// with [`Interrupted`].
+///
+/// Long because it is the one ordered list of checks a headless run makes before its first
+/// sample (each refusal must come before anything is read); each step is a few lines.
+///
+/// # Errors
+/// Bad source options, unreadable source, too little data for one segment, a stall or an
+/// interruption before one segment was averaged.
+pub(super) fn average_source(
+    source: &SourceArgs,
+    welch: &WelchArgs,
+    source_config: &SourceConfig,
+) -> Result<Averaged> {
+    let channels = if source_config.cross_channel.is_some() {
+        2
+    } else {
+        1
+    };
+    if source_config.follow && welch.averages.is_none() {
+        return Err(InputError(
+            "--follow reads a growing file without end; give --averages K to say when to stop"
+                .into(),
+        )
+        .into());
+    }
+    let stream_path = is_stream_path(&source_config.spec);
+    let label = source_label(&source_config.spec);
+    if stream_path && source_config.spec.is_wav() && !source_config.follow {
+        return Err(InputError(format!(
+            "{label} is a pipe, not a file: a WAV header needs a seekable file; save the WAV \
+             first or send raw samples (--sample-format, --rate)"
+        ))
+        .into());
+    }
+    let live = source_config.spec.is_live() || source_config.follow || stream_path;
+    interrupt::install();
+    let reader = acquire::open(source_config).map_err(|e| match e {
+        // These already name the path or address.
+        AcquireError::Open { .. } | AcquireError::Connect { .. } => anyhow::Error::from(e),
+        other => anyhow::Error::from(other).context(format!("cannot read {label}")),
+    })?;
+    let sample_rate_hz = reader.sample_rate_hz();
+    let record_samples = if stream_path {
+        None
+    } else {
+        acquire::known_length(source_config)
+    };
+    let welch_config = config::welch_config(welch, sample_rate_hz, record_samples)?;
+    if let Some(len) = record_samples
+        && len < welch_config.segment as u64
+        && !source_config.follow
+    {
+        return Err(too_short(len, welch_config.segment).into());
+    }
+    let threads = config::worker_threads();
+    check_memory(&welch_config, threads)?;
+    let mut averager = Averager::new(welch_config, channels, threads)?;
+    let progress = Progress::new(record_samples);
+    let description = reader.describe();
+    let watch = Watch {
+        live,
+        label: label.clone(),
+        stall_timeout: (live && source.stall_timeout > 0.0)
+            .then(|| Duration::try_from_secs_f64(source.stall_timeout).ok())
+            .flatten(),
+        follow: source_config.follow,
+        deadline: None,
+        limit: averager.sample_cap(),
+    };
+    let mut sink = CliSink {
+        progress: &progress,
+        signals: true,
+    };
+    let outcome = stream_into(reader, &mut averager, &watch, &mut sink)
+        .with_context(|| format!("while reading {label}"))?;
+    progress.finish();
+    let (warnings, notes) = word_outcome(&outcome, &averager, &label, live, sample_rate_hz)?;
+    Ok(Averaged {
+        averager,
+        outcome,
+        warnings,
+        notes,
+        description,
+    })
+}
+
+/// The warnings and notes of a finished run (one or two channels), or the error of a run
+/// that has nothing to write: stopped by a signal or a stall before one segment, or a
+/// recording interrupted. Long because it is one `match` over how the run stopped, each arm
+/// a sentence; together they are the whole wording of a run's end for one and two channels.
+fn word_outcome(
+    outcome: &Outcome,
+    averager: &Averager,
+    label: &str,
+    live: bool,
+    sample_rate_hz: f64,
+) -> Result<(Vec<String>, Vec<String>)> {
+    let stats = &outcome.stats;
+    let segments = averager.segments();
+    let segment = averager.config().segment;
+    let per_channel = if averager.channels() == 2 {
+        " per channel"
+    } else {
+        ""
+    };
+    let mut warnings = stream::reader_warnings(stats, averager.skipped_segments());
+    let mut notes = Vec::new();
+    if stats.connection_reset {
+        warnings.push(format!(
+            "{label} reset the connection after {} samples{per_channel}; kept what had arrived",
+            stats.samples
+        ));
+    }
+    match outcome.stop {
+        Stop::Ended if live => notes.push(format!(
+            "{label} closed after {} samples{per_channel} ({} s at {} Hz)",
+            stats.samples,
+            format_seconds(stats.samples as f64 / sample_rate_hz),
+            compact_number(sample_rate_hz)
+        )),
+        Stop::Signal(signal) if !live => {
+            return Err(Interrupted {
+                signal,
+                what: format!("while reading {label} ({} samples read)", stats.samples),
+            }
+            .into());
+        }
+        Stop::Signal(signal) => {
+            if segments == 0 {
+                return Err(Interrupted {
+                    signal,
+                    what: format!(
+                        "after {} samples{per_channel} of {label}, fewer than one segment of \
+                         {segment}",
+                        stats.samples
+                    ),
+                }
+                .into());
+            }
+            notes.push(format!(
+                "stopped by {signal} after {} samples{per_channel} of {label}: writing the \
+                 average of the {segments} segment{} complete",
+                stats.samples,
+                plural(segments)
+            ));
+        }
+        Stop::Stalled(waited) => {
+            let why = format!(
+                "no sample from {label} for {:.1} s (--stall-timeout): gave up after {} \
+                 samples{per_channel}",
+                waited.as_secs_f64(),
+                stats.samples
+            );
+            if segments == 0 {
+                return Err(InputError(format!(
+                    "{why}, fewer than one segment of {segment}; nothing was written"
+                ))
+                .into());
+            }
+            warnings.push(format!(
+                "{why}; writing the average of the {segments} segment{} complete",
+                plural(segments)
+            ));
+        }
+        Stop::Ended | Stop::Deadline | Stop::Complete => {}
+    }
+    let stopped = matches!(outcome.stop, Stop::Signal(_) | Stop::Stalled(_));
+    if let Some(k) = averager.config().max_averages
+        && (outcome.ended() || stopped)
+        && segments < k
+    {
+        warnings.push(format!(
+            "the source {} after {} samples{per_channel}: {segments} of the {k} averages asked \
+             for",
+            if outcome.ended() {
+                "ended"
+            } else {
+                "was stopped"
+            },
+            stats.samples,
+        ));
+    }
+    Ok((warnings, notes))
+}
+
+/// The command line's side of [`stream::drive`]: the progress bar, warnings and notes on
+/// stderr (with the option that sets a limit), SIGINT/SIGTERM as stop requests.
+pub(super) struct CliSink<'a> {
+    /// The progress bar.
+    pub progress: &'a Progress,
+    /// SIGINT/SIGTERM stop the run ([`interrupt::install`] was called).
+    pub signals: bool,
+}
+
+impl StreamSink for CliSink<'_> {
+    fn progress(&mut self, position: u64) {
+        self.progress.set(position);
+    }
+
+    fn message(&mut self, message: StreamMessage) {
+        print_message(message);
+    }
+
+    fn stop_requested(&mut self) -> Option<&'static str> {
+        (self.signals && interrupt::stop_requested())
+            .then(|| interrupt::stop_reason().unwrap_or("a signal"))
+    }
+}
+
+/// A message of [`stream::drive`] on stderr; a silent source's names the option that sets
+/// how long the run waits.
+pub(super) fn print_message(message: StreamMessage) {
+    match message {
+        StreamMessage::Silent { text, limited } => warn(&format!(
+            "{text} ({})",
+            if limited {
+                "--stall-timeout"
+            } else {
+                "--stall-timeout 0"
+            }
+        )),
+        StreamMessage::Note(text) => note(&text),
+    }
 }
 
 /// "" for 1, "s" otherwise.
@@ -326,7 +438,7 @@ fn physical_memory_bytes() -> Option<u64> {
 /// What [`average_stream`] measured.
 #[derive(Debug)]
 pub(crate) struct Streamed {
-    /// Samples read from the source and pushed into the averager.
+    /// Samples per channel read from the source and pushed into the averager.
     pub samples_averaged: u64,
     /// Periodograms in the average.
     pub segments: usize,
@@ -334,86 +446,54 @@ pub(crate) struct Streamed {
     pub dropped_blocks: u64,
 }
 
-/// Averages `reader` with `threads` worker threads through the same acquisition thread and
-/// averager as `spectrum`/`analyze`, until the stream ends or `stop_after` has passed
-/// (for `stillpoint bench`).
+/// Averages `reader` (`channels` = 2: a paired reader, see
+/// [`crate::acquire::SampleReader::pair_with`]) with `threads` worker threads through the
+/// same acquisition thread, averager and loop as `spectrum`/`analyze`, until the stream ends
+/// or `stop_after` has passed (for `stillpoint bench`).
 ///
 /// # Errors
 /// Invalid settings; the stream fails.
 pub(crate) fn average_stream(
     reader: Box<dyn acquire::SampleReader>,
     welch: &crate::dsp::WelchConfig,
+    channels: usize,
     threads: usize,
     stop_after: Option<Duration>,
 ) -> Result<Streamed> {
-    let mut averager = Welch::new(welch.clone())?.with_threads(threads);
-    let deadline = stop_after.map(|d| Instant::now() + d);
-    let guard = Guard {
-        live: false,
-        label: String::new(),
-        stall_timeout: None,
-        follow: false,
+    let mut averager = Averager::new(welch.clone(), channels, threads)?;
+    let watch = Watch {
+        deadline: stop_after.map(|d| Instant::now() + d),
+        limit: averager.sample_cap(),
+        ..Watch::default()
     };
-    let fed = stream_into(reader, &mut averager, &Progress::hidden(), deadline, &guard)?;
+    let outcome = stream_into(reader, &mut averager, &watch, &mut stream::Plain)?;
     Ok(Streamed {
-        samples_averaged: fed.pushed,
+        samples_averaged: outcome.read,
         segments: averager.segments(),
-        dropped_blocks: fed.dropped_blocks,
+        dropped_blocks: outcome.dropped_blocks,
     })
 }
 
-/// How the consumer watches a live source.
-struct Guard {
-    /// The source delivers in real time (stall watch and stop on a signal apply).
-    live: bool,
-    /// The source as named in messages.
-    label: String,
-    /// Give up after this long without a sample (`None`: wait forever).
-    stall_timeout: Option<Duration>,
-    /// A followed file: every reopening is reported.
-    follow: bool,
-}
-
-/// Why a run stopped before its source ended or its average was complete.
-#[derive(Debug, Clone, Copy, PartialEq)]
-enum Stop {
-    /// SIGINT or SIGTERM.
-    Signal(&'static str),
-    /// No sample for this long (`--stall-timeout`).
-    Stalled(Duration),
-}
-
-/// What [`feed`] saw.
-struct Fed {
-    /// The reader's last counters.
-    stats: ReaderStats,
-    /// Blocks the acquisition thread dropped.
-    dropped_blocks: u64,
-    /// Samples read from the source (pushed, or cut off by `--averages`).
-    pushed: u64,
-    /// The source ended by itself (not cut off by the average being complete or a deadline).
-    ended: bool,
-    /// The run was stopped (signal, stall).
-    stop: Option<Stop>,
-}
-
-/// Runs the acquisition thread on `reader` and feeds `averager` until the stream ends, the
-/// average is complete, `deadline` passes or `guard` stops it; every segment is averaged on
-/// return. Returns what [`feed`] saw.
-fn stream_into(
+/// Runs the acquisition thread on `reader` with the headless settings and drives
+/// `averager` through `sink` ([`stream::drive`]); every segment is averaged on return.
+pub(super) fn stream_into(
     reader: Box<dyn acquire::SampleReader>,
-    averager: &mut Welch,
-    progress: &Progress,
-    deadline: Option<Instant>,
-    guard: &Guard,
-) -> Result<Fed> {
+    averager: &mut Averager,
+    watch: &Watch,
+    sink: &mut dyn StreamSink,
+) -> Result<Outcome> {
     let config = averager.config();
-    let options = headless_options(config.segment, config.hop(), averager.threads());
+    let mut options = headless_options(config.segment, config.hop(), averager.threads());
+    // A paired block holds both channels.
+    options.block_samples = options.block_samples.saturating_mul(averager.channels());
     let acquisition = Acquisition::spawn(reader, options, None)?;
-    let fed = feed(&acquisition, averager, progress, deadline, guard);
+    let outcome = stream::drive(&acquisition, averager, watch, sink);
     drop(acquisition);
-    averager.flush();
-    fed
+    outcome.map_err(|e| match e {
+        // The reader's own error, so the exit status is the one its kind gives.
+        StreamError::Source(e) => anyhow::Error::from(e),
+        other => anyhow::Error::from(other),
+    })
 }
 
 /// Acquisition settings of the headless commands: block on a full channel (no sample is
@@ -432,162 +512,6 @@ pub(super) fn headless_options(segment: usize, hop: usize, threads: usize) -> Ac
     }
 }
 
-/// Feeds the acquisition's blocks into `averager` until the stream ends, enough segments
-/// are averaged, or (live sources) a signal or a stall stops it; returns the reader's last
-/// counters.
-fn feed(
-    acquisition: &Acquisition,
-    averager: &mut Welch,
-    progress: &Progress,
-    deadline: Option<Instant>,
-    guard: &Guard,
-) -> Result<Fed> {
-    let limit = averager.config().max_averages;
-    // Median, exponential and max-hold with --averages K: exactly the first K segment
-    // positions (a linear average stops by itself after K accepted segments).
-    let cap_total = match (limit, averager.config().averaging) {
-        (Some(k), averaging) if !matches!(averaging, Averaging::Linear) => {
-            let c = averager.config();
-            Some(((k.max(1) - 1) * c.hop() + c.segment) as u64)
-        }
-        _ => None,
-    };
-    let mut stats = ReaderStats::default();
-    let mut dropped_blocks = 0_u64;
-    let mut read_total: u64 = 0;
-    let mut reopenings = 0_u64;
-    let mut last_sample = Instant::now();
-    let first_report = guard.stall_timeout.map_or(STALL_REPORT_EVERY, |t| {
-        (t / 2).clamp(Duration::from_secs(1), STALL_REPORT_EVERY)
-    });
-    let mut next_report = first_report;
-    let stopped = |stats: &mut ReaderStats,
-                   read_total: u64,
-                   dropped_blocks: u64,
-                   stop: Option<Stop>|
-     -> Result<Fed> {
-        stats.samples = stats.samples.max(read_total);
-        Ok(Fed {
-            stats: *stats,
-            dropped_blocks,
-            pushed: read_total,
-            ended: false,
-            stop,
-        })
-    };
-    loop {
-        if interrupt::stop_requested() {
-            let signal = interrupt::stop_reason().unwrap_or("a signal");
-            return stopped(
-                &mut stats,
-                read_total,
-                dropped_blocks,
-                Some(Stop::Signal(signal)),
-            );
-        }
-        let event = match acquisition.events().recv_timeout(POLL) {
-            Ok(event) => event,
-            Err(crossbeam_channel::RecvTimeoutError::Timeout) => {
-                if guard.live {
-                    let quiet = last_sample.elapsed();
-                    if let Some(limit) = guard.stall_timeout
-                        && quiet >= limit
-                    {
-                        return stopped(
-                            &mut stats,
-                            read_total,
-                            dropped_blocks,
-                            Some(Stop::Stalled(quiet)),
-                        );
-                    }
-                    if quiet >= next_report {
-                        let until = guard.stall_timeout.map_or_else(
-                            || "waiting without limit (--stall-timeout 0)".to_string(),
-                            |t| {
-                                format!(
-                                    "giving up at {} s (--stall-timeout)",
-                                    format_seconds(t.as_secs_f64())
-                                )
-                            },
-                        );
-                        warn(&format!(
-                            "no sample from {} for {} s ({} samples so far); {until}",
-                            guard.label,
-                            quiet.as_secs(),
-                            stats.samples.max(read_total)
-                        ));
-                        next_report = quiet + STALL_REPORT_EVERY;
-                    }
-                }
-                continue;
-            }
-            Err(crossbeam_channel::RecvTimeoutError::Disconnected) => {
-                anyhow::bail!("the acquisition thread ended without saying why");
-            }
-        };
-        match event {
-            AcqEvent::Block(block) => {
-                last_sample = Instant::now();
-                next_report = first_report;
-                let take = cap_total.map_or(block.len(), |c| {
-                    usize::try_from(c.saturating_sub(read_total))
-                        .unwrap_or(usize::MAX)
-                        .min(block.len())
-                });
-                averager.push(block.get(..take).unwrap_or(&block));
-                read_total += block.len() as u64;
-                acquisition.recycle(block);
-                progress.set(read_total);
-                if averager.is_complete()
-                    || cap_total.is_some_and(|c| read_total >= c)
-                    || deadline.is_some_and(|d| Instant::now() >= d)
-                {
-                    // Enough: the counters cover what was read so far.
-                    return stopped(&mut stats, read_total, dropped_blocks, None);
-                }
-            }
-            AcqEvent::Gap { .. } => {
-                // A followed file was reopened: no segment spans the seam.
-                averager.discard_pending();
-                if guard.follow {
-                    reopenings += 1;
-                    note(&format!(
-                        "{} was truncated, rewritten or replaced: reopened it and reading from \
-                         its start (reopening {reopenings}, after {read_total} samples; no \
-                         segment spans the seam)",
-                        guard.label
-                    ));
-                }
-            }
-            AcqEvent::Status(status) => {
-                stats = status.reader;
-                dropped_blocks = status.dropped_blocks;
-            }
-            AcqEvent::Stopped(None) => {
-                stats.samples = stats.samples.max(read_total);
-                return Ok(Fed {
-                    stats,
-                    dropped_blocks,
-                    pushed: read_total,
-                    ended: true,
-                    stop: None,
-                });
-            }
-            AcqEvent::Stopped(Some(error)) => return Err(error.into()),
-        }
-    }
-}
-
-/// Seconds for a message: 4 decimals below 10 s, 1 above, trailing zeros dropped.
-pub(super) fn format_seconds(seconds: f64) -> String {
-    let text = if seconds < 10.0 {
-        format!("{seconds:.4}")
-    } else {
-        format!("{seconds:.1}")
-    };
-    text.trim_end_matches('0').trim_end_matches('.').to_string()
-}
-
 /// "record has L samples, shorter than one segment of N".
 pub(super) fn too_short(samples: u64, segment: usize) -> InputError {
     InputError(format!(
@@ -604,82 +528,6 @@ pub(super) fn source_label(spec: &SourceSpec) -> String {
         SourceSpec::Tcp(addr) => format!("tcp://{addr}"),
         SourceSpec::Demo { scenario, .. } => format!("demo stream `{scenario}`"),
     }
-}
-
-/// Samples of the selected channel in a recording whose length is known before reading
-/// (a WAV or raw file that is not followed); `None` for streams.
-pub(super) fn known_length(config: &SourceConfig) -> Option<u64> {
-    let SourceSpec::Path(path) = &config.spec else {
-        return None;
-    };
-    if config.follow {
-        return None;
-    }
-    if config.spec.is_wav() {
-        return wav_length(path);
-    }
-    if config.spec.is_npy() || config.spec.is_hdf5() {
-        return acquire::lab_file_length(config, path);
-    }
-    let frame_bytes = config.sample_format?.bytes() as u64 * config.channels.max(1) as u64;
-    let bytes = std::fs::metadata(path).ok()?.len();
-    Some(bytes / frame_bytes)
-}
-
-/// Frames of a WAV file per its header, capped by what the file actually holds.
-fn wav_length(path: &Path) -> Option<u64> {
-    let header = WavReader::open(path, 0, 1.0, None).ok()?.header();
-    let frame_bytes = header.frame_bytes() as u64;
-    let file_bytes = std::fs::metadata(path).ok()?.len();
-    let present = file_bytes.saturating_sub(header.data_offset);
-    let bytes = header
-        .data_bytes_declared
-        .map_or(present, |d| d.min(present));
-    bytes.checked_div(frame_bytes)
-}
-
-/// One warning per problem the reader or the averager met.
-pub(super) fn reader_warnings(stats: &ReaderStats, skipped_segments: usize) -> Vec<String> {
-    let mut warnings = Vec::new();
-    if stats.truncated {
-        warnings.push(format!(
-            "the data ends before the file's header says (recording cut short?); analysed the {} \
-             samples present",
-            stats.samples
-        ));
-    }
-    if stats.partial_frame_bytes > 0 {
-        warnings.push(format!(
-            "dropped {} trailing byte{} that do not make a whole frame",
-            stats.partial_frame_bytes,
-            if stats.partial_frame_bytes == 1 {
-                ""
-            } else {
-                "s"
-            }
-        ));
-    }
-    if stats.non_finite_samples > 0 || skipped_segments > 0 {
-        warnings.push(format!(
-            "{} non-finite sample{} (NaN/Inf) → {} segment{} skipped",
-            stats.non_finite_samples,
-            if stats.non_finite_samples == 1 {
-                ""
-            } else {
-                "s"
-            },
-            skipped_segments,
-            if skipped_segments == 1 { "" } else { "s" }
-        ));
-    }
-    if stats.clipped_samples > 0 {
-        warnings.push(format!(
-            "{} sample{} at integer full scale (clipping distorts the spectrum)",
-            stats.clipped_samples,
-            if stats.clipped_samples == 1 { "" } else { "s" }
-        ));
-    }
-    warnings
 }
 
 /// A progress bar on stderr that appears only on a terminal and only after ~1 s.
@@ -709,15 +557,6 @@ impl Progress {
             started: Instant::now(),
             visible: std::cell::Cell::new(false),
             allowed: std::io::stderr().is_terminal(),
-        }
-    }
-
-    /// A bar that never shows.
-    pub fn hidden() -> Self {
-        let progress = Self::new(None);
-        Self {
-            allowed: false,
-            ..progress
         }
     }
 

@@ -4,9 +4,9 @@
 //! [`analysis::analyze`]), one CSV row per interval; optionally each interval's PSD as a row
 //! of a float32 `.npy` waterfall with its axes in a `.json` beside it.
 //!
-//! Data flow: acquisition thread → this thread (cuts the stream at interval boundaries,
-//! feeds the shared Welch averager with its worker threads, flushes and restarts it at
-//! each boundary) → a bounded channel of interval spectra → the `track-analysis` thread
+//! Data flow: acquisition thread → this thread (the library's stream loop,
+//! [`stream::drive`], with a sink that cuts the stream at interval boundaries, feeds the
+//! shared Welch averager with its worker threads, flushes and restarts it at each boundary) → a bounded channel of interval spectra → the `track-analysis` thread
 //! ([`analysis::analyze`], band following, rows out). The Welch of interval i + 1 runs while
 //! interval i is analysed and written, so the intervals cost little more than `spectrum`.
 //! Memory: the averager's (as `spectrum`), two interval spectra in the channel, and the
@@ -30,9 +30,10 @@ use std::process::ExitCode;
 use anyhow::{Context, Result};
 use crossbeam_channel::{Receiver, Sender};
 
-use crate::acquire::{self, AcqEvent, AcquireError, Acquisition, ReaderStats};
+use crate::acquire::{self, AcquireError};
+use crate::analysis::stream::{self, Averager, Flow, Frames, StreamError, StreamSink, Watch};
 use crate::analysis::{self, AnalysisOptions};
-use crate::dsp::{Averaging, Spectrum, Welch};
+use crate::dsp::Spectrum;
 use crate::model::trend::{TRACK_HEADER, TrendRow};
 use crate::npy_writer::NpyWriter;
 use crate::report::Report;
@@ -90,7 +91,7 @@ pub fn run(args: &TrackArgs) -> Result<ExitCode> {
     })?;
     let rate = reader.sample_rate_hz();
     let interval = interval_samples(args.every, rate)?;
-    let record_samples = pipeline::known_length(&source_config);
+    let record_samples = acquire::known_length(&source_config);
     let welch_config = config::welch_config(&args.welch, rate, Some(interval))?;
     if (welch_config.segment as u64) > interval {
         return Err(InputError(format!(
@@ -153,15 +154,10 @@ pub fn run(args: &TrackArgs) -> Result<ExitCode> {
     };
     let mode_band = options.mode_band_hz;
     let threads = config::worker_threads();
-    let mut averager = Welch::new(welch_config.clone())?.with_threads(threads);
+    let mut averager = Averager::new(welch_config.clone(), 1, threads)?;
     // Median, exponential and max-hold with --averages K: the first K segment positions of
     // each interval, as `analyze` takes the first K of a record.
-    let cap = match (welch_config.max_averages, welch_config.averaging) {
-        (Some(k), averaging) if !matches!(averaging, Averaging::Linear) => {
-            ((k.max(1) - 1) * welch_config.hop() + welch_config.segment) as u64
-        }
-        _ => interval,
-    };
+    let cap = averager.sample_cap().unwrap_or(interval);
     let analyst = Analyst {
         options,
         kind,
@@ -195,22 +191,23 @@ pub fn run(args: &TrackArgs) -> Result<ExitCode> {
     } else {
         Progress::new(available)
     };
-    let acquisition = Acquisition::spawn(
-        reader,
-        pipeline::headless_options(welch_config.segment, welch_config.hop(), threads),
-        None,
-    )?;
     let mut cut = Cutter {
         interval,
         cap,
-        limit,
         start: 0,
         filled: 0,
         total: 0,
         dropped_at_gaps: 0,
+        sender: &sender,
+        progress: &progress,
     };
-    let fed = cut.feed(&acquisition, &mut averager, &sender, &progress);
-    drop(acquisition);
+    let watch = Watch {
+        label: pipeline::source_label(&source_config.spec),
+        limit,
+        ..Watch::default()
+    };
+    let fed = pipeline::stream_into(reader, &mut averager, &watch, &mut cut);
+    let (filled, total, dropped_at_gaps) = (cut.filled, cut.total, cut.dropped_at_gaps);
     progress.finish();
     drop(sender);
     let analysed = match handle.join() {
@@ -220,43 +217,39 @@ pub fn run(args: &TrackArgs) -> Result<ExitCode> {
     // A failure of the analysis (an impossible band, an unwritable output) explains a
     // stopped feed better than the feed's own "the analysis stopped".
     let mut analyst = analysed?;
-    let (stats, ended) = fed.with_context(|| {
-        format!(
-            "while reading {}",
-            pipeline::source_label(&source_config.spec)
-        )
-    })?;
-    for warning in pipeline::reader_warnings(&stats, 0) {
+    let outcome = fed.with_context(|| format!("while reading {}", watch.label))?;
+    let stats = outcome.stats;
+    for warning in stream::reader_warnings(&stats, 0) {
         warn(&warning);
     }
-    if cut.dropped_at_gaps > 0 {
+    if dropped_at_gaps > 0 {
         warn(&format!(
             "{} samples of intervals cut by gaps in the stream (reconnections, reopened file) \
              were not analysed",
-            cut.dropped_at_gaps
+            dropped_at_gaps
         ));
     }
     if analyst.rows == 0 {
         return Err(InputError(format!(
             "the source ended after {} samples ({} s), before one interval of {interval} \
              samples (--every {} s) was complete",
-            cut.total,
-            pipeline::format_seconds(cut.total as f64 / rate),
+            total,
+            pipeline::format_seconds(total as f64 / rate),
             args.every
         ))
         .into());
     }
     analyst.finish()?;
-    if cut.filled > 0 {
+    if filled > 0 {
         note(&format!(
             "the last {} samples ({} s) do not fill an interval of {interval} samples (--every \
              {} s): that partial interval was not analysed",
-            cut.filled,
-            pipeline::format_seconds(cut.filled as f64 / rate),
+            filled,
+            pipeline::format_seconds(filled as f64 / rate),
             args.every
         ));
     }
-    if ended && source_config.spec.is_live() {
+    if outcome.ended() && source_config.spec.is_live() {
         note(&format!(
             "{} closed after {} samples ({} s at {rate} Hz)",
             pipeline::source_label(&source_config.spec),
@@ -308,14 +301,13 @@ fn duration_samples(duration: f64, rate: f64) -> Result<u64> {
     Ok(n as u64)
 }
 
-/// Cuts the stream into intervals and feeds the averager.
-struct Cutter {
+/// Cuts the stream into intervals and feeds the averager: the `track` side of
+/// [`stream::drive`].
+struct Cutter<'a> {
     /// Samples per interval.
     interval: u64,
     /// Samples of each interval pushed into the averager (≤ interval).
     cap: u64,
-    /// Stop after this many samples (`--duration`).
-    limit: Option<u64>,
     /// First sample of the current interval.
     start: u64,
     /// Samples of the current interval so far.
@@ -324,88 +316,63 @@ struct Cutter {
     total: u64,
     /// Samples of intervals abandoned at gaps.
     dropped_at_gaps: u64,
+    /// Completed intervals go to the analysis thread here.
+    sender: &'a Sender<Interval>,
+    /// The progress bar.
+    progress: &'a Progress,
 }
 
-impl Cutter {
-    /// Feeds blocks until the stream ends, `limit` is reached or the analysis stops. Returns
-    /// the reader's counters and whether the source ended by itself.
-    fn feed(
-        &mut self,
-        acquisition: &Acquisition,
-        averager: &mut Welch,
-        sender: &Sender<Interval>,
-        progress: &Progress,
-    ) -> Result<(ReaderStats, bool)> {
-        let mut stats = ReaderStats::default();
-        loop {
-            let Ok(event) = acquisition.events().recv() else {
-                anyhow::bail!("the acquisition thread ended without saying why");
-            };
-            match event {
-                AcqEvent::Block(block) => {
-                    let room = self
-                        .limit
-                        .map_or(u64::MAX, |l| l.saturating_sub(self.total));
-                    let usable = usize::try_from(room).unwrap_or(usize::MAX).min(block.len());
-                    let mut rest = block.get(..usable).unwrap_or(&block);
-                    while !rest.is_empty() {
-                        let need =
-                            usize::try_from(self.interval - self.filled).unwrap_or(usize::MAX);
-                        let take = need.min(rest.len());
-                        let (chunk, tail) = rest.split_at(take);
-                        if self.filled < self.cap {
-                            let k = usize::try_from(self.cap - self.filled)
-                                .unwrap_or(usize::MAX)
-                                .min(take);
-                            averager.push(chunk.get(..k).unwrap_or(chunk));
-                        }
-                        self.filled += take as u64;
-                        self.total += take as u64;
-                        rest = tail;
-                        if self.filled == self.interval {
-                            averager.flush();
-                            let spectrum = averager.spectrum();
-                            averager.restart();
-                            averager.discard_pending();
-                            let done = Interval {
-                                start: self.start,
-                                end: self.start + self.interval,
-                                spectrum,
-                            };
-                            self.start += self.interval;
-                            self.filled = 0;
-                            if sender.send(done).is_err() {
-                                // The analysis thread stopped; its error says why.
-                                anyhow::bail!("the analysis stopped");
-                            }
-                        }
-                    }
-                    acquisition.recycle(block);
-                    progress.set(self.total);
-                    if self.limit.is_some_and(|l| self.total >= l) {
-                        stats.samples = stats.samples.max(self.total);
-                        return Ok((stats, false));
-                    }
+impl StreamSink for Cutter<'_> {
+    fn block(&mut self, averager: &mut Averager, frames: Frames<'_>) -> Result<Flow, StreamError> {
+        let mut rest = frames;
+        while !rest.is_empty() {
+            let need = usize::try_from(self.interval - self.filled).unwrap_or(usize::MAX);
+            let (chunk, tail) = rest.split_at(need.min(rest.len()));
+            let take = chunk.len();
+            if self.filled < self.cap {
+                let k = usize::try_from(self.cap - self.filled)
+                    .unwrap_or(usize::MAX)
+                    .min(take);
+                averager.push(chunk.head(k));
+            }
+            self.filled += take as u64;
+            self.total += take as u64;
+            rest = tail;
+            if self.filled == self.interval {
+                averager.flush();
+                let spectrum = averager.spectrum();
+                averager.restart();
+                averager.discard_pending();
+                let done = Interval {
+                    start: self.start,
+                    end: self.start + self.interval,
+                    spectrum,
+                };
+                self.start += self.interval;
+                self.filled = 0;
+                if self.sender.send(done).is_err() {
+                    // The analysis thread stopped; its error says why.
+                    return Err(StreamError::Sink("the analysis stopped".into()));
                 }
-                AcqEvent::Gap { samples } => {
-                    // No interval spans missing samples: the current one is abandoned and
-                    // the next starts after the gap.
-                    self.dropped_at_gaps += self.filled;
-                    averager.flush();
-                    averager.restart();
-                    averager.discard_pending();
-                    self.total += samples;
-                    self.start = self.total;
-                    self.filled = 0;
-                }
-                AcqEvent::Status(status) => stats = status.reader,
-                AcqEvent::Stopped(None) => {
-                    stats.samples = stats.samples.max(self.total);
-                    return Ok((stats, true));
-                }
-                AcqEvent::Stopped(Some(error)) => return Err(error.into()),
             }
         }
+        Ok(Flow::Continue)
+    }
+
+    fn gap(&mut self, averager: &mut Averager, samples: u64) {
+        // No interval spans missing samples: the current one is abandoned and the next
+        // starts after the gap.
+        self.dropped_at_gaps += self.filled;
+        averager.flush();
+        averager.restart();
+        averager.discard_pending();
+        self.total += samples;
+        self.start = self.total;
+        self.filled = 0;
+    }
+
+    fn progress(&mut self, _position: u64) {
+        self.progress.set(self.total);
     }
 }
 

@@ -15,11 +15,12 @@ use super::history::{TrendPoint, WaterfallRow};
 use super::state::{SourceKind, WelchSettings};
 use super::{ModelError, Result};
 use crate::acquire::{
-    self, AcqCommand, AcqEvent, AcqOptions, AcqStatus, Acquisition, SourceConfig, SourceSpec,
+    self, AcqCommand, AcqEvent, AcqOptions, Acquisition, SourceConfig, SourceSpec,
 };
+use crate::analysis::stream::{Averager, Frames, reader_warnings};
 use crate::analysis::{self, AnalysisOptions};
-use crate::dsp::cross::{CrossSpectrum, CrossWelch};
-use crate::dsp::{Averaging, Spectrum, Welch};
+use crate::dsp::cross::CrossSpectrum;
+use crate::dsp::{Averaging, Spectrum};
 use crate::report::Report;
 
 /// Closure that wakes the window (the window passes `ctx.request_repaint()`).
@@ -341,9 +342,8 @@ struct Worker {
     waker: Waker,
     started: Instant,
     source: Option<Source>,
-    welch: Option<Welch>,
-    /// Two detectors: the cross-spectral averager, used instead of `welch`.
-    cross: Option<CrossWelch>,
+    /// The Welch averager (two detectors: the cross-spectral one); `None` after bad settings.
+    averager: Option<Averager>,
     /// Its newest estimate.
     cross_spectrum: Option<Arc<CrossSpectrum>>,
     sample_rate_hz: f64,
@@ -393,8 +393,7 @@ impl Worker {
             waker,
             started: Instant::now(),
             source: None,
-            welch: None,
-            cross: None,
+            averager: None,
             cross_spectrum: None,
             sample_rate_hz: 0.0,
             generation: 0,
@@ -419,6 +418,16 @@ impl Worker {
             history_now: false,
             marks: Vec::new(),
         }
+    }
+
+    /// Channels per block of the averager (2: two detectors; 1 also without an averager).
+    fn channels(&self) -> usize {
+        self.averager.as_ref().map_or(1, Averager::channels)
+    }
+
+    /// Two detectors are averaged.
+    fn two_channels(&self) -> bool {
+        self.channels() == 2
     }
 
     /// The channels (a, b) when two detectors are read.
@@ -528,26 +537,23 @@ impl Worker {
             .welch
             .to_config_for(self.sample_rate_hz, self.source_kind);
         let segment = cfg.segment;
-        self.welch = None;
-        self.cross = None;
+        self.averager = None;
         self.cross_spectrum = None;
         self.segments_at_analysis = 0;
-        if self.config.source.cross_channel.is_some() {
+        let channels = if self.config.source.cross_channel.is_some() {
             // The cross-spectrum is a mean: its uncorrelated residual falls as 1/√K_eff only
             // for a linear average (METHODS.md §10), so two detectors always average linearly.
             cfg.averaging = Averaging::Linear;
-            match CrossWelch::new(cfg) {
-                Ok(c) => self.cross = Some(c),
-                Err(e) => self.notice(EngineNotice::Error(format!("averaging settings: {e}"))),
-            }
+            2
         } else {
-            match Welch::new(cfg) {
-                Ok(w) => self.welch = Some(w),
-                Err(e) => self.notice(EngineNotice::Error(format!("averaging settings: {e}"))),
-            }
+            1
+        };
+        match Averager::new(cfg, channels, 1) {
+            Ok(a) => self.averager = Some(a),
+            Err(e) => self.notice(EngineNotice::Error(format!("averaging settings: {e}"))),
         }
         self.status.segment = segment;
-        self.status.averaging = if self.cross.is_some() {
+        self.status.averaging = if self.two_channels() {
             "mean (two detectors: the cross-spectrum is a linear average)".to_string()
         } else {
             self.config.welch.describe_for(self.source_kind)
@@ -566,11 +572,10 @@ impl Worker {
                     return;
                 }
                 self.status.max_averages_reached = None;
-                if let Some(w) = self.welch.as_mut() {
-                    w.restart();
-                }
-                if self.cross.is_some() {
+                if self.two_channels() {
                     self.rebuild_welch();
+                } else if let Some(a) = self.averager.as_mut() {
+                    a.restart();
                 }
                 self.segments_at_analysis = 0;
                 self.dirty = true;
@@ -633,40 +638,23 @@ impl Worker {
         match event {
             AcqEvent::Block(block) => {
                 // Samples per channel (a paired block holds both channels).
-                let per_channel = if self.cross.is_some() {
-                    block.len() / 2
-                } else {
-                    block.len()
-                };
+                let per_channel = block.len() / self.channels();
                 self.status.samples += per_channel as u64;
                 self.block_arrived(block.len());
                 if self.status.paused {
                     self.skipped_while_paused = true;
                     return;
                 }
-                if std::mem::take(&mut self.skipped_while_paused) {
-                    // The frozen blocks are missing: no segment spans them.
-                    if let Some(w) = self.welch.as_mut() {
-                        w.discard_pending();
+                if let Some(a) = self.averager.as_mut() {
+                    if std::mem::take(&mut self.skipped_while_paused) {
+                        // The frozen blocks are missing: no segment spans them.
+                        a.discard_pending();
                     }
-                    if let Some(c) = self.cross.as_mut() {
-                        c.discard_pending();
-                    }
-                }
-                if let Some(c) = self.cross.as_mut() {
                     // A paired block: n samples of channel a, then n of channel b.
-                    let half = block.len() / 2;
-                    let (a, b) = block.split_at(half);
-                    let before = c.segments();
-                    c.push(a, b.get(..half).unwrap_or(b));
-                    if c.segments() > before {
+                    let channels = a.channels();
+                    if a.push(Frames::of(&block, channels)) > 0 {
                         self.last_segment_arrival = Some(Instant::now());
                     }
-                }
-                if let Some(w) = self.welch.as_mut()
-                    && w.push(&block) > 0
-                {
-                    self.last_segment_arrival = Some(Instant::now());
                 }
                 if let Some(s) = &self.source {
                     s.acquisition.recycle(block);
@@ -676,11 +664,8 @@ impl Worker {
                 // Samples are missing: the next segment starts after the gap instead of
                 // spanning it (a segment across a gap has a phase jump). The dropped blocks
                 // themselves are counted in the status.
-                if let Some(w) = self.welch.as_mut() {
-                    w.discard_pending();
-                }
-                if let Some(c) = self.cross.as_mut() {
-                    c.discard_pending();
+                if let Some(a) = self.averager.as_mut() {
+                    a.discard_pending();
                 }
                 self.status.gaps += 1;
                 if samples == 0 {
@@ -691,23 +676,24 @@ impl Worker {
             }
             AcqEvent::Status(s) => {
                 self.check_silence();
-                let warnings = reader_warnings(&s);
+                let skipped = self.averager.as_ref().map_or(0, Averager::skipped_segments);
+                let mut warnings = reader_warnings(&s.reader, skipped);
+                if s.reader.reconnects > 0 {
+                    // The command line notes each reopening as it happens; the window keeps
+                    // the count beside the other counters.
+                    warnings.push(format!("{} reconnects", s.reader.reconnects));
+                }
                 // A changed counter or warning is news even without a new segment (a stalled
                 // or reconnecting stream): publish it.
                 if warnings != self.status.warnings
                     || s.dropped_blocks != self.status.dropped_blocks
-                    || s.dropped_samples
-                        != self.status.dropped_samples * if self.cross.is_some() { 2 } else { 1 }
+                    || s.dropped_samples != self.status.dropped_samples * self.channels() as u64
                 {
                     self.dirty = true;
                 }
                 self.status.dropped_blocks = s.dropped_blocks;
                 // Per channel, as `samples` (a paired block holds both channels).
-                self.status.dropped_samples = if self.cross.is_some() {
-                    s.dropped_samples / 2
-                } else {
-                    s.dropped_samples
-                };
+                self.status.dropped_samples = s.dropped_samples / self.channels() as u64;
                 self.status.warnings = warnings;
                 if !s.description.is_empty() && s.description != self.status.source {
                     self.status.source = s.description;
@@ -821,22 +807,19 @@ impl Worker {
 
     fn publish(&mut self) {
         self.last_publish = Instant::now();
-        if let Some(c) = self.cross.as_mut() {
-            // Whole groups wait for their span; every complete segment counts now.
-            c.flush();
+        if let Some(a) = self.averager.as_mut() {
+            // Whole groups of two detectors wait for their span; every complete segment
+            // counts now (one channel on this thread: nothing waits).
+            a.flush();
         }
-        let segments = match (&self.welch, &self.cross) {
-            (Some(w), _) => w.segments(),
-            (None, Some(c)) => c.segments(),
-            (None, None) => 0,
-        };
+        let segments = self.averager.as_ref().map_or(0, Averager::segments);
         let fresh = segments != self.segments_at_analysis;
-        if fresh && (self.welch.is_some() || self.cross.is_some()) {
-            if let Some(w) = &self.welch {
-                self.spectrum = w.spectrum().map(Arc::new);
-            } else if let Some(c) = &self.cross {
-                self.cross_spectrum = c.spectrum().map(Arc::new);
+        if fresh && let Some(a) = &self.averager {
+            if a.channels() == 2 {
+                self.cross_spectrum = a.cross_spectrum().map(Arc::new);
                 self.spectrum = self.cross_spectrum.as_ref().map(|c| Arc::new(c.a.clone()));
+            } else {
+                self.spectrum = a.spectrum().map(Arc::new);
             }
             if let Some(sp) = &self.spectrum {
                 let grid_changed = self.frequencies_hz.as_ref().is_none_or(|f| {
@@ -869,11 +852,8 @@ impl Worker {
             return;
         }
         self.dirty = false;
-        if let Some(w) = &self.welch {
-            self.status.skipped_segments = w.skipped_segments();
-        }
-        if let Some(c) = &self.cross {
-            self.status.skipped_segments = c.skipped_segments();
+        if let Some(a) = &self.averager {
+            self.status.skipped_segments = a.skipped_segments();
         }
         if let Some(s) = &self.spectrum {
             self.status.averages = s.averages;
@@ -951,31 +931,6 @@ impl Worker {
         }
         (self.waker)();
     }
-}
-
-/// One-line warnings from the reader's counters.
-fn reader_warnings(status: &AcqStatus) -> Vec<String> {
-    let r = &status.reader;
-    let mut w = Vec::new();
-    if r.non_finite_samples > 0 {
-        w.push(format!("{} non-finite samples", r.non_finite_samples));
-    }
-    if r.clipped_samples > 0 {
-        w.push(format!("{} clipped samples", r.clipped_samples));
-    }
-    if r.truncated {
-        w.push("WAV data ended early".into());
-    }
-    if r.partial_frame_bytes > 0 {
-        w.push(format!(
-            "{} bytes of a partial frame skipped",
-            r.partial_frame_bytes
-        ));
-    }
-    if r.reconnects > 0 {
-        w.push(format!("{} reconnects", r.reconnects));
-    }
-    w
 }
 
 /// The waterfall span for a fit band: the band and 2.5 band widths either side (so the

@@ -118,13 +118,7 @@ pub fn status_line(
                 .color(theme::WARN),
             );
         }
-        if s.skipped_segments > 0 {
-            sep(ui);
-            ui.label(
-                RichText::new(format!("{} segments skipped (NaN/Inf)", s.skipped_segments))
-                    .color(theme::WARN),
-            );
-        }
+        // Skipped segments are in the reader's warnings (with the non-finite samples).
         for w in &s.warnings {
             sep(ui);
             ui.label(RichText::new(w).color(theme::WARN));
