@@ -19,7 +19,7 @@ use cli_tokens::{NAMES, VALUES};
 use proptest::prelude::*;
 use stillpoint::cli::args::{AveragingArg, Cli, Command, DetrendArg, HeterodyneArgs, WelchArgs};
 use stillpoint::cli::config::{
-    MAX_SEGMENT, analysis_options, calibration_kind, default_segment, source_config, welch_config,
+    MAX_SEGMENT, analysis_options, check_calibration, default_segment, source_config, welch_config,
 };
 
 fn token() -> impl Strategy<Value = String> {
@@ -149,7 +149,7 @@ fn exercise(cli: &Cli, record: Option<u64>, echo: bool) -> Result<(), TestCaseEr
     }
     exercise_welch(welch, source.rate.unwrap_or(48_000.0), record, echo)?;
     exercise_welch(welch, source.rate.unwrap_or(1.0), None, echo)?;
-    if let Err(e) = calibration_kind(calibration) {
+    if let Err(e) = check_calibration(calibration) {
         check_one_line(&e, echo)?;
     }
     match analysis_options(calibration, heterodyne, threshold) {

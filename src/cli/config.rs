@@ -167,26 +167,15 @@ pub fn welch_config(
     Ok(config)
 }
 
-/// Which calibration the options ask for.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum CalibrationKind {
-    /// None: the spectrum stays in V²/Hz.
-    None,
-    /// `--m-per-v`.
-    Given,
-    /// `--tone-freq` with `--tone-rms-m`, or with `--pm-depth --freq-pull`.
-    Tone,
-    /// `--bath-temperature` (with `--mode-band` and `--mass`).
-    Equipartition,
-}
-
-/// Checks the calibration options for completeness and says which calibration they select.
+/// Checks the calibration options for completeness. Which calibration they select is read
+/// from the analysis options they make ([`crate::model::CalibrationMethod::of`], the one
+/// enum of the requested method for both faces).
 ///
 /// # Errors
 /// A tone frequency without its amplitude, equipartition without a mode band or mass.
-pub fn calibration_kind(args: &CalibrationArgs) -> Result<CalibrationKind> {
+pub fn check_calibration(args: &CalibrationArgs) -> Result<()> {
     if args.m_per_v.is_some() {
-        return Ok(CalibrationKind::Given);
+        return Ok(());
     }
     if args.tone_freq.is_some() {
         if args.tone_rms_m.is_none() && args.pm_depth.is_none() {
@@ -196,7 +185,7 @@ pub fn calibration_kind(args: &CalibrationArgs) -> Result<CalibrationKind> {
                     .into(),
             ));
         }
-        return Ok(CalibrationKind::Tone);
+        return Ok(());
     }
     if args.bath_temperature.is_some() {
         if args.mode_band.is_none() {
@@ -212,21 +201,21 @@ pub fn calibration_kind(args: &CalibrationArgs) -> Result<CalibrationKind> {
                     .into(),
             ));
         }
-        return Ok(CalibrationKind::Equipartition);
+        return Ok(());
     }
-    Ok(CalibrationKind::None)
+    Ok(())
 }
 
 /// The analysis options for [`crate::analysis::analyze`].
 ///
 /// # Errors
-/// Incomplete calibration options (see [`calibration_kind`]).
+/// Incomplete calibration options (see [`check_calibration`]).
 pub fn analysis_options(
     calibration: &CalibrationArgs,
     heterodyne: &HeterodyneArgs,
     peak_threshold_db: Option<f64>,
 ) -> Result<AnalysisOptions> {
-    calibration_kind(calibration)?;
+    check_calibration(calibration)?;
     if heterodyne.carrier.is_some() != heterodyne.lo_side.is_some() {
         return Err(InputError(
             "--carrier and --lo-side above|below go together (the LO side decides which \

@@ -11,9 +11,10 @@ use crate::dsp::cross::CrossSpectrum;
 use crate::report::{self, cross::analyze_cross};
 
 use super::args::{AnalyzeArgs, AveragingArg, HeterodyneArgs, SourceArgs, SpectrumArgs, WelchArgs};
-use super::config::{self, CalibrationKind};
+use super::config;
 use super::pipeline;
 use super::{InputError, note, output, warn};
+use crate::model::CalibrationMethod;
 
 /// A finished two-channel average and what happened on the way.
 #[derive(Debug)]
@@ -94,8 +95,8 @@ pub fn compute_cross(source: &SourceArgs, welch: &WelchArgs) -> Result<CrossRun>
 /// # Errors
 /// Bad options or input, a failed calibration, an unwritable output.
 pub fn run_spectrum(args: &SpectrumArgs) -> Result<ExitCode> {
-    let kind = config::calibration_kind(&args.calibration)?;
     let options = config::analysis_options(&args.calibration, &HeterodyneArgs::default(), None)?;
+    let kind = CalibrationMethod::of(&options);
     output::check_output_for(&args.output, &args.source.source)?;
     let run = compute_cross(&args.source, &args.welch)?;
     for warning in &run.warnings {
@@ -106,9 +107,11 @@ pub fn run_spectrum(args: &SpectrumArgs) -> Result<ExitCode> {
     }
     // Calibrated columns: m²/Hz with each channel's own m/V (the CSD with c_a c_b).
     let factors = match kind {
-        CalibrationKind::None => None,
-        CalibrationKind::Given => options.m_per_v.map(|c| (c, c)),
-        CalibrationKind::Tone | CalibrationKind::Equipartition => {
+        CalibrationMethod::None => None,
+        CalibrationMethod::Given => options.m_per_v.map(|c| (c, c)),
+        CalibrationMethod::ToneDisplacement
+        | CalibrationMethod::TonePhaseModulation
+        | CalibrationMethod::Equipartition => {
             let report = analyze_cross(&run.cross, &options, run.channels)?;
             let cross = report.cross.as_ref();
             match (

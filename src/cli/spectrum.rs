@@ -10,8 +10,9 @@ use crate::analysis::{self, AnalysisOptions};
 use crate::snapshot;
 
 use super::args::{HeterodyneArgs, SpectrumArgs};
-use super::config::{self, CalibrationKind};
+use super::config;
 use super::{InputError, note, output, pipeline, warn};
+use crate::model::CalibrationMethod;
 
 /// Runs `stillpoint spectrum`.
 ///
@@ -27,8 +28,8 @@ pub fn run(args: &SpectrumArgs) -> Result<ExitCode> {
         }
         return super::cross::run_spectrum(args);
     }
-    let kind = config::calibration_kind(&args.calibration)?;
     let options = config::analysis_options(&args.calibration, &HeterodyneArgs::default(), None)?;
+    let kind = CalibrationMethod::of(&options);
     output::check_output_for(&args.output, &args.source.source)?;
     let run = pipeline::compute_spectrum(&args.source, &args.welch)?;
     for warning in &run.warnings {
@@ -59,13 +60,15 @@ pub fn run(args: &SpectrumArgs) -> Result<ExitCode> {
 /// Metres per volt for the chosen calibration (`None`: uncalibrated).
 fn calibrate(
     spectrum: &crate::dsp::Spectrum,
-    kind: CalibrationKind,
+    kind: CalibrationMethod,
     options: &AnalysisOptions,
 ) -> Result<Option<f64>> {
     match kind {
-        CalibrationKind::None => Ok(None),
-        CalibrationKind::Given => Ok(options.m_per_v),
-        CalibrationKind::Tone | CalibrationKind::Equipartition => {
+        CalibrationMethod::None => Ok(None),
+        CalibrationMethod::Given => Ok(options.m_per_v),
+        CalibrationMethod::ToneDisplacement
+        | CalibrationMethod::TonePhaseModulation
+        | CalibrationMethod::Equipartition => {
             let report = analysis::analyze(spectrum, options)?;
             match report.calibration.m_per_v {
                 Some(c) if c.is_finite() && c > 0.0 => Ok(Some(c)),

@@ -39,9 +39,10 @@ use crate::npy_writer::NpyWriter;
 use crate::report::Report;
 
 use super::args::TrackArgs;
-use super::config::{self, CalibrationKind};
+use super::config;
 use super::pipeline::{self, Progress};
 use super::{InputError, note, output, warn};
+use crate::model::CalibrationMethod;
 
 /// One completed interval on its way to the analysis thread.
 struct Interval {
@@ -58,8 +59,8 @@ struct Interval {
 /// # Errors
 /// Bad options or input, a failed analysis, an unwritable output.
 pub fn run(args: &TrackArgs) -> Result<ExitCode> {
-    let kind = config::calibration_kind(&args.calibration)?;
     let options = config::analysis_options(&args.calibration, &args.heterodyne, None)?;
+    let kind = CalibrationMethod::of(&options);
     output::check_output_path(&args.output)?;
     let waterfall_paths = match &args.waterfall {
         Some(npy) => {
@@ -576,7 +577,7 @@ impl WaterfallOut {
 /// The analysis thread's state.
 struct Analyst {
     options: AnalysisOptions,
-    kind: CalibrationKind,
+    kind: CalibrationMethod,
     /// The current mode band (follows the mode unless `fixed_band`).
     band: Option<(f64, f64)>,
     fixed_band: bool,
@@ -640,7 +641,7 @@ impl Analyst {
                     t0,
                     t1,
                     band,
-                    self.kind != CalibrationKind::None,
+                    self.kind != CalibrationMethod::None,
                 );
                 self.follow(&report);
                 (row, report.calibration.m_per_v)

@@ -295,9 +295,11 @@ impl WelchSettings {
     }
 }
 
-/// The calibration methods of the window's menu, read from (and written into) the one
-/// analysis-settings type, [`AnalysisOptions`]: the menu is a view of those options, not a
-/// second copy of them.
+/// The calibration method the analysis options ask for: the window's menu and the command
+/// line's choice, read from (and written into) the one analysis-settings type,
+/// [`AnalysisOptions`], so the menu is a view of those options, not a second copy of them.
+/// (How a calibration was actually obtained, as the report states it, is
+/// [`crate::physics::calibration::CalibrationMethod`].)
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
 pub enum CalibrationMethod {
     /// Uncalibrated: volts only.

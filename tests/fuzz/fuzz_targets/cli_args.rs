@@ -22,7 +22,7 @@ use clap::error::ErrorKind;
 use libfuzzer_sys::fuzz_target;
 use stillpoint::cli::args::{AveragingArg, Cli, Command, DetrendArg, WelchArgs};
 use stillpoint::cli::config::{
-    analysis_options, calibration_kind, default_segment, source_config, welch_config,
+    analysis_options, check_calibration, default_segment, source_config, welch_config,
 };
 
 /// Clap's usage-error format: one non-empty `error:` line, then only blank, indented, usage,
@@ -123,7 +123,7 @@ fn exercise(cli: &Cli, record: Option<u64>, echo: bool) {
     }
     exercise_welch(welch, source.rate.unwrap_or(48_000.0), record, echo);
     exercise_welch(welch, source.rate.unwrap_or(1.0), None, echo);
-    if let Err(e) = calibration_kind(calibration) {
+    if let Err(e) = check_calibration(calibration) {
         check_one_line(&e, echo);
     }
     let default_het = Default::default();
