@@ -17,13 +17,11 @@
 //! consecutive segments go to workers and their sums are added in stream order: the result
 //! is bit-identical for any thread count and block sizes.
 
-use std::collections::BTreeMap;
 use std::sync::Arc;
-use std::thread::JoinHandle;
 
-use crossbeam_channel::{Receiver, Sender, bounded};
 use realfft::RealFftPlanner;
 
+use super::ordered_pool::{self, Next, OrderedPool};
 use super::welch::Transformer;
 use super::window::{k_eff_from_rho2, overlap_correlations_squared, sums};
 use super::{Averaging, DspError, Result, Spectrum, WelchConfig};
@@ -182,80 +180,43 @@ fn run_job(pair: &mut Pair, job: &mut Job, n: usize, hop: usize, bins: usize) {
     }
 }
 
-/// Persistent workers for [`CrossWelch`].
-struct Pool {
-    jobs: Option<Sender<Job>>,
-    results: Receiver<Job>,
-    handles: Vec<JoinHandle<()>>,
-    max_in_flight: usize,
-    next_seq: u64,
-    next_apply: u64,
-    waiting: BTreeMap<u64, Job>,
-    free: Vec<Job>,
-}
+impl ordered_pool::Job for Job {
+    fn seq(&self) -> u64 {
+        self.seq
+    }
 
-impl Pool {
-    fn start(
-        main: &Pair,
-        threads: usize,
-        n: usize,
-        hop: usize,
-        bins: usize,
-        span: usize,
-    ) -> Option<Self> {
-        let job_bytes = (2 * span + 4 * bins) * std::mem::size_of::<f64>();
-        let max_in_flight = (IN_FLIGHT_BYTES / job_bytes.max(1)).clamp(threads + 1, 2 * threads);
-        let (jobs, job_rx) = bounded::<Job>(max_in_flight);
-        let (result_tx, results) = bounded::<Job>(max_in_flight);
-        let mut handles = Vec::with_capacity(threads);
-        for t in 0..threads {
-            let mut pair = main.fork();
-            let job_rx = job_rx.clone();
-            let result_tx = result_tx.clone();
-            let spawned = std::thread::Builder::new()
-                .name(format!("cross-worker-{t}"))
-                .spawn(move || {
-                    while let Ok(mut job) = job_rx.recv() {
-                        let ran = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                            run_job(&mut pair, &mut job, n, hop, bins);
-                        }));
-                        if ran.is_err() {
-                            job.accepted = 0;
-                            job.rows.clear();
-                            job.rows.resize(4 * bins, 0.0);
-                        }
-                        if result_tx.send(job).is_err() {
-                            break;
-                        }
-                    }
-                });
-            if let Ok(handle) = spawned {
-                handles.push(handle);
-            }
-        }
-        if handles.is_empty() {
-            return None;
-        }
-        Some(Self {
-            jobs: Some(jobs),
-            results,
-            handles,
-            max_in_flight,
-            next_seq: 0,
-            next_apply: 0,
-            waiting: BTreeMap::new(),
-            free: Vec::new(),
-        })
+    fn set_seq(&mut self, seq: u64) {
+        self.seq = seq;
     }
 }
 
-impl Drop for Pool {
-    fn drop(&mut self) {
-        self.jobs = None;
-        for handle in self.handles.drain(..) {
-            let _ = handle.join();
-        }
-    }
+/// Persistent workers for [`CrossWelch`] (the one ordered pool of the Welch averagers).
+type Pool = OrderedPool<Job>;
+
+/// Starts `threads` workers (forks of `main`) for groups of `span` samples per channel.
+fn start_pool(
+    main: &Pair,
+    threads: usize,
+    n: usize,
+    hop: usize,
+    bins: usize,
+    span: usize,
+) -> Option<Pool> {
+    let job_bytes = (2 * span + 4 * bins) * std::mem::size_of::<f64>();
+    let max_in_flight = (IN_FLIGHT_BYTES / job_bytes.max(1)).clamp(threads + 1, 2 * threads);
+    let workers = (0..threads).map(|_| main.fork()).collect();
+    OrderedPool::start(
+        "cross-worker",
+        workers,
+        max_in_flight,
+        move |pair: &mut Pair, job: &mut Job| run_job(pair, job, n, hop, bins),
+        // A worker that panicked: the group's segments count as skipped.
+        move |job: &mut Job| {
+            job.accepted = 0;
+            job.rows.clear();
+            job.rows.resize(4 * bins, 0.0);
+        },
+    )
 }
 
 /// The running sums and the bookkeeping of the average.
@@ -371,7 +332,7 @@ impl CrossWelch {
         self.pool = None;
         let threads = threads.clamp(1, 64);
         if threads >= 2 {
-            self.pool = Pool::start(
+            self.pool = start_pool(
                 &self.main,
                 threads,
                 self.n,
@@ -455,7 +416,7 @@ impl CrossWelch {
     fn job_buffer(&mut self) -> Job {
         self.pool
             .as_mut()
-            .and_then(|p| p.free.pop())
+            .and_then(Pool::take_free)
             .or_else(|| self.local.take())
             .unwrap_or_else(|| Job {
                 seq: 0,
@@ -507,29 +468,14 @@ impl CrossWelch {
         self.positions += job.count;
         let bins = self.sums.bins;
         if let Some(pool) = self.pool.as_mut() {
-            while pool.next_seq - pool.next_apply >= pool.max_in_flight as u64 {
-                if !Self::wait_one(pool, &mut self.sums) {
-                    break;
-                }
-            }
-            job.seq = pool.next_seq;
-            let sent = match &pool.jobs {
-                Some(jobs) => jobs.send(job).map_err(|e| e.into_inner()),
-                None => Err(job),
-            };
-            match sent {
-                Ok(()) => {
-                    pool.next_seq += 1;
-                    return;
-                }
+            while pool.is_full() && Self::add_next(pool, &mut self.sums, self.group, true) {}
+            match pool.send(job) {
+                Ok(()) => return,
                 Err(back) => job = back,
             }
-            // Workers gone: finish what arrived, then carry on here.
-            while pool.next_apply < pool.next_seq {
-                if !Self::wait_one(pool, &mut self.sums) {
-                    break;
-                }
-            }
+            // Workers gone: add what arrived (the lost groups count as skipped), then carry
+            // on here.
+            while Self::add_next(pool, &mut self.sums, self.group, true) {}
             self.pool = None;
         }
         run_job(&mut self.main, &mut job, self.n, self.hop, bins);
@@ -537,28 +483,21 @@ impl CrossWelch {
         self.local = Some(job);
     }
 
-    /// Waits for one result and adds every job now next in order; false if the workers
-    /// are gone (their groups are then counted as skipped).
-    fn wait_one(pool: &mut Pool, sums: &mut Sums) -> bool {
-        match pool.results.recv() {
-            Ok(job) => {
-                Self::arrive(pool, sums, job);
+    /// Adds the next job in order (waiting for it with `wait`), or counts the `group`
+    /// positions of a job lost with the workers as skipped; false when there is nothing to
+    /// add now.
+    fn add_next(pool: &mut Pool, sums: &mut Sums, group: usize, wait: bool) -> bool {
+        match pool.next(wait) {
+            Next::Ready(job) => {
+                sums.add(&job);
+                pool.recycle(job);
                 true
             }
-            Err(_) => {
-                pool.next_apply = pool.next_seq;
-                pool.waiting.clear();
-                false
+            Next::Lost => {
+                sums.skipped += group;
+                true
             }
-        }
-    }
-
-    fn arrive(pool: &mut Pool, sums: &mut Sums, job: Job) {
-        pool.waiting.insert(job.seq, job);
-        while let Some(job) = pool.waiting.remove(&pool.next_apply) {
-            sums.add(&job);
-            pool.free.push(job);
-            pool.next_apply += 1;
+            Next::Idle => false,
         }
     }
 
@@ -567,15 +506,9 @@ impl CrossWelch {
         let Some(pool) = self.pool.as_mut() else {
             return;
         };
-        while let Ok(job) = pool.results.try_recv() {
-            Self::arrive(pool, &mut self.sums, job);
-        }
+        while Self::add_next(pool, &mut self.sums, self.group, false) {}
         if wait {
-            while pool.next_apply < pool.next_seq {
-                if !Self::wait_one(pool, &mut self.sums) {
-                    break;
-                }
-            }
+            while Self::add_next(pool, &mut self.sums, self.group, true) {}
         }
     }
 

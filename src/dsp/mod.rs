@@ -22,6 +22,7 @@ pub mod cross;
 mod defaults;
 mod error;
 pub mod median;
+mod ordered_pool;
 pub mod units;
 pub mod welch;
 pub mod window;

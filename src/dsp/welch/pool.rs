@@ -8,11 +8,7 @@
 //! as the caller's thread would do), otherwise every periodogram. At most `max_in_flight`
 //! jobs exist at once; their buffers are recycled, so a running averager allocates nothing.
 
-use std::collections::VecDeque;
-use std::thread::JoinHandle;
-
-use crossbeam_channel::{Receiver, Sender, TryRecvError, bounded};
-
+use super::super::ordered_pool::{self, Next, OrderedPool};
 use super::{Accumulator, Transformer};
 
 /// Memory the jobs in flight may take (samples and result rows), bytes.
@@ -101,20 +97,21 @@ fn apply(job: &Job, shape: Shape, acc: &mut Accumulator) -> usize {
     accepted
 }
 
-/// Persistent worker threads and the jobs in flight.
+impl ordered_pool::Job for Job {
+    fn seq(&self) -> u64 {
+        self.seq
+    }
+
+    fn set_seq(&mut self, seq: u64) {
+        self.seq = seq;
+    }
+}
+
+/// Persistent worker threads and the jobs in flight ([`OrderedPool`], shared with the
+/// two-channel averager).
 pub(super) struct Pool {
     shape: Shape,
-    jobs: Option<Sender<Job>>,
-    results: Receiver<Job>,
-    handles: Vec<JoinHandle<()>>,
-    max_in_flight: usize,
-    next_seq: u64,
-    next_apply: u64,
-    /// Finished jobs waiting for an earlier one (index = seq − next_apply).
-    waiting: VecDeque<Option<Job>>,
-    free: Vec<Job>,
-    /// False once the workers are gone (the caller then averages on its own thread).
-    alive: bool,
+    inner: OrderedPool<Job>,
 }
 
 impl Pool {
@@ -136,56 +133,25 @@ impl Pool {
         };
         let job_bytes = (shape.span() + shape.rows_len()) * std::mem::size_of::<f64>();
         let max_in_flight = (IN_FLIGHT_BYTES / job_bytes.max(1)).clamp(threads + 1, 2 * threads);
-        let (jobs, job_rx) = bounded::<Job>(max_in_flight);
-        let (result_tx, results) = bounded::<Job>(max_in_flight);
-        let mut handles = Vec::with_capacity(threads);
-        for t in 0..threads {
-            let mut worker = main.fork();
-            let job_rx = job_rx.clone();
-            let result_tx = result_tx.clone();
-            let spawned = std::thread::Builder::new()
-                .name(format!("welch-worker-{t}"))
-                .spawn(move || {
-                    while let Ok(mut job) = job_rx.recv() {
-                        // A panic must not lose the job (the caller would wait for it
-                        // forever): its segments then count as skipped.
-                        let ran = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                            run_job(&mut worker, &mut job, shape);
-                        }));
-                        if ran.is_err() {
-                            job.accepted = 0;
-                            job.rows.clear();
-                            job.rows.resize(shape.rows_len(), 0.0);
-                        }
-                        if result_tx.send(job).is_err() {
-                            break;
-                        }
-                    }
-                });
-            if let Ok(handle) = spawned {
-                handles.push(handle);
-            }
-        }
-        if handles.is_empty() {
-            return None;
-        }
-        Some(Self {
-            shape,
-            jobs: Some(jobs),
-            results,
-            handles,
+        let workers = (0..threads).map(|_| main.fork()).collect();
+        let inner = OrderedPool::start(
+            "welch-worker",
+            workers,
             max_in_flight,
-            next_seq: 0,
-            next_apply: 0,
-            waiting: VecDeque::new(),
-            free: Vec::new(),
-            alive: true,
-        })
+            move |worker: &mut Transformer, job: &mut Job| run_job(worker, job, shape),
+            // A worker that panicked: the group's segments count as skipped.
+            move |job: &mut Job| {
+                job.accepted = 0;
+                job.rows.clear();
+                job.rows.resize(shape.rows_len(), 0.0);
+            },
+        )?;
+        Some(Self { shape, inner })
     }
 
     /// Worker threads running.
     pub(super) fn threads(&self) -> usize {
-        self.handles.len()
+        self.inner.threads()
     }
 
     /// Samples one job covers: `(G − 1)·D + N`.
@@ -200,12 +166,12 @@ impl Pool {
 
     /// Segment positions sent to the workers and not yet added.
     pub(super) fn positions_in_flight(&self) -> usize {
-        (self.next_seq - self.next_apply) as usize * self.shape.group
+        self.inner.in_flight() * self.shape.group
     }
 
     /// False once the workers are gone.
     pub(super) fn is_alive(&self) -> bool {
-        self.alive
+        self.inner.is_alive()
     }
 
     /// Sends the group `head ++ tail` (exactly [`Pool::span`] samples) to a worker, first
@@ -219,32 +185,28 @@ impl Pool {
         main: &mut Transformer,
     ) -> usize {
         let mut added = 0;
-        while self.alive && self.next_seq - self.next_apply >= self.max_in_flight as u64 {
-            added += self.wait_one(acc);
+        while self.inner.is_full() {
+            match self.add_next(true, acc) {
+                Some(n) => added += n,
+                None => break,
+            }
         }
-        let mut job = self.free.pop().unwrap_or_else(|| Job {
+        let mut job = self.inner.take_free().unwrap_or_else(|| Job {
             seq: 0,
             samples: Vec::with_capacity(self.shape.span()),
             rows: Vec::new(),
             accepted: 0,
         });
-        job.seq = self.next_seq;
         job.samples.clear();
         job.samples.extend_from_slice(head);
         job.samples.extend_from_slice(tail);
-        let sent = match (&self.jobs, self.alive) {
-            (Some(jobs), true) => jobs.send(job).map_err(|e| e.into_inner()),
-            _ => Err(job),
-        };
-        match sent {
-            Ok(()) => self.next_seq += 1,
-            Err(mut job) => {
-                // No worker left: everything in flight is lost; do this group here.
-                added += self.drain(acc);
-                run_job(main, &mut job, self.shape);
-                added += apply(&job, self.shape, acc);
-                self.free.push(job);
-            }
+        if let Err(mut job) = self.inner.send(job) {
+            // No worker left: what was in flight is added or counted as skipped; this
+            // group is done here.
+            added += self.drain(acc);
+            run_job(main, &mut job, self.shape);
+            added += apply(&job, self.shape, acc);
+            self.inner.recycle(job);
         }
         added
     }
@@ -252,12 +214,8 @@ impl Pool {
     /// Adds every job that has finished and is next in order, without waiting.
     pub(super) fn collect(&mut self, acc: &mut Accumulator) -> usize {
         let mut added = 0;
-        while self.alive && self.next_apply < self.next_seq {
-            match self.results.try_recv() {
-                Ok(job) => added += self.arrive(job, acc),
-                Err(TryRecvError::Empty) => break,
-                Err(TryRecvError::Disconnected) => added += self.lose_in_flight(acc),
-            }
+        while let Some(n) = self.add_next(false, acc) {
+            added += n;
         }
         added
     }
@@ -265,87 +223,32 @@ impl Pool {
     /// Waits for every job in flight and adds them all.
     pub(super) fn drain(&mut self, acc: &mut Accumulator) -> usize {
         let mut added = 0;
-        while self.next_apply < self.next_seq {
-            added += self.wait_one(acc);
+        while let Some(n) = self.add_next(true, acc) {
+            added += n;
         }
         added
     }
 
     /// Waits for every job in flight and throws the results away (a restart).
     pub(super) fn discard(&mut self) {
-        let arrived = self.waiting.iter().filter(|j| j.is_some()).count() as u64;
-        let mut outstanding = (self.next_seq - self.next_apply).saturating_sub(arrived);
-        while self.alive && outstanding > 0 {
-            match self.results.recv() {
-                Ok(job) => {
-                    self.free.push(job);
-                    outstanding -= 1;
-                }
-                Err(_) => self.alive = false,
+        self.inner.discard();
+    }
+
+    /// Adds the next job in order (waiting for it with `wait`), or counts the positions of
+    /// a job lost with the workers as skipped; the segments added, `None` when there is
+    /// nothing to add now.
+    fn add_next(&mut self, wait: bool, acc: &mut Accumulator) -> Option<usize> {
+        match self.inner.next(wait) {
+            Next::Ready(job) => {
+                let added = apply(&job, self.shape, acc);
+                self.inner.recycle(job);
+                Some(added)
             }
-        }
-        self.free.extend(self.waiting.drain(..).flatten());
-        self.next_apply = self.next_seq;
-    }
-
-    /// Waits for one job (any) and adds whatever is then next in order.
-    fn wait_one(&mut self, acc: &mut Accumulator) -> usize {
-        if !self.alive {
-            return self.lose_in_flight(acc);
-        }
-        match self.results.recv() {
-            Ok(job) => self.arrive(job, acc),
-            Err(_) => self.lose_in_flight(acc),
-        }
-    }
-
-    /// Files a finished job and adds every job that is now next in order.
-    fn arrive(&mut self, job: Job, acc: &mut Accumulator) -> usize {
-        let index = (job.seq - self.next_apply) as usize;
-        if self.waiting.len() <= index {
-            self.waiting.resize_with(index + 1, || None);
-        }
-        if let Some(slot) = self.waiting.get_mut(index) {
-            *slot = Some(job);
-        }
-        let mut added = 0;
-        while let Some(Some(_)) = self.waiting.front() {
-            if let Some(Some(job)) = self.waiting.pop_front() {
-                added += apply(&job, self.shape, acc);
-                self.free.push(job);
+            Next::Lost => {
+                (0..self.shape.group).for_each(|_| acc.skip());
+                Some(0)
             }
-            self.next_apply += 1;
-        }
-        added
-    }
-
-    /// The workers are gone: adds the finished jobs in order and counts the segment
-    /// positions of the lost ones as skipped.
-    fn lose_in_flight(&mut self, acc: &mut Accumulator) -> usize {
-        self.alive = false;
-        let mut added = 0;
-        while self.next_apply < self.next_seq {
-            match self.waiting.pop_front() {
-                Some(Some(job)) => {
-                    added += apply(&job, self.shape, acc);
-                    self.free.push(job);
-                }
-                _ => (0..self.shape.group).for_each(|_| acc.skip()),
-            }
-            self.next_apply += 1;
-        }
-        self.waiting.clear();
-        added
-    }
-}
-
-impl Drop for Pool {
-    fn drop(&mut self) {
-        // Closing the job channel ends every worker's loop; results in flight fit in the
-        // result channel, so no worker blocks.
-        self.jobs = None;
-        for handle in self.handles.drain(..) {
-            let _ = handle.join();
+            Next::Idle => None,
         }
     }
 }
