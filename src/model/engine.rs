@@ -1541,6 +1541,84 @@ mod tests {
         assert!(c.coherence_noise_threshold > 0.0 && c.coherence_noise_threshold < 0.1);
     }
 
+    /// Plays a recording as fast as the engine takes it; every frame until the end.
+    fn play_to_end(cfg: EngineConfig) -> (Vec<HistoryEntry>, Frame) {
+        let engine = Engine::start(cfg, Box::new(|| {})).unwrap();
+        let mut history = Vec::new();
+        let mut last = None;
+        let t0 = Instant::now();
+        // A deadline against a hang, not a speed requirement.
+        while t0.elapsed() < Duration::from_secs(300) {
+            if let Some(f) = engine.recv_frame_timeout(Duration::from_millis(200)) {
+                history.extend(f.history.iter().cloned());
+                let done = f.status.ended.is_some();
+                last = Some(f);
+                if done {
+                    break;
+                }
+            }
+        }
+        while let Some(f) = engine.recv_frame_timeout(Duration::from_millis(500)) {
+            history.extend(f.history.iter().cloned());
+            last = Some(f);
+        }
+        (history, last.expect("no frame"))
+    }
+
+    #[test]
+    fn a_drifting_recording_ends_on_its_last_interval_and_says_so() {
+        // The README's example: cooldown.wav with the window's defaults (the command line's
+        // segment, a mean, the band found and following the mode). f_m moves 86 100 → 86 400
+        // Hz and γ narrows 43 → 7.2 Hz: the whole-record mean smears the line, so the end
+        // shows the last interval. Check values: the record's truth (the schedule's last
+        // second: 4 K, f_m = 86 400 Hz, Q = 12 000 → γ = 7.2 Hz).
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("sample-streams")
+            .join("cooldown.wav");
+        let mut cfg = EngineConfig::new(SourceConfig::new(crate::acquire::SourceSpec::Path(path)));
+        cfg.playback_speed = None;
+        cfg.publish_interval = Duration::from_millis(50);
+        let (history, frame) = play_to_end(cfg);
+        // 6 s of record in intervals of 1 s (250 000 samples ≥ N + 3 hops at N = 65 536).
+        assert_eq!(frame.status.interval_samples, 250_000);
+        let times: Vec<(f64, f64)> = history.iter().map(|e| (e.t_start_s, e.t_end_s)).collect();
+        assert_eq!(times, (0..6).map(|i| (i as f64, i as f64 + 1.0)).collect::<Vec<_>>());
+        let note = frame.status.record_note.clone().expect("no note on a drifting record");
+        assert!(note.contains("the mode moved") && note.contains("showing the last 1.0 s"), "{note}");
+        let report = frame.report.clone().expect("no report");
+        let last = history.last().unwrap().report.clone().unwrap();
+        // The panel is the last interval, and so the strip's last point.
+        assert_eq!(report.mode.frequency_hz, last.mode.frequency_hz);
+        assert_eq!(frame.spectrum.as_ref().unwrap().averages, last.welch.averages);
+        let (f, sf) = (report.mode.frequency_hz.unwrap(), report.mode.frequency_hz_uncertainty.unwrap());
+        let (g, sg) = (report.mode.linewidth_hz.unwrap(), report.mode.linewidth_hz_uncertainty.unwrap());
+        eprintln!("cooldown end: f_m {f} ± {sf} Hz, γ {g} ± {sg} Hz; {note}");
+        assert!((f - 86_400.0).abs() < 4.0 * sf + 0.5, "{f} ± {sf}");
+        assert!((g - 7.2).abs() < 4.0 * sg + 1.0, "{g} ± {sg}");
+        // The trend follows the drift: the first interval is near the start of the schedule.
+        let first = history.first().unwrap().report.clone().unwrap();
+        assert!(first.mode.frequency_hz.unwrap() < 86_250.0);
+    }
+
+    #[test]
+    fn a_steady_recording_ends_on_the_whole_record() {
+        // thermal.wav: one mode at 295 K, nothing drifts; the end shows the whole-record mean
+        // (the command line's answer) and no note.
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("sample-streams")
+            .join("thermal.wav");
+        let mut cfg = EngineConfig::new(SourceConfig::new(crate::acquire::SourceSpec::Path(path)));
+        cfg.playback_speed = None;
+        cfg.publish_interval = Duration::from_millis(50);
+        cfg.analysis.mode_band_hz = Some((85_600.0, 86_600.0));
+        let (history, frame) = play_to_end(cfg);
+        assert_eq!(frame.status.record_note, None);
+        assert_eq!(history.len(), 4);
+        let s = frame.spectrum.unwrap();
+        // Every segment of the record: ⌊(10⁶ − 65 536)/32 768⌋ + 1.
+        assert_eq!(s.averages, (1_000_000 - 65_536) / 32_768 + 1);
+    }
+
     #[test]
     fn bad_source_reports_an_error_and_no_panic() {
         let cfg = EngineConfig::new(SourceConfig::new(crate::acquire::SourceSpec::Path(
