@@ -320,10 +320,17 @@ fn a_recording_ends_on_the_whole_record_like_the_cli_and_replays() {
         .map(|(a, b)| ((a - b) / b).abs())
         .fold(0.0, f64::max);
     assert!(worst < 1e-12, "relative difference {worst:e}");
-    // The last trend point is the state the panel shows.
+    // The strip's last point is the last interval's own fit, the panel the whole record's:
+    // the mode did not move, so they agree within the linewidth (the end rule) and no note
+    // replaces the whole record.
     let last = h.state().live().trends.points().last().cloned().unwrap();
     let report = frame.report.clone().unwrap();
-    assert_eq!(last.frequency_hz, report.mode.frequency_hz);
+    let (f_last, f_all) = (last.frequency_hz.unwrap(), report.mode.frequency_hz.unwrap());
+    assert!(
+        (f_last - f_all).abs() < report.mode.linewidth_hz.unwrap(),
+        "{f_last} vs {f_all}"
+    );
+    assert_eq!(frame.status.record_note, None);
     // The end is said, with the replay.
     h.run_steps(2);
     assert!(h.get_all_by_label_contains("whole record").count() >= 1);
@@ -357,6 +364,36 @@ fn a_recording_ends_on_the_whole_record_like_the_cli_and_replays() {
     wait_for(&mut h, DEADLINE, "the replay to end", |a| {
         a.live().status().is_some_and(|s| s.ended.is_some())
     });
+}
+
+/// The README's `monitor sample-streams/cooldown.wav`: the mode drifts through the record,
+/// so the window ends on the last interval's fit (not the smeared whole-record mean), says so
+/// in one line, and the strip's last point is the panel's.
+#[test]
+fn a_drifting_recording_ends_on_a_fitted_mode_and_says_why() {
+    let path = repo("sample-streams/cooldown.wav");
+    let mut o = MonitorOptions::for_source(SourceConfig::new(SourceSpec::Path(path)));
+    o.fresh_settings = true;
+    o.speed = Some(16.0);
+    let mut h = harness(o);
+    // The analysis of the smeared whole-record line is slow in a debug build (seconds): a
+    // longer deadline, still only against a hang.
+    wait_for(&mut h, 4 * DEADLINE, "the note at the end of the recording", |a| {
+        a.live()
+            .status()
+            .is_some_and(|s| s.ended.is_some() && s.record_note.is_some())
+    });
+    h.run_steps(3);
+    let frame = h.state().live().frame.clone().unwrap();
+    let report = frame.report.clone().unwrap();
+    let f = report.mode.frequency_hz.expect("the panel shows a fitted mode");
+    assert!((f - 86_400.0).abs() < 10.0, "{f}");
+    let last = h.state().live().trends.points().last().cloned().unwrap();
+    assert_eq!(last.frequency_hz, Some(f), "the strip's last point is the panel's");
+    assert_eq!(last.linewidth_hz, report.mode.linewidth_hz);
+    assert_eq!(h.state().live().trends.points().len(), 6);
+    assert!(h.get_all_by_label_contains("the mode moved").count() >= 1);
+    assert!(h.get_all_by_label_contains("showing the last 1.0 s").count() >= 1);
 }
 
 #[test]
