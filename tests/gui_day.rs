@@ -396,6 +396,47 @@ fn a_drifting_recording_ends_on_a_fitted_mode_and_says_why() {
     assert!(h.get_all_by_label_contains("showing the last 1.0 s").count() >= 1);
 }
 
+/// A snapshot saved without a calibration is never drawn in metres with the live source's
+/// m/V: on the calibrated demo (metre units by default) it is left out and labelled.
+#[test]
+fn an_uncalibrated_snapshot_is_not_drawn_in_metres() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("volts.json");
+    let x: Vec<f64> = (0..8192).map(|i| ((i * 7919) % 101) as f64 / 100.0 - 0.5).collect();
+    let spectrum =
+        stillpoint::dsp::welch::welch(&x, &stillpoint::dsp::WelchConfig::new(250_000.0, 1024))
+            .unwrap();
+    let info = stillpoint::snapshot::SnapshotInfo::default();
+    stillpoint::snapshot::save(&path, &spectrum, &info, false).unwrap();
+    let mut h = harness(demo_options());
+    wait_for(&mut h, DEADLINE, "a calibrated demo spectrum", |a| {
+        has_spectrum(a)
+            && a.live()
+                .frame
+                .as_ref()
+                .and_then(|f| f.report.as_ref())
+                .is_some_and(|r| r.calibration.m_per_v.is_some())
+    });
+    assert_eq!(
+        h.state().state().unit,
+        stillpoint::dsp::units::DensityUnit::M2PerHz
+    );
+    type_into(
+        &mut h,
+        "snapshot path (JSON; the CSV is written beside it):",
+        &path.display().to_string(),
+    );
+    h.get_by_label("Load snapshot").click_accesskit();
+    h.run_steps(3);
+    assert_eq!(h.state().snapshots().len(), 1, "{:?}", h.state().messages());
+    assert_eq!(h.state().snapshots()[0].m_per_v, None);
+    assert!(
+        h.get_all_by_label_contains("volts only: not drawn in metres")
+            .count()
+            >= 1
+    );
+}
+
 #[test]
 fn the_at_most_k_stop_is_shown() {
     let mut o = demo_options();
