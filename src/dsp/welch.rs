@@ -397,7 +397,7 @@ impl Transformer {
         &self.fft_out
     }
 
-    fn powers(&self) -> impl Iterator<Item = f64> + '_ {
+    fn powers(&self) -> impl Iterator<Item = f64> + Clone + '_ {
         self.fft_out.iter().map(|y| y.re * y.re + y.im * y.im)
     }
 }
@@ -531,14 +531,32 @@ impl Accumulator {
         self.skipped += skipped;
     }
 
-    /// Adds one periodogram |Y_k|², k = 0 … ⌊N/2⌋.
-    fn add(&mut self, powers: impl Iterator<Item = f64>) {
-        match self.averaging {
-            Averaging::Linear => {
-                for (g, p) in self.group.iter_mut().zip(powers) {
-                    *g += p;
+    /// Adds one periodogram |Y_k|², k = 0 … ⌊N/2⌋ (and, when `also` is given, to it too:
+    /// an interval sum, in the same pass over the bins for a linear average).
+    fn add(&mut self, powers: impl Iterator<Item = f64> + Clone, also: Option<&mut [f64]>) {
+        let also = match also {
+            Some(also) if !matches!(self.averaging, Averaging::Linear) => {
+                for (a, p) in also.iter_mut().zip(powers.clone()) {
+                    *a += p;
                 }
+                None
             }
+            other => other,
+        };
+        match self.averaging {
+            Averaging::Linear => match also {
+                Some(also) => {
+                    for ((g, a), p) in self.group.iter_mut().zip(also.iter_mut()).zip(powers) {
+                        *g += p;
+                        *a += p;
+                    }
+                }
+                None => {
+                    for (g, p) in self.group.iter_mut().zip(powers) {
+                        *g += p;
+                    }
+                }
+            },
             Averaging::Exponential {
                 time_constant_segments,
             } => {
@@ -718,12 +736,14 @@ impl Intervals {
         }
     }
 
-    fn add(&mut self, start: u64, powers: impl Iterator<Item = f64>) {
+    /// The sum a segment starting at `start` is added to (and counted), if it lies in the
+    /// interval in progress.
+    fn take_segment(&mut self, start: u64) -> Option<&mut [f64]> {
         if start >= self.begin() {
-            for (s, p) in self.sum.iter_mut().zip(powers) {
-                *s += p;
-            }
             self.count += 1;
+            Some(&mut self.sum)
+        } else {
+            None
         }
     }
 }
@@ -764,10 +784,8 @@ impl Engine {
             iv.close_before(start.saturating_add(self.n as u64));
         }
         if self.main.transform(head, tail) {
-            self.acc.add(self.main.powers());
-            if let Some(iv) = self.intervals.as_mut() {
-                iv.add(start, self.main.powers());
-            }
+            let also = self.intervals.as_mut().and_then(|iv| iv.take_segment(start));
+            self.acc.add(self.main.powers(), also);
             true
         } else {
             self.acc.skip();
@@ -1492,6 +1510,28 @@ mod tests {
         }
         let plain = super::welch(&x, &config).unwrap();
         assert_eq!(welch.spectrum().unwrap(), plain);
+        // Whatever the running average, the intervals are linear means of the same bits.
+        for averaging in [
+            Averaging::Median,
+            Averaging::MaxHold,
+            Averaging::Exponential {
+                time_constant_segments: 4.0,
+            },
+        ] {
+            let mut other = Welch::new(WelchConfig {
+                averaging,
+                ..config.clone()
+            })
+            .unwrap();
+            other.set_intervals(len, 0);
+            other.push(&x);
+            let theirs = other.take_intervals();
+            assert_eq!(theirs.len(), got.len());
+            for (a, b) in theirs.iter().zip(&got) {
+                assert_eq!(a.spectrum.psd_v2_per_hz, b.spectrum.psd_v2_per_hz);
+                assert_eq!(a.spectrum.averaging, Averaging::Linear);
+            }
+        }
         // The interval in progress when the record ends: its segments so far.
         let last = welch.finish_interval();
         assert_eq!(last.len(), 1);
