@@ -29,7 +29,10 @@
 //! interval in progress (segments across a boundary count only in the running estimate). Each
 //! closed interval becomes an [`IntervalSpectrum`] ([`Welch::take_intervals`]): the mean of
 //! those periodograms, normalised like the running estimate. The same periodograms feed both,
-//! so an interval costs one addition per bin and segment, not a second transform. When L is a
+//! never a second transform: with a linear running average an interval's sum is the
+//! difference of the running sum after its last segment and before its first (two copies of
+//! the bins per interval); with the other averages each periodogram is also added to the
+//! interval's sum in the same pass. When L is a
 //! whole number of hops the interval holds exactly the segments `stillpoint track` transforms
 //! for it (it restarts the segment grid at each boundary). Intervals run on the caller's
 //! thread only (no worker threads while they are on).
@@ -681,19 +684,46 @@ struct RawInterval {
     count: usize,
 }
 
-/// The interval sums of [`Welch::set_intervals`].
+/// The interval sums of [`Welch::set_intervals`]. With a linear running average an
+/// interval's sum is the difference of the running sum after its last segment and before its
+/// first (two copies of the bins per interval, nothing per segment); with the other averages
+/// each of its periodograms is also added to `sum` (one more addition per bin and segment).
 struct Intervals {
     /// Samples per interval L.
     len: u64,
     /// The interval in progress covers `index·L … (index+1)·L − 1`.
     index: u64,
-    /// Σ|Y_k|² of its segments so far.
+    /// The running average is linear: sums by difference.
+    linear: bool,
+    /// Linear: the part of the interval's sum carried over a restart of the running average;
+    /// otherwise Σ|Y_k|² of its segments so far.
     sum: Vec<f64>,
+    /// Linear: the running sum before the interval's first segment (`based`).
+    base: Vec<f64>,
+    based: bool,
     count: usize,
     done: std::collections::VecDeque<RawInterval>,
 }
 
+/// The running linear sum Σ|Y_k|² of `acc`, bin `k`.
+fn running_sum(acc: &Accumulator) -> impl Iterator<Item = f64> + '_ {
+    acc.acc.iter().zip(&acc.group).map(|(a, g)| a + g)
+}
+
 impl Intervals {
+    fn new(len: u64, index: u64, bins: usize, linear: bool) -> Self {
+        Self {
+            len,
+            index,
+            linear,
+            sum: vec![0.0; bins],
+            base: if linear { vec![0.0; bins] } else { Vec::new() },
+            based: false,
+            count: 0,
+            done: std::collections::VecDeque::new(),
+        }
+    }
+
     fn begin(&self) -> u64 {
         self.index.saturating_mul(self.len)
     }
@@ -703,13 +733,18 @@ impl Intervals {
     }
 
     /// Closes the interval in progress (kept if it holds a segment) and makes `index` current.
-    fn close(&mut self, end: u64, index: u64) {
+    fn close(&mut self, end: u64, index: u64, acc: &Accumulator) {
         if self.count > 0 {
             if self.done.len() == INTERVALS_KEPT {
                 self.done.pop_front();
             }
             let bins = self.sum.len();
-            let sum = std::mem::replace(&mut self.sum, vec![0.0; bins]);
+            let mut sum = std::mem::replace(&mut self.sum, vec![0.0; bins]);
+            if self.linear {
+                for ((s, r), b) in sum.iter_mut().zip(running_sum(acc)).zip(&self.base) {
+                    *s += r - b;
+                }
+            }
             self.done.push_back(RawInterval {
                 start: self.begin(),
                 end,
@@ -718,32 +753,52 @@ impl Intervals {
             });
         }
         self.count = 0;
+        self.based = false;
         self.index = index;
     }
 
     /// A segment ending at `seg_end` (one past its last sample) is next: every interval
     /// that ends before it has all its segments.
-    fn close_before(&mut self, seg_end: u64) {
+    fn close_before(&mut self, seg_end: u64, acc: &Accumulator) {
         if seg_end > self.end() {
-            self.close(self.end(), (seg_end - 1) / self.len.max(1));
+            self.close(self.end(), (seg_end - 1) / self.len.max(1), acc);
         }
     }
 
     /// The stream has reached `pushed`: the interval in progress is complete if it ends there.
-    fn close_through(&mut self, pushed: u64) {
+    fn close_through(&mut self, pushed: u64, acc: &Accumulator) {
         if pushed >= self.end() {
-            self.close(self.end(), pushed / self.len.max(1));
+            self.close(self.end(), pushed / self.len.max(1), acc);
         }
     }
 
-    /// The sum a segment starting at `start` is added to (and counted), if it lies in the
-    /// interval in progress.
-    fn take_segment(&mut self, start: u64) -> Option<&mut [f64]> {
-        if start >= self.begin() {
-            self.count += 1;
-            Some(&mut self.sum)
-        } else {
+    /// A segment starting at `start` is about to be added to `acc`: counted if it lies in the
+    /// interval in progress; returns the sum it must also be added to (not linear).
+    fn take_segment(&mut self, start: u64, acc: &Accumulator) -> Option<&mut [f64]> {
+        if start < self.begin() {
+            return None;
+        }
+        self.count += 1;
+        if self.linear {
+            if !self.based {
+                for (b, r) in self.base.iter_mut().zip(running_sum(acc)) {
+                    *b = r;
+                }
+                self.based = true;
+            }
             None
+        } else {
+            Some(&mut self.sum)
+        }
+    }
+
+    /// The running average is about to restart: carry what the interval holds so far.
+    fn restarting(&mut self, acc: &Accumulator) {
+        if self.linear && self.based {
+            for ((s, r), b) in self.sum.iter_mut().zip(running_sum(acc)).zip(&mut self.base) {
+                *s += r - *b;
+                *b = 0.0;
+            }
         }
     }
 }
@@ -781,10 +836,13 @@ impl Engine {
     /// caller's thread. True if accepted.
     fn process(&mut self, head: &[f64], tail: &[f64], start: u64) -> bool {
         if let Some(iv) = self.intervals.as_mut() {
-            iv.close_before(start.saturating_add(self.n as u64));
+            iv.close_before(start.saturating_add(self.n as u64), &self.acc);
         }
         if self.main.transform(head, tail) {
-            let also = self.intervals.as_mut().and_then(|iv| iv.take_segment(start));
+            let also = match self.intervals.as_mut() {
+                Some(iv) => iv.take_segment(start, &self.acc),
+                None => None,
+            };
             self.acc.add(self.main.powers(), also);
             true
         } else {
@@ -1003,13 +1061,9 @@ impl Welch {
     pub fn set_intervals(&mut self, len: u64, position: u64) {
         self.set_threads(1);
         self.pushed = position.saturating_add(self.pending.len() as u64);
-        self.engine.intervals = (len > 0).then(|| Intervals {
-            len,
-            index: position / len,
-            sum: vec![0.0; self.bins()],
-            count: 0,
-            done: std::collections::VecDeque::new(),
-        });
+        let linear = matches!(self.config.averaging, Averaging::Linear);
+        self.engine.intervals =
+            (len > 0).then(|| Intervals::new(len, position / len, self.bins(), linear));
     }
 
     /// Stream index one past the last sample pushed.
@@ -1032,7 +1086,7 @@ impl Welch {
         let pushed = self.pushed;
         if let Some(iv) = self.engine.intervals.as_mut() {
             let index = iv.index.saturating_add(1).max(pushed / iv.len.max(1));
-            iv.close(pushed, index);
+            iv.close(pushed, index, &self.engine.acc);
         }
         self.take_intervals()
     }
@@ -1089,7 +1143,7 @@ impl Welch {
             self.push_sequential(samples)
         };
         if let Some(iv) = self.engine.intervals.as_mut() {
-            iv.close_through(self.pushed);
+            iv.close_through(self.pushed, &self.engine.acc);
         }
         added
     }
@@ -1398,6 +1452,9 @@ impl Welch {
             let skip = (complete * hop).min(self.pending.len());
             self.pending.drain(..skip);
         }
+        if let Some(iv) = self.engine.intervals.as_mut() {
+            iv.restarting(&self.engine.acc);
+        }
         self.engine.acc.restart();
     }
 }
@@ -1528,8 +1585,24 @@ mod tests {
             let theirs = other.take_intervals();
             assert_eq!(theirs.len(), got.len());
             for (a, b) in theirs.iter().zip(&got) {
-                assert_eq!(a.spectrum.psd_v2_per_hz, b.spectrum.psd_v2_per_hz);
+                // Summed here, by difference of running sums for the linear average.
+                for (p, q) in a.spectrum.psd_v2_per_hz.iter().zip(&b.spectrum.psd_v2_per_hz) {
+                    assert!((p - q).abs() <= 1e-12 * q.abs(), "{p} {q}");
+                }
                 assert_eq!(a.spectrum.averaging, Averaging::Linear);
+            }
+        }
+        // Restarting the running average (Restart in the window) keeps the interval whole.
+        let mut restarted = Welch::new(config.clone()).unwrap();
+        restarted.set_intervals(len, 0);
+        restarted.push(&x[..480]);
+        restarted.restart();
+        restarted.push(&x[480..]);
+        let ivs = restarted.take_intervals();
+        for (a, b) in ivs.iter().zip(&got) {
+            assert_eq!(a.spectrum.averages, b.spectrum.averages);
+            for (p, q) in a.spectrum.psd_v2_per_hz.iter().zip(&b.spectrum.psd_v2_per_hz) {
+                assert!((p - q).abs() <= 1e-12 * q.abs(), "{p} {q}");
             }
         }
         // The interval in progress when the record ends: its segments so far.
@@ -1556,7 +1629,9 @@ mod tests {
         assert_eq!(ivs[0].spectrum.averages, (256 - 64) / 32 + 1);
         assert_eq!((ivs[1].start, ivs[1].end), (1280, 1600));
         let own = super::welch(&x[1280..1600], &WelchConfig::new(1000.0, 64)).unwrap();
-        assert_eq!(ivs[1].spectrum.psd_v2_per_hz, own.psd_v2_per_hz);
+        for (p, q) in ivs[1].spectrum.psd_v2_per_hz.iter().zip(&own.psd_v2_per_hz) {
+            assert!((p - q).abs() <= 1e-12 * q.abs(), "{p} {q}");
+        }
     }
 
     #[test]
