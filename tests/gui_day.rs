@@ -325,7 +325,10 @@ fn a_recording_ends_on_the_whole_record_like_the_cli_and_replays() {
     // replaces the whole record.
     let last = h.state().live().trends.points().last().cloned().unwrap();
     let report = frame.report.clone().unwrap();
-    let (f_last, f_all) = (last.frequency_hz.unwrap(), report.mode.frequency_hz.unwrap());
+    let (f_last, f_all) = (
+        last.frequency_hz.unwrap(),
+        report.mode.frequency_hz.unwrap(),
+    );
     assert!(
         (f_last - f_all).abs() < report.mode.linewidth_hz.unwrap(),
         "{f_last} vs {f_all}"
@@ -378,22 +381,38 @@ fn a_drifting_recording_ends_on_a_fitted_mode_and_says_why() {
     let mut h = harness(o);
     // The analysis of the smeared whole-record line is slow in a debug build (seconds): a
     // longer deadline, still only against a hang.
-    wait_for(&mut h, 4 * DEADLINE, "the note at the end of the recording", |a| {
-        a.live()
-            .status()
-            .is_some_and(|s| s.ended.is_some() && s.record_note.is_some())
-    });
+    wait_for(
+        &mut h,
+        4 * DEADLINE,
+        "the note at the end of the recording",
+        |a| {
+            a.live()
+                .status()
+                .is_some_and(|s| s.ended.is_some() && s.record_note.is_some())
+        },
+    );
     h.run_steps(3);
     let frame = h.state().live().frame.clone().unwrap();
     let report = frame.report.clone().unwrap();
-    let f = report.mode.frequency_hz.expect("the panel shows a fitted mode");
+    let f = report
+        .mode
+        .frequency_hz
+        .expect("the panel shows a fitted mode");
     assert!((f - 86_400.0).abs() < 10.0, "{f}");
     let last = h.state().live().trends.points().last().cloned().unwrap();
-    assert_eq!(last.frequency_hz, Some(f), "the strip's last point is the panel's");
+    assert_eq!(
+        last.frequency_hz,
+        Some(f),
+        "the strip's last point is the panel's"
+    );
     assert_eq!(last.linewidth_hz, report.mode.linewidth_hz);
     assert_eq!(h.state().live().trends.points().len(), 6);
     assert!(h.get_all_by_label_contains("the mode moved").count() >= 1);
-    assert!(h.get_all_by_label_contains("showing the last 1.0 s").count() >= 1);
+    assert!(
+        h.get_all_by_label_contains("showing the last 1.0 s")
+            .count()
+            >= 1
+    );
 }
 
 /// A snapshot saved without a calibration is never drawn in metres with the live source's
@@ -402,7 +421,9 @@ fn a_drifting_recording_ends_on_a_fitted_mode_and_says_why() {
 fn an_uncalibrated_snapshot_is_not_drawn_in_metres() {
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("volts.json");
-    let x: Vec<f64> = (0..8192).map(|i| ((i * 7919) % 101) as f64 / 100.0 - 0.5).collect();
+    let x: Vec<f64> = (0..8192)
+        .map(|i| ((i * 7919) % 101) as f64 / 100.0 - 0.5)
+        .collect();
     let spectrum =
         stillpoint::dsp::welch::welch(&x, &stillpoint::dsp::WelchConfig::new(250_000.0, 1024))
             .unwrap();

@@ -717,7 +717,10 @@ fn the_windows_history_of_a_recording_is_tracks() {
         if let Some(f) = engine.recv_frame_timeout(Duration::from_millis(200)) {
             history.extend(f.history.iter().cloned());
             ended = f.status.ended.is_some() && f.status.samples == 262_144;
-            assert_eq!(f.status.dropped_blocks, 0, "a recording is never dropped from");
+            assert_eq!(
+                f.status.dropped_blocks, 0,
+                "a recording is never dropped from"
+            );
         }
     }
     // The frame after the end carries the last interval.
@@ -725,7 +728,11 @@ fn the_windows_history_of_a_recording_is_tracks() {
         history.extend(f.history.iter().cloned());
     }
     assert!(ended, "the recording did not end");
-    assert_eq!(history.len(), 64, "one history interval per second of record");
+    assert_eq!(
+        history.len(),
+        64,
+        "one history interval per second of record"
+    );
     let t_start = csv.values("t_start_s");
     let t_end = csv.values("t_end_s");
     let averages = csv.values("averages");
@@ -740,12 +747,19 @@ fn the_windows_history_of_a_recording_is_tracks() {
     let mut pulls = Vec::new();
     for (i, e) in history.iter().enumerate() {
         // Stream time: the record's own seconds, whatever the playback speed.
-        assert_eq!((e.t_start_s, e.t_end_s), (t_start[i], t_end[i]), "interval {i}");
+        assert_eq!(
+            (e.t_start_s, e.t_end_s),
+            (t_start[i], t_end[i]),
+            "interval {i}"
+        );
         let report: &Arc<_> = e.report.as_ref().unwrap();
         let r: &stillpoint::report::Report = report;
         assert_eq!(r.welch.averages as f64, averages[i], "interval {i}");
         let (blo, bhi) = e.band_hz.unwrap();
-        assert!((blo - lo[i]).abs() < 1e-6 && (bhi - hi[i]).abs() < 1e-6, "band {i}");
+        assert!(
+            (blo - lo[i]).abs() < 1e-6 && (bhi - hi[i]).abs() < 1e-6,
+            "band {i}"
+        );
         let point = e.trend.as_ref().unwrap();
         assert_eq!(point.time_s, e.t_end_s);
         match (r.mode.frequency_hz, f[i]) {

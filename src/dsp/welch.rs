@@ -795,7 +795,12 @@ impl Intervals {
     /// The running average is about to restart: carry what the interval holds so far.
     fn restarting(&mut self, acc: &Accumulator) {
         if self.linear && self.based {
-            for ((s, r), b) in self.sum.iter_mut().zip(running_sum(acc)).zip(&mut self.base) {
+            for ((s, r), b) in self
+                .sum
+                .iter_mut()
+                .zip(running_sum(acc))
+                .zip(&mut self.base)
+            {
                 *s += r - *b;
                 *b = 0.0;
             }
@@ -1096,7 +1101,11 @@ impl Welch {
         let mut spectrum = self.empty_spectrum();
         let k = count as f64;
         spectrum.psd_v2_per_hz = raw.sum.iter().map(|s| s / k).collect();
-        self.normalise(&mut spectrum, count, k_eff_from_rho2(&self.engine.acc.rho2, count));
+        self.normalise(
+            &mut spectrum,
+            count,
+            k_eff_from_rho2(&self.engine.acc.rho2, count),
+        );
         spectrum.averaging = Averaging::Linear;
         IntervalSpectrum {
             start: raw.start,
@@ -1586,7 +1595,12 @@ mod tests {
             assert_eq!(theirs.len(), got.len());
             for (a, b) in theirs.iter().zip(&got) {
                 // Summed here, by difference of running sums for the linear average.
-                for (p, q) in a.spectrum.psd_v2_per_hz.iter().zip(&b.spectrum.psd_v2_per_hz) {
+                for (p, q) in a
+                    .spectrum
+                    .psd_v2_per_hz
+                    .iter()
+                    .zip(&b.spectrum.psd_v2_per_hz)
+                {
                     assert!((p - q).abs() <= 1e-12 * q.abs(), "{p} {q}");
                 }
                 assert_eq!(a.spectrum.averaging, Averaging::Linear);
@@ -1601,7 +1615,12 @@ mod tests {
         let ivs = restarted.take_intervals();
         for (a, b) in ivs.iter().zip(&got) {
             assert_eq!(a.spectrum.averages, b.spectrum.averages);
-            for (p, q) in a.spectrum.psd_v2_per_hz.iter().zip(&b.spectrum.psd_v2_per_hz) {
+            for (p, q) in a
+                .spectrum
+                .psd_v2_per_hz
+                .iter()
+                .zip(&b.spectrum.psd_v2_per_hz)
+            {
                 assert!((p - q).abs() <= 1e-12 * q.abs(), "{p} {q}");
             }
         }

@@ -970,9 +970,10 @@ impl Worker {
         let Some(sp) = &self.spectrum else {
             return;
         };
-        let grid_changed = self.frequencies_hz.as_ref().is_none_or(|f| {
-            f.len() != sp.len() || f.get(1).copied() != Some(sp.resolution_hz)
-        });
+        let grid_changed = self
+            .frequencies_hz
+            .as_ref()
+            .is_none_or(|f| f.len() != sp.len() || f.get(1).copied() != Some(sp.resolution_hz));
         if grid_changed {
             self.frequencies_hz = Some(Arc::new(sp.frequencies_hz()));
         }
@@ -1021,11 +1022,7 @@ impl Worker {
 
     /// Analyses one interval's spectrum with the window's settings and the interval band,
     /// then moves that band onto the fitted mode by `track`'s rule.
-    fn history_entry(
-        &mut self,
-        iv: crate::dsp::IntervalSpectrum,
-        complete: bool,
-    ) -> HistoryEntry {
+    fn history_entry(&mut self, iv: crate::dsp::IntervalSpectrum, complete: bool) -> HistoryEntry {
         let rate = self.sample_rate_hz.max(f64::MIN_POSITIVE);
         let duration_s = (iv.end - iv.start) as f64 / rate;
         let (t_start_s, t_end_s) = if self.status.recording {
@@ -1094,7 +1091,11 @@ impl Worker {
             return;
         };
         let fitted = last.report.mode.frequency_hz.is_some_and(f64::is_finite);
-        let Some(gamma_last) = last.report.mode.linewidth_hz.filter(|g| g.is_finite() && fitted)
+        let Some(gamma_last) = last
+            .report
+            .mode
+            .linewidth_hz
+            .filter(|g| g.is_finite() && fitted)
         else {
             return;
         };
@@ -1111,7 +1112,10 @@ impl Worker {
             None => return,
         };
         let what = if last.complete {
-            format!("showing the last {} s", super::format::seconds_words(last.duration_s))
+            format!(
+                "showing the last {} s",
+                super::format::seconds_words(last.duration_s)
+            )
         } else {
             format!(
                 "showing the last {} s (a partial interval)",
@@ -1582,16 +1586,37 @@ mod tests {
         // 6 s of record in intervals of 1 s (250 000 samples ≥ N + 3 hops at N = 65 536).
         assert_eq!(frame.status.interval_samples, 250_000);
         let times: Vec<(f64, f64)> = history.iter().map(|e| (e.t_start_s, e.t_end_s)).collect();
-        assert_eq!(times, (0..6).map(|i| (i as f64, i as f64 + 1.0)).collect::<Vec<_>>());
-        let note = frame.status.record_note.clone().expect("no note on a drifting record");
-        assert!(note.contains("the mode moved") && note.contains("showing the last 1.0 s"), "{note}");
+        assert_eq!(
+            times,
+            (0..6)
+                .map(|i| (i as f64, i as f64 + 1.0))
+                .collect::<Vec<_>>()
+        );
+        let note = frame
+            .status
+            .record_note
+            .clone()
+            .expect("no note on a drifting record");
+        assert!(
+            note.contains("the mode moved") && note.contains("showing the last 1.0 s"),
+            "{note}"
+        );
         let report = frame.report.clone().expect("no report");
         let last = history.last().unwrap().report.clone().unwrap();
         // The panel is the last interval, and so the strip's last point.
         assert_eq!(report.mode.frequency_hz, last.mode.frequency_hz);
-        assert_eq!(frame.spectrum.as_ref().unwrap().averages, last.welch.averages);
-        let (f, sf) = (report.mode.frequency_hz.unwrap(), report.mode.frequency_hz_uncertainty.unwrap());
-        let (g, sg) = (report.mode.linewidth_hz.unwrap(), report.mode.linewidth_hz_uncertainty.unwrap());
+        assert_eq!(
+            frame.spectrum.as_ref().unwrap().averages,
+            last.welch.averages
+        );
+        let (f, sf) = (
+            report.mode.frequency_hz.unwrap(),
+            report.mode.frequency_hz_uncertainty.unwrap(),
+        );
+        let (g, sg) = (
+            report.mode.linewidth_hz.unwrap(),
+            report.mode.linewidth_hz_uncertainty.unwrap(),
+        );
         eprintln!("cooldown end: f_m {f} ± {sf} Hz, γ {g} ± {sg} Hz; {note}");
         assert!((f - 86_400.0).abs() < 4.0 * sf + 0.5, "{f} ± {sf}");
         assert!((g - 7.2).abs() < 4.0 * sg + 1.0, "{g} ± {sg}");

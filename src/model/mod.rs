@@ -112,7 +112,7 @@ impl LiveState {
             if let Some(row) = entry.waterfall_row.take() {
                 self.waterfall.push(row);
             }
-            if let Some(p) = entry.trend.clone() {
+            if let Some(p) = entry.trend {
                 self.trends.push(p);
             }
         }
