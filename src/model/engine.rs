@@ -1044,7 +1044,10 @@ impl Worker {
         let band = self.interval_band_hz;
         let mut options = self.config.analysis.clone();
         options.mode_band_hz = band;
-        let report = analysis::analyze(&spectrum, &options).ok().map(Arc::new);
+        // The stray-peak search is left out: nothing of a trend point depends on it.
+        let report = analysis::analyze_without_peaks(&spectrum, &options)
+            .ok()
+            .map(Arc::new);
         if let Some(r) = &report {
             if self.config.follow_mode {
                 let nyquist = 0.5 * spectrum.sample_rate_hz;
