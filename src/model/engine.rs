@@ -1011,18 +1011,30 @@ impl Worker {
         {
             intervals.pop();
         }
+        // A live source never waits for the engine: when several intervals closed since the
+        // last frame (the engine is behind, an analysis of a noisy interval can take seconds),
+        // only the newest is analysed; the others give waterfall rows. A recording's reader
+        // waits, so each of its intervals is analysed.
+        let count = intervals.len();
+        let recording = self.status.recording;
         intervals
             .into_iter()
-            .map(|iv| {
+            .enumerate()
+            .map(|(i, iv)| {
                 let complete = iv.end - iv.start >= len;
-                self.history_entry(iv, complete)
+                self.history_entry(iv, complete, recording || i + 1 == count)
             })
             .collect()
     }
 
     /// Analyses one interval's spectrum with the window's settings and the interval band,
     /// then moves that band onto the fitted mode by `track`'s rule.
-    fn history_entry(&mut self, iv: crate::dsp::IntervalSpectrum, complete: bool) -> HistoryEntry {
+    fn history_entry(
+        &mut self,
+        iv: crate::dsp::IntervalSpectrum,
+        complete: bool,
+        analyse: bool,
+    ) -> HistoryEntry {
         let rate = self.sample_rate_hz.max(f64::MIN_POSITIVE);
         let duration_s = (iv.end - iv.start) as f64 / rate;
         let (t_start_s, t_end_s) = if self.status.recording {
@@ -1045,9 +1057,13 @@ impl Worker {
         let mut options = self.config.analysis.clone();
         options.mode_band_hz = band;
         // The stray-peak search is left out: nothing of a trend point depends on it.
-        let report = analysis::analyze_without_peaks(&spectrum, &options)
-            .ok()
-            .map(Arc::new);
+        let report = if analyse {
+            analysis::analyze_without_peaks(&spectrum, &options)
+                .ok()
+                .map(Arc::new)
+        } else {
+            None
+        };
         if let Some(r) = &report {
             if self.config.follow_mode {
                 let nyquist = 0.5 * spectrum.sample_rate_hz;
@@ -1132,6 +1148,24 @@ impl Worker {
         self.show_spectrum(Some(last.spectrum));
     }
 
+    /// The running estimate, made and analysed.
+    fn refresh_running(&mut self, segments: usize) {
+        if self.welch.is_none() && self.cross.is_none() {
+            return;
+        }
+        let spectrum = if let Some(w) = &self.welch {
+            w.spectrum().map(Arc::new)
+        } else if let Some(c) = &self.cross {
+            self.cross_spectrum = c.spectrum().map(Arc::new);
+            self.cross_spectrum.as_ref().map(|c| Arc::new(c.a.clone()))
+        } else {
+            None
+        };
+        self.show_spectrum(spectrum);
+        self.segments_at_analysis = segments;
+        self.analyse();
+    }
+
     fn publish(&mut self) {
         self.last_publish = Instant::now();
         if let Some(c) = self.cross.as_mut() {
@@ -1143,22 +1177,25 @@ impl Worker {
             (None, Some(c)) => c.segments(),
             (None, None) => 0,
         };
-        let fresh = segments != self.segments_at_analysis;
-        if fresh && (self.welch.is_some() || self.cross.is_some()) {
-            let spectrum = if let Some(w) = &self.welch {
-                w.spectrum().map(Arc::new)
-            } else if let Some(c) = &self.cross {
-                self.cross_spectrum = c.spectrum().map(Arc::new);
-                self.cross_spectrum.as_ref().map(|c| Arc::new(c.a.clone()))
-            } else {
-                None
-            };
-            self.show_spectrum(spectrum);
-            self.segments_at_analysis = segments;
-            self.analyse();
-        }
         let history_now = std::mem::take(&mut self.history_now);
+        let mut fresh = segments != self.segments_at_analysis;
+        let recording = self.status.recording;
+        if fresh && recording {
+            // The running average first: its band (found or followed) starts the intervals'.
+            self.refresh_running(segments);
+        }
         let mut history = self.history_intervals(history_now);
+        if fresh && !recording {
+            if history.iter().any(|e| e.report.is_some()) {
+                // A live source: this frame's analysis was the newest interval's; the running
+                // average is analysed at the next frame (one analysis per frame, as before
+                // the history had its own, so a live source is not dropped from for it).
+                fresh = false;
+                self.dirty = true;
+            } else {
+                self.refresh_running(segments);
+            }
+        }
         if history_now && self.status.recording && self.status.ended.is_some() {
             self.choose_final_state();
         }
