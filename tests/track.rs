@@ -668,3 +668,124 @@ fn bad_input_leaves_outputs_alone() {
     let csv = TrackCsv::read(&nan_out);
     assert_eq!(csv.status(), vec!["no_usable_segment"; 2]);
 }
+
+/// The window's history of a recording is `track`'s: the engine (the window's, no display)
+/// plays the reference record and each history interval is the spectrum of the same
+/// 1 s interval (the same 7 segments: 4096 samples are 8 hops of 512), analysed with the
+/// same band that follows the mode by the same rule. Check values: `track`'s rows (inside
+/// the project) and, outside it, the schedule frequency of `truth.csv` (numpy generator):
+/// the window's frequency pulls meet the same acceptance as `track`'s above.
+#[test]
+fn the_windows_history_of_a_recording_is_tracks() {
+    use std::sync::Arc;
+    use stillpoint::acquire::{SampleFormat, SourceConfig, SourceSpec};
+    use stillpoint::model::{Engine, EngineConfig, HistoryEntry, WelchSettings};
+
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("trend.csv");
+    let mut args = base(&out);
+    args.extend(
+        ["--every", "1", "--mode-band", "880:1120"]
+            .iter()
+            .map(|s| (*s).to_string()),
+    );
+    let output = run_vec(&args);
+    assert_success(&output, "track on the reference record");
+    let csv = TrackCsv::read(&out);
+    assert_eq!(csv.rows.len(), 64);
+
+    let mut source = SourceConfig::new(SourceSpec::Path(data("record.f32")));
+    source.sample_format = Some(SampleFormat::F32);
+    source.rate_hz = Some(4096.0);
+    let mut cfg = EngineConfig::new(source);
+    cfg.welch = WelchSettings {
+        segment: 1024,
+        segment_auto: false,
+        ..WelchSettings::default()
+    };
+    cfg.analysis.mode_band_hz = Some((880.0, 1120.0));
+    cfg.follow_mode = true;
+    cfg.history_interval = Duration::from_secs(1);
+    cfg.playback_speed = None;
+    cfg.publish_interval = Duration::from_millis(50);
+    let engine = Engine::start(cfg, Box::new(|| {})).unwrap();
+    let mut history: Vec<HistoryEntry> = Vec::new();
+    let mut ended = false;
+    let t0 = Instant::now();
+    // A deadline against a hang, not a speed requirement.
+    while t0.elapsed() < Duration::from_secs(300) && !ended {
+        if let Some(f) = engine.recv_frame_timeout(Duration::from_millis(200)) {
+            history.extend(f.history.iter().cloned());
+            ended = f.status.ended.is_some() && f.status.samples == 262_144;
+            assert_eq!(
+                f.status.dropped_blocks, 0,
+                "a recording is never dropped from"
+            );
+        }
+    }
+    // The frame after the end carries the last interval.
+    while let Some(f) = engine.recv_frame_timeout(Duration::from_millis(500)) {
+        history.extend(f.history.iter().cloned());
+    }
+    assert!(ended, "the recording did not end");
+    assert_eq!(
+        history.len(),
+        64,
+        "one history interval per second of record"
+    );
+    let t_start = csv.values("t_start_s");
+    let t_end = csv.values("t_end_s");
+    let averages = csv.values("averages");
+    let f = csv.col("frequency_hz");
+    let sf = csv.col("frequency_hz_uncertainty");
+    let g = csv.col("linewidth_hz");
+    let sg = csv.col("linewidth_hz_uncertainty");
+    let lo = csv.values("band_low_hz");
+    let hi = csv.values("band_high_hz");
+    let truth = truth();
+    let (mut both, mut worst_f, mut worst_g) = (0, 0.0f64, 0.0f64);
+    let mut pulls = Vec::new();
+    for (i, e) in history.iter().enumerate() {
+        // Stream time: the record's own seconds, whatever the playback speed.
+        assert_eq!(
+            (e.t_start_s, e.t_end_s),
+            (t_start[i], t_end[i]),
+            "interval {i}"
+        );
+        let report: &Arc<_> = e.report.as_ref().unwrap();
+        let r: &stillpoint::report::Report = report;
+        assert_eq!(r.welch.averages as f64, averages[i], "interval {i}");
+        let (blo, bhi) = e.band_hz.unwrap();
+        assert!(
+            (blo - lo[i]).abs() < 1e-6 && (bhi - hi[i]).abs() < 1e-6,
+            "band {i}"
+        );
+        let point = e.trend.as_ref().unwrap();
+        assert_eq!(point.time_s, e.t_end_s);
+        match (r.mode.frequency_hz, f[i]) {
+            (Some(fw), Some(ft)) => {
+                both += 1;
+                let (s_f, s_g) = (sf[i].unwrap(), sg[i].unwrap());
+                let (gw, gt) = (r.mode.linewidth_hz.unwrap(), g[i].unwrap());
+                worst_f = worst_f.max((fw - ft).abs() / s_f);
+                worst_g = worst_g.max((gw - gt).abs() / s_g);
+                assert_eq!(point.frequency_hz, Some(fw));
+                pulls.push((fw - truth[i][2]) / r.mode.frequency_hz_uncertainty.unwrap());
+            }
+            (None, None) => {}
+            (w, t) => panic!("interval {i}: window {w:?}, track {t:?}"),
+        }
+    }
+    eprintln!(
+        "window vs track over {both} fitted intervals: worst |Δf|/σ {worst_f:.2e}, worst \
+         |Δγ|/σ {worst_g:.2e}; window frequency pulls vs truth rms {:.3} mean {:.3}",
+        rms(&pulls),
+        mean(&pulls)
+    );
+    assert!(both >= 58, "{both} intervals fitted by both");
+    // The same periodograms summed in another order: equal far within their σ.
+    assert!(worst_f < 1e-3 && worst_g < 1e-3, "{worst_f} {worst_g}");
+    let r = rms(&pulls);
+    assert!((0.7..1.35).contains(&r), "frequency pull rms {r}");
+    assert!(mean(&pulls).abs() < 0.45);
+}

@@ -164,6 +164,28 @@ fn bad(setting: Setting, message: String) -> AnalysisError {
 /// `--lo-side`, a tone without its amplitude options).
 /// A mode that is simply not found is *not* an error: its keys are null with a note.
 pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report, AnalysisError> {
+    analyze_with(spectrum, options, true)
+}
+
+/// [`analyze`] without the stray-peak search (the last step: nothing else depends on it;
+/// `peaks` is left empty). The window's history intervals use it: a trend point needs the
+/// mode, calibration, quantum and sideband results only, and the search is the costliest
+/// step on a long spectrum.
+///
+/// # Errors
+/// As [`analyze`].
+pub fn analyze_without_peaks(
+    spectrum: &Spectrum,
+    options: &AnalysisOptions,
+) -> Result<Report, AnalysisError> {
+    analyze_with(spectrum, options, false)
+}
+
+fn analyze_with(
+    spectrum: &Spectrum,
+    options: &AnalysisOptions,
+    with_peaks: bool,
+) -> Result<Report, AnalysisError> {
     validate(spectrum, options)?;
 
     let mut report = Report {
@@ -379,7 +401,12 @@ pub fn analyze(spectrum: &Spectrum, options: &AnalysisOptions) -> Result<Report,
         reference_hz: options.reference_peaks_hz.clone(),
         ..PeakOptions::default()
     };
-    report.peaks = peaks::find_peaks(spectrum, &peak_options)
+    let found = if with_peaks {
+        peaks::find_peaks(spectrum, &peak_options)
+    } else {
+        Vec::new()
+    };
+    report.peaks = found
         .into_iter()
         .map(|p| PeakReport {
             frequency_hz: p.frequency_hz,

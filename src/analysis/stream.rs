@@ -181,6 +181,33 @@ impl Averager {
         }
     }
 
+    /// One channel: keeps the spectrum of each interval of `len` samples beside the running
+    /// estimate, intervals counted from stream sample 0 and the stream now at `position`
+    /// ([`Welch::set_intervals`]); two channels keep none.
+    pub fn set_intervals(&mut self, len: u64, position: u64) {
+        if let Self::One(w) = self {
+            w.set_intervals(len, position);
+        }
+    }
+
+    /// The intervals closed since the last call ([`Welch::take_intervals`]; none for two
+    /// channels).
+    pub fn take_intervals(&mut self) -> Vec<crate::dsp::welch::IntervalSpectrum> {
+        match self {
+            Self::One(w) => w.take_intervals(),
+            Self::Two { .. } => Vec::new(),
+        }
+    }
+
+    /// Closes the interval in progress too and returns every interval not yet taken
+    /// ([`Welch::finish_interval`]; none for two channels).
+    pub fn finish_interval(&mut self) -> Vec<crate::dsp::welch::IntervalSpectrum> {
+        match self {
+            Self::One(w) => w.finish_interval(),
+            Self::Two { .. } => Vec::new(),
+        }
+    }
+
     /// Samples per channel after which the run has all it will average, if that is known
     /// before reading: median, exponential and max-hold with `max_averages` K take exactly
     /// the first K segment positions ((K − 1)·hop + N samples); a linear mean stops by itself

@@ -43,6 +43,12 @@ struct BenchOutput {
     /// cross / single-channel throughput on the same samples per channel (ideal 0.5:
     /// twice the transforms).
     cross_ratio: Option<f64>,
+    /// Median throughput of the window's averager (one thread, linear), samples per second.
+    window_samples_per_s: f64,
+    /// The same with the per-interval spectra of the window's history.
+    window_history_samples_per_s: f64,
+    /// Their ratio (1 = the history costs nothing).
+    window_history_ratio: f64,
     /// Median FFT-only floor on one thread, samples per second.
     fft_floor_samples_per_s: f64,
     /// throughput / floor (1 = as fast as the bare FFT on one thread).
@@ -85,6 +91,9 @@ pub fn run(args: &BenchArgs) -> Result<ExitCode> {
     let mut welch_rates = Vec::with_capacity(RUNS);
     let mut floor_rates = Vec::with_capacity(RUNS);
     let mut cross_rates = Vec::with_capacity(RUNS);
+    let mut window_rates = Vec::with_capacity(RUNS);
+    let mut history_rates = Vec::with_capacity(RUNS);
+    let mut history_ratios = Vec::with_capacity(RUNS);
     let channels = args.channels as usize;
     for _ in 0..RUNS {
         let report = bench::compare(&welch, slice_s, threads)?;
@@ -94,6 +103,10 @@ pub fn run(args: &BenchArgs) -> Result<ExitCode> {
         if channels == 2 {
             cross_rates.push(bench::cross_throughput(&welch, slice_s, threads)?.samples_per_s);
         }
+        let (plain, history) = bench::window_history_throughput(&welch, slice_s / 2.0)?;
+        window_rates.push(plain.samples_per_s);
+        history_rates.push(history.samples_per_s);
+        history_ratios.push(history.samples_per_s / plain.samples_per_s.max(1e-300));
     }
     let cross_throughput =
         (channels == 2).then(|| crate::dsp::median::median(&mut cross_rates).unwrap_or(0.0));
@@ -138,6 +151,9 @@ pub fn run(args: &BenchArgs) -> Result<ExitCode> {
         cross_ratio: cross_throughput.map(|c| c / throughput.max(1e-300)),
         headroom,
         keeps_up: headroom > 1.0,
+        window_samples_per_s: crate::dsp::median::median(&mut window_rates).unwrap_or(0.0),
+        window_history_samples_per_s: crate::dsp::median::median(&mut history_rates).unwrap_or(0.0),
+        window_history_ratio: crate::dsp::median::median(&mut history_ratios).unwrap_or(0.0),
         fft_floor_samples_per_s: floor,
         ratio_to_floor: throughput / floor,
         plot_prep_ms,
@@ -200,6 +216,13 @@ fn write_text(out: &mut dyn Write, r: &BenchOutput) -> io::Result<()> {
             ratio
         )?;
     }
+    writeln!(
+        out,
+        "  window's averager (1 thread) {:.1} MS/s; with the per-interval history {:.1} MS/s → {:.3}×",
+        r.window_samples_per_s / 1e6,
+        r.window_history_samples_per_s / 1e6,
+        r.window_history_ratio
+    )?;
     writeln!(
         out,
         "Window plot preparation (10⁶-bin spectrum → screen columns): {:.2} ms per frame ({} a 60 fps frame of {:.1} ms)",

@@ -666,41 +666,12 @@ impl Analyst {
         Ok(())
     }
 
-    /// Moves the band onto the fitted mode (same width, inside 0…Nyquist) when the fit is
-    /// trustworthy: a frequency whose 1σ is below a quarter of the band.
+    /// Moves the band onto the fitted mode ([`crate::model::trend::follow_band`], the rule
+    /// the window's history uses too).
     fn follow(&mut self, report: &Report) {
         if self.fixed_band {
             return;
         }
-        let Some((lo, hi)) = self.band else {
-            return;
-        };
-        let width = hi - lo;
-        let fitted = match (
-            report.mode.frequency_hz,
-            report.mode.frequency_hz_uncertainty,
-        ) {
-            (Some(f), Some(s)) => Some((f, s)),
-            _ => report.sidebands.as_ref().and_then(|sb| {
-                Some((
-                    sb.mechanical_frequency_hz?,
-                    sb.mechanical_frequency_hz_uncertainty?,
-                ))
-            }),
-        };
-        let Some((f, sigma)) = fitted else {
-            return;
-        };
-        if !(f.is_finite() && sigma.is_finite() && sigma < width / 4.0) {
-            return;
-        }
-        let mut new_lo = f - width / 2.0;
-        if new_lo < 0.0 {
-            new_lo = 0.0;
-        }
-        if new_lo + width > self.nyquist {
-            new_lo = (self.nyquist - width).max(0.0);
-        }
-        self.band = Some((new_lo, new_lo + width));
+        self.band = crate::model::trend::follow_band(self.band, report, self.nyquist);
     }
 }

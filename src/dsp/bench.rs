@@ -217,6 +217,49 @@ pub fn cross_throughput(
     ))
 }
 
+/// The window's averager (the caller's thread only) without and with the per-interval
+/// spectra of its history ([`Welch::set_intervals`], intervals of 1 s of samples but at
+/// least N + 3 hops, as the window cuts them), each for about `duration_s`: what the history
+/// costs. Linear averaging.
+///
+/// # Errors
+/// Invalid settings.
+pub fn window_history_throughput(
+    config: &WelchConfig,
+    duration_s: f64,
+) -> Result<(Throughput, Throughput)> {
+    let mut config = config.clone();
+    config.max_averages = None;
+    config.averaging = super::Averaging::Linear;
+    let record = synthetic_samples(record_len(&config), 1);
+    let hop = config.hop() as u64;
+    let interval = (config.sample_rate_hz.round() as u64).max(config.segment as u64 + 3 * hop);
+    let run = |intervals: bool| -> Result<Throughput> {
+        let mut welch = Welch::new(config.clone())?;
+        if intervals {
+            welch.set_intervals(interval, 0);
+        }
+        Ok(timed_passes(
+            &config,
+            record.len(),
+            duration_s,
+            1,
+            &mut welch,
+            |welch| {
+                welch.push(&record);
+                welch.discard_pending();
+                std::hint::black_box(welch.take_intervals());
+            },
+            |welch| {
+                std::hint::black_box(welch.spectrum());
+            },
+        ))
+    };
+    let plain = run(false)?;
+    let with_history = run(true)?;
+    Ok((plain, with_history))
+}
+
 /// Runs both measurements, each for about `duration_s`.
 ///
 /// # Errors

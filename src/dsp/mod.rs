@@ -29,5 +29,7 @@ pub mod window;
 
 pub use defaults::{DEFAULT_SEGMENT, default_segment};
 pub use error::{DspError, Result};
-pub use welch::{Averaging, Detrend, MEDIAN_MEMORY_LIMIT_BYTES, Spectrum, Welch, WelchConfig};
+pub use welch::{
+    Averaging, Detrend, IntervalSpectrum, MEDIAN_MEMORY_LIMIT_BYTES, Spectrum, Welch, WelchConfig,
+};
 pub use window::{WindowConstants, WindowKind};

@@ -23,6 +23,20 @@
 //! block sizes. With workers, [`Welch::push`] returns before its segments are averaged;
 //! [`Welch::flush`] waits for them.
 //!
+//! **Intervals.** [`Welch::set_intervals`] cuts the stream into consecutive intervals of L
+//! samples (interval i covers stream samples iL … (i+1)L − 1) and keeps, beside the running
+//! estimate, a *linear* sum of the periodograms of the segments that lie wholly inside the
+//! interval in progress (segments across a boundary count only in the running estimate). Each
+//! closed interval becomes an [`IntervalSpectrum`] ([`Welch::take_intervals`]): the mean of
+//! those periodograms, normalised like the running estimate. The same periodograms feed both,
+//! never a second transform: with a linear running average an interval's sum is the
+//! difference of the running sum after its last segment and before its first (two copies of
+//! the bins per interval); with the other averages each periodogram is also added to the
+//! interval's sum in the same pass. When L is a
+//! whole number of hops the interval holds exactly the segments `stillpoint track` transforms
+//! for it (it restarts the segment grid at each boundary). Intervals run on the caller's
+//! thread only (no worker threads while they are on).
+//!
 //! **Memory.** A median average keeps its periodograms: the last `max_averages` of them, or,
 //! with no limit, as many as fit in [`MEDIAN_MEMORY_LIMIT_BYTES`] (then it becomes the median
 //! of the most recent ones and [`Welch::median_is_capped`] says so). Nothing else grows.
@@ -295,6 +309,8 @@ pub struct Welch {
     pool: Option<Pool>,
     /// Samples from the start of the next segment not yet transformed on.
     pending: Vec<f64>,
+    /// Stream index one past the last sample pushed (see [`Welch::set_intervals`]).
+    pushed: u64,
 }
 
 impl std::fmt::Debug for Welch {
@@ -384,7 +400,7 @@ impl Transformer {
         &self.fft_out
     }
 
-    fn powers(&self) -> impl Iterator<Item = f64> + '_ {
+    fn powers(&self) -> impl Iterator<Item = f64> + Clone + '_ {
         self.fft_out.iter().map(|y| y.re * y.re + y.im * y.im)
     }
 }
@@ -518,14 +534,32 @@ impl Accumulator {
         self.skipped += skipped;
     }
 
-    /// Adds one periodogram |Y_k|², k = 0 … ⌊N/2⌋.
-    fn add(&mut self, powers: impl Iterator<Item = f64>) {
-        match self.averaging {
-            Averaging::Linear => {
-                for (g, p) in self.group.iter_mut().zip(powers) {
-                    *g += p;
+    /// Adds one periodogram |Y_k|², k = 0 … ⌊N/2⌋ (and, when `also` is given, to it too:
+    /// an interval sum, in the same pass over the bins for a linear average).
+    fn add(&mut self, powers: impl Iterator<Item = f64> + Clone, also: Option<&mut [f64]>) {
+        let also = match also {
+            Some(also) if !matches!(self.averaging, Averaging::Linear) => {
+                for (a, p) in also.iter_mut().zip(powers.clone()) {
+                    *a += p;
                 }
+                None
             }
+            other => other,
+        };
+        match self.averaging {
+            Averaging::Linear => match also {
+                Some(also) => {
+                    for ((g, a), p) in self.group.iter_mut().zip(also.iter_mut()).zip(powers) {
+                        *g += p;
+                        *a += p;
+                    }
+                }
+                None => {
+                    for (g, p) in self.group.iter_mut().zip(powers) {
+                        *g += p;
+                    }
+                }
+            },
             Averaging::Exponential {
                 time_constant_segments,
             } => {
@@ -627,6 +661,153 @@ impl Accumulator {
     }
 }
 
+/// The spectrum of one interval of the stream ([`Welch::set_intervals`]).
+#[derive(Debug, Clone, PartialEq)]
+pub struct IntervalSpectrum {
+    /// First sample of the interval (stream index).
+    pub start: u64,
+    /// One past its last sample (for the interval still in progress when it was closed by
+    /// [`Welch::finish_interval`], one past the last sample pushed).
+    pub end: u64,
+    /// Linear mean of the periodograms of the segments wholly inside the interval.
+    pub spectrum: Spectrum,
+}
+
+/// Closed intervals kept until taken; older ones are dropped beyond this many.
+const INTERVALS_KEPT: usize = 64;
+
+/// An interval closed but not yet normalised.
+struct RawInterval {
+    start: u64,
+    end: u64,
+    sum: Vec<f64>,
+    count: usize,
+}
+
+/// The interval sums of [`Welch::set_intervals`]. With a linear running average an
+/// interval's sum is the difference of the running sum after its last segment and before its
+/// first (two copies of the bins per interval, nothing per segment); with the other averages
+/// each of its periodograms is also added to `sum` (one more addition per bin and segment).
+struct Intervals {
+    /// Samples per interval L.
+    len: u64,
+    /// The interval in progress covers `index·L … (index+1)·L − 1`.
+    index: u64,
+    /// The running average is linear: sums by difference.
+    linear: bool,
+    /// Linear: the part of the interval's sum carried over a restart of the running average;
+    /// otherwise Σ|Y_k|² of its segments so far.
+    sum: Vec<f64>,
+    /// Linear: the running sum before the interval's first segment (`based`).
+    base: Vec<f64>,
+    based: bool,
+    count: usize,
+    done: std::collections::VecDeque<RawInterval>,
+}
+
+/// The running linear sum Σ|Y_k|² of `acc`, bin `k`.
+fn running_sum(acc: &Accumulator) -> impl Iterator<Item = f64> + '_ {
+    acc.acc.iter().zip(&acc.group).map(|(a, g)| a + g)
+}
+
+impl Intervals {
+    fn new(len: u64, index: u64, bins: usize, linear: bool) -> Self {
+        Self {
+            len,
+            index,
+            linear,
+            sum: vec![0.0; bins],
+            base: if linear { vec![0.0; bins] } else { Vec::new() },
+            based: false,
+            count: 0,
+            done: std::collections::VecDeque::new(),
+        }
+    }
+
+    fn begin(&self) -> u64 {
+        self.index.saturating_mul(self.len)
+    }
+
+    fn end(&self) -> u64 {
+        self.index.saturating_add(1).saturating_mul(self.len)
+    }
+
+    /// Closes the interval in progress (kept if it holds a segment) and makes `index` current.
+    fn close(&mut self, end: u64, index: u64, acc: &Accumulator) {
+        if self.count > 0 {
+            if self.done.len() == INTERVALS_KEPT {
+                self.done.pop_front();
+            }
+            let bins = self.sum.len();
+            let mut sum = std::mem::replace(&mut self.sum, vec![0.0; bins]);
+            if self.linear {
+                for ((s, r), b) in sum.iter_mut().zip(running_sum(acc)).zip(&self.base) {
+                    *s += r - b;
+                }
+            }
+            self.done.push_back(RawInterval {
+                start: self.begin(),
+                end,
+                sum,
+                count: self.count,
+            });
+        }
+        self.count = 0;
+        self.based = false;
+        self.index = index;
+    }
+
+    /// A segment ending at `seg_end` (one past its last sample) is next: every interval
+    /// that ends before it has all its segments.
+    fn close_before(&mut self, seg_end: u64, acc: &Accumulator) {
+        if seg_end > self.end() {
+            self.close(self.end(), (seg_end - 1) / self.len.max(1), acc);
+        }
+    }
+
+    /// The stream has reached `pushed`: the interval in progress is complete if it ends there.
+    fn close_through(&mut self, pushed: u64, acc: &Accumulator) {
+        if pushed >= self.end() {
+            self.close(self.end(), pushed / self.len.max(1), acc);
+        }
+    }
+
+    /// A segment starting at `start` is about to be added to `acc`: counted if it lies in the
+    /// interval in progress; returns the sum it must also be added to (not linear).
+    fn take_segment(&mut self, start: u64, acc: &Accumulator) -> Option<&mut [f64]> {
+        if start < self.begin() {
+            return None;
+        }
+        self.count += 1;
+        if self.linear {
+            if !self.based {
+                for (b, r) in self.base.iter_mut().zip(running_sum(acc)) {
+                    *b = r;
+                }
+                self.based = true;
+            }
+            None
+        } else {
+            Some(&mut self.sum)
+        }
+    }
+
+    /// The running average is about to restart: carry what the interval holds so far.
+    fn restarting(&mut self, acc: &Accumulator) {
+        if self.linear && self.based {
+            for ((s, r), b) in self
+                .sum
+                .iter_mut()
+                .zip(running_sum(acc))
+                .zip(&mut self.base)
+            {
+                *s += r - *b;
+                *b = 0.0;
+            }
+        }
+    }
+}
+
 /// The per-segment machinery of the caller's thread.
 struct Engine {
     n: usize,
@@ -634,6 +815,8 @@ struct Engine {
     s2: f64,
     main: Transformer,
     acc: Accumulator,
+    /// Interval sums ([`Welch::set_intervals`]).
+    intervals: Option<Intervals>,
 }
 
 impl Engine {
@@ -650,13 +833,22 @@ impl Engine {
             s2,
             main: Transformer::new(config.detrend, window.into(), fft),
             acc: Accumulator::new(config, rho2),
+            intervals: None,
         }
     }
 
-    /// Processes the segment `head ++ tail` on the caller's thread. True if accepted.
-    fn process(&mut self, head: &[f64], tail: &[f64]) -> bool {
+    /// Processes the segment `head ++ tail`, which starts at stream sample `start`, on the
+    /// caller's thread. True if accepted.
+    fn process(&mut self, head: &[f64], tail: &[f64], start: u64) -> bool {
+        if let Some(iv) = self.intervals.as_mut() {
+            iv.close_before(start.saturating_add(self.n as u64), &self.acc);
+        }
         if self.main.transform(head, tail) {
-            self.acc.add(self.main.powers());
+            let also = match self.intervals.as_mut() {
+                Some(iv) => iv.take_segment(start, &self.acc),
+                None => None,
+            };
+            self.acc.add(self.main.powers(), also);
             true
         } else {
             self.acc.skip();
@@ -840,7 +1032,64 @@ impl Welch {
             engine,
             pool: None,
             pending,
+            pushed: 0,
         })
+    }
+
+    /// Cuts the stream into intervals of `len` samples and keeps each interval's own
+    /// spectrum beside the running estimate (see the module notes); `position` is the stream
+    /// index of the next sample pushed (intervals are counted from stream index 0, so an
+    /// averager made in the middle of a stream keeps the same grid). Stops any worker
+    /// threads: intervals run on the caller's thread. `len` 0 switches intervals off.
+    pub fn set_intervals(&mut self, len: u64, position: u64) {
+        self.set_threads(1);
+        self.pushed = position.saturating_add(self.pending.len() as u64);
+        let linear = matches!(self.config.averaging, Averaging::Linear);
+        self.engine.intervals =
+            (len > 0).then(|| Intervals::new(len, position / len, self.bins(), linear));
+    }
+
+    /// Stream index one past the last sample pushed.
+    pub fn position(&self) -> u64 {
+        self.pushed
+    }
+
+    /// The intervals closed since the last call, oldest first (at most the last 64).
+    pub fn take_intervals(&mut self) -> Vec<IntervalSpectrum> {
+        let raw: Vec<RawInterval> = match self.engine.intervals.as_mut() {
+            Some(iv) => iv.done.drain(..).collect(),
+            None => return Vec::new(),
+        };
+        raw.into_iter().map(|r| self.interval_spectrum(r)).collect()
+    }
+
+    /// Closes the interval in progress now (the end of a recording) and returns it, with the
+    /// closed ones not yet taken, oldest first; the partial one only if it holds a segment.
+    pub fn finish_interval(&mut self) -> Vec<IntervalSpectrum> {
+        let pushed = self.pushed;
+        if let Some(iv) = self.engine.intervals.as_mut() {
+            let index = iv.index.saturating_add(1).max(pushed / iv.len.max(1));
+            iv.close(pushed, index, &self.engine.acc);
+        }
+        self.take_intervals()
+    }
+
+    fn interval_spectrum(&self, raw: RawInterval) -> IntervalSpectrum {
+        let count = raw.count.max(1);
+        let mut spectrum = self.empty_spectrum();
+        let k = count as f64;
+        spectrum.psd_v2_per_hz = raw.sum.iter().map(|s| s / k).collect();
+        self.normalise(
+            &mut spectrum,
+            count,
+            k_eff_from_rho2(&self.engine.acc.rho2, count),
+        );
+        spectrum.averaging = Averaging::Linear;
+        IntervalSpectrum {
+            start: raw.start,
+            end: raw.end,
+            spectrum,
+        }
     }
 
     /// The settings.
@@ -874,11 +1123,24 @@ impl Welch {
     /// background: the estimate then lags the pushed samples by up to a few groups of
     /// segments until [`Welch::flush`].
     pub fn push(&mut self, samples: &[f64]) -> usize {
-        if self.pool.is_some() {
+        self.pushed = self.pushed.saturating_add(samples.len() as u64);
+        let added = if self.pool.is_some() {
             self.push_parallel(samples)
         } else {
             self.push_sequential(samples)
+        };
+        if let Some(iv) = self.engine.intervals.as_mut() {
+            iv.close_through(self.pushed, &self.engine.acc);
         }
+        added
+    }
+
+    /// Stream index of the first sample of the segment at the start of `pending ++ rest`
+    /// (`rest` being the end of the samples pushed).
+    fn segment_start(&self, rest: &[f64]) -> u64 {
+        self.pushed
+            .saturating_sub(rest.len() as u64)
+            .saturating_sub(self.pending.len() as u64)
     }
 
     /// [`Welch::push`] on the caller's thread.
@@ -901,7 +1163,8 @@ impl Welch {
                         self.pending.clear();
                         return accepted;
                     }
-                    if self.engine.process(segment, &[]) {
+                    let start = self.segment_start(rest);
+                    if self.engine.process(segment, &[], start) {
                         accepted += 1;
                     }
                     rest = rest.get(hop..).unwrap_or(&[]);
@@ -927,7 +1190,8 @@ impl Welch {
             *rest = &[];
             return None;
         };
-        let ok = self.engine.process(head, tail);
+        let start = self.segment_start(rest);
+        let ok = self.engine.process(head, tail, start);
         self.advance(rest, self.config.hop());
         Some(ok)
     }
@@ -1014,7 +1278,8 @@ impl Welch {
         added
     }
 
-    /// Uses `threads` worker threads (1 = none, the default; at most 64). Groups of
+    /// Uses `threads` worker threads (1 = none, the default; at most 64; none while
+    /// [`Welch::set_intervals`] is on). Groups of
     /// consecutive segments (about 2¹⁹ samples of FFT input each) are copied to persistent
     /// workers and their periodograms added in stream order on the caller's thread, so the
     /// result is bit-identical to the single-threaded one for any thread count and block
@@ -1025,7 +1290,7 @@ impl Welch {
         self.flush();
         self.pool = None;
         let threads = threads.clamp(1, 64);
-        if threads < 2 {
+        if threads < 2 || self.engine.intervals.is_some() {
             return;
         }
         let summed = matches!(self.config.averaging, Averaging::Linear);
@@ -1089,7 +1354,13 @@ impl Welch {
 
     /// The current estimate, or `None` before the first segment.
     pub fn spectrum(&self) -> Option<Spectrum> {
-        let mut spectrum = Spectrum {
+        let mut spectrum = self.empty_spectrum();
+        self.spectrum_into(&mut spectrum).then_some(spectrum)
+    }
+
+    /// A spectrum with these settings and no bins (capacity for all of them).
+    fn empty_spectrum(&self) -> Spectrum {
+        Spectrum {
             sample_rate_hz: self.config.sample_rate_hz,
             segment: self.config.segment,
             overlap: self.config.overlap,
@@ -1101,8 +1372,7 @@ impl Welch {
             resolution_hz: 0.0,
             enbw_hz: 0.0,
             psd_v2_per_hz: Vec::with_capacity(self.bins()),
-        };
-        self.spectrum_into(&mut spectrum).then_some(spectrum)
+        }
     }
 
     /// Writes the current estimate into `out`, reusing its PSD buffer (no allocation after
@@ -1113,6 +1383,15 @@ impl Welch {
         if averages == 0 {
             return false;
         }
+        out.psd_v2_per_hz.resize(self.bins(), 0.0);
+        self.engine.acc.mean_power_into(&mut out.psd_v2_per_hz);
+        self.normalise(out, averages, self.engine.acc.k_eff());
+        true
+    }
+
+    /// Fills `out`'s settings and turns its averaged |Y_k|² (already in `psd_v2_per_hz`) into
+    /// the one-sided PSD.
+    fn normalise(&self, out: &mut Spectrum, averages: usize, k_eff: f64) {
         let c = &self.config;
         let n = c.segment;
         let bins = self.bins();
@@ -1123,12 +1402,10 @@ impl Welch {
         out.detrend = c.detrend;
         out.averaging = c.averaging;
         out.averages = averages;
-        out.k_eff = self.engine.acc.k_eff();
+        out.k_eff = k_eff;
         out.resolution_hz = c.sample_rate_hz / n as f64;
         let (s1, s2) = (self.engine.s1, self.engine.s2);
         out.enbw_hz = c.sample_rate_hz * s2 / (s1 * s1);
-        out.psd_v2_per_hz.resize(bins, 0.0);
-        self.engine.acc.mean_power_into(&mut out.psd_v2_per_hz);
         let single = 1.0 / (c.sample_rate_hz * self.engine.s2);
         let double = 2.0 * single;
         let last_unpaired = if n.is_multiple_of(2) {
@@ -1143,7 +1420,6 @@ impl Welch {
                 double
             };
         }
-        true
     }
 
     /// Forgets all averaged data (keeps the settings and the sample buffer position);
@@ -1162,6 +1438,9 @@ impl Welch {
             let complete = (self.pending.len() - n) / hop + 1;
             let skip = (complete * hop).min(self.pending.len());
             self.pending.drain(..skip);
+        }
+        if let Some(iv) = self.engine.intervals.as_mut() {
+            iv.restarting(&self.engine.acc);
         }
         self.engine.acc.restart();
     }
@@ -1243,6 +1522,112 @@ mod tests {
             for (a, b) in s.psd_v2_per_hz.iter().zip(&r) {
                 assert!((a - b).abs() <= 1e-12 * r.iter().cloned().fold(0.0, f64::max));
             }
+        }
+    }
+
+    #[test]
+    fn interval_spectra_are_the_segments_inside_each_interval() {
+        // L = 10 hops: each interval holds exactly the segments a fresh averager over that
+        // interval alone transforms (what `track` does), whatever the block sizes; the running
+        // estimate is untouched by the intervals.
+        let config = WelchConfig::new(1000.0, 64);
+        let x = noise(64 * 50 + 100, 3);
+        let len = 320u64;
+        let mut welch = Welch::new(config.clone()).unwrap();
+        welch.set_intervals(len, 0);
+        let mut got = Vec::new();
+        for block in x.chunks(37) {
+            welch.push(block);
+            got.extend(welch.take_intervals());
+        }
+        assert_eq!(got.len(), x.len() / len as usize);
+        for (i, iv) in got.iter().enumerate() {
+            let a = i * len as usize;
+            assert_eq!((iv.start, iv.end), (a as u64, a as u64 + len));
+            let own = super::welch(&x[a..a + len as usize], &config).unwrap();
+            assert_eq!(iv.spectrum.averages, own.averages);
+            assert_eq!(iv.spectrum.averages, 9);
+            assert!((iv.spectrum.k_eff - own.k_eff).abs() < 1e-12);
+            for (p, q) in iv.spectrum.psd_v2_per_hz.iter().zip(&own.psd_v2_per_hz) {
+                assert!((p - q).abs() <= 1e-12 * q.abs(), "{p} {q}");
+            }
+        }
+        let plain = super::welch(&x, &config).unwrap();
+        assert_eq!(welch.spectrum().unwrap(), plain);
+        // Whatever the running average, the intervals are linear means of the same bits.
+        for averaging in [
+            Averaging::Median,
+            Averaging::MaxHold,
+            Averaging::Exponential {
+                time_constant_segments: 4.0,
+            },
+        ] {
+            let mut other = Welch::new(WelchConfig {
+                averaging,
+                ..config.clone()
+            })
+            .unwrap();
+            other.set_intervals(len, 0);
+            other.push(&x);
+            let theirs = other.take_intervals();
+            assert_eq!(theirs.len(), got.len());
+            for (a, b) in theirs.iter().zip(&got) {
+                // Summed here, by difference of running sums for the linear average.
+                for (p, q) in a
+                    .spectrum
+                    .psd_v2_per_hz
+                    .iter()
+                    .zip(&b.spectrum.psd_v2_per_hz)
+                {
+                    assert!((p - q).abs() <= 1e-12 * q.abs(), "{p} {q}");
+                }
+                assert_eq!(a.spectrum.averaging, Averaging::Linear);
+            }
+        }
+        // Restarting the running average (Restart in the window) keeps the interval whole.
+        let mut restarted = Welch::new(config.clone()).unwrap();
+        restarted.set_intervals(len, 0);
+        restarted.push(&x[..480]);
+        restarted.restart();
+        restarted.push(&x[480..]);
+        let ivs = restarted.take_intervals();
+        for (a, b) in ivs.iter().zip(&got) {
+            assert_eq!(a.spectrum.averages, b.spectrum.averages);
+            for (p, q) in a
+                .spectrum
+                .psd_v2_per_hz
+                .iter()
+                .zip(&b.spectrum.psd_v2_per_hz)
+            {
+                assert!((p - q).abs() <= 1e-12 * q.abs(), "{p} {q}");
+            }
+        }
+        // The interval in progress when the record ends: its segments so far.
+        let last = welch.finish_interval();
+        assert_eq!(last.len(), 1);
+        let a = got.len() * len as usize;
+        assert_eq!((last[0].start, last[0].end), (a as u64, x.len() as u64));
+        let own = super::welch(&x[a..], &config).unwrap();
+        assert_eq!(last[0].spectrum.averages, own.averages);
+        // A grid that is not a whole number of hops: segments across a boundary are left out.
+        let mut odd = Welch::new(config.clone()).unwrap();
+        odd.set_intervals(300, 0);
+        odd.push(&x);
+        let ivs = odd.take_intervals();
+        assert!(ivs.iter().all(|iv| iv.spectrum.averages <= 8));
+        // Started in the middle of a stream (on a hop of the stream's grid): the intervals
+        // stay on the stream's grid.
+        let mut mid = Welch::new(config).unwrap();
+        mid.set_intervals(len, 1024);
+        mid.push(&x[1024..]);
+        let ivs = mid.take_intervals();
+        // The interval it started in holds the segments from its first sample on.
+        assert_eq!((ivs[0].start, ivs[0].end), (960, 1280));
+        assert_eq!(ivs[0].spectrum.averages, (256 - 64) / 32 + 1);
+        assert_eq!((ivs[1].start, ivs[1].end), (1280, 1600));
+        let own = super::welch(&x[1280..1600], &WelchConfig::new(1000.0, 64)).unwrap();
+        for (p, q) in ivs[1].spectrum.psd_v2_per_hz.iter().zip(&own.psd_v2_per_hz) {
+            assert!((p - q).abs() <= 1e-12 * q.abs(), "{p} {q}");
         }
     }
 

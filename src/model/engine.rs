@@ -3,6 +3,25 @@
 //! stray peaks) every publish interval, and hands a [`Frame`] to the window over a *bounded*
 //! channel (drop-oldest, counted), waking it with a caller-supplied closure. The window
 //! never computes a spectrum or a fit; it only draws frames and sends [`EngineCommand`]s.
+//!
+//! **History.** The waterfall rows and trend points are not taken from the running average:
+//! the stream is cut into intervals of [`EngineConfig::history_interval`] (at least 4
+//! segments: `N + 3·hop` samples), and each row and point is the spectrum of that interval
+//! alone — the mean of the periodograms of the segments wholly inside it, which the Welch
+//! averager keeps beside its running estimate ([`Welch::set_intervals`], no second
+//! transform) — analysed with the same settings and its own band that follows the mode by
+//! `stillpoint track`'s rule ([`crate::model::trend::follow_band`]). So the window's trend of
+//! a recording is `track`'s on the same file and interval. Times: on a recording, stream time
+//! (samples / rate: playback speed, pauses and a slow machine do not change them; a recording
+//! is never dropped from, its reader waits instead); on a live source (TCP, stdin, a followed
+//! file, the demo), seconds on the wall clock since the engine started at the moment the
+//! interval closed (samples lost in a gap are not in any interval). Two detectors keep the
+//! older rule (a row of the running cross-spectrum once per interval of wall time).
+//!
+//! **End of a recording.** The panel shows the mean of the whole record and its fit, unless
+//! the mode moved by more than its linewidth between the intervals (or the whole-record fit
+//! failed while the last interval fits): then it shows the last interval's spectrum and fit
+//! and [`EngineStatus::record_note`] says so in one line.
 
 use std::sync::Arc;
 use std::thread::JoinHandle;
@@ -147,6 +166,11 @@ pub struct EngineStatus {
     /// The last interruption of a live source, in words ("reconnected after 3.2 s, about
     /// 320 000 samples lost").
     pub stream_note: Option<String>,
+    /// At the end of a recording whose mode drifted: what the panel shows instead of the
+    /// whole-record mean ("the mode moved 300 Hz during the record; showing the last 1.2 s").
+    pub record_note: Option<String>,
+    /// Samples per history interval (0: the older wall-clock rule of two detectors).
+    pub interval_samples: u64,
 }
 
 /// Something that happened during the session, marked on the history (a band set by hand,
@@ -157,6 +181,25 @@ pub struct SessionMark {
     pub time_s: f64,
     /// What happened.
     pub text: String,
+}
+
+/// One interval of the history: the spectrum of that interval alone, analysed.
+#[derive(Debug, Clone)]
+pub struct HistoryEntry {
+    /// Start of the interval (the history's time axis), s.
+    pub t_start_s: f64,
+    /// End of the interval, s (the trend point's and the waterfall row's time).
+    pub t_end_s: f64,
+    /// Seconds of stream the interval holds (samples / rate).
+    pub duration_s: f64,
+    /// The waterfall row of the interval's spectrum.
+    pub waterfall_row: Option<WaterfallRow>,
+    /// The trend point of its analysis.
+    pub trend: Option<TrendPoint>,
+    /// Its analysis.
+    pub report: Option<Arc<Report>>,
+    /// The fit band it was analysed with, Hz.
+    pub band_hz: Option<(f64, f64)>,
 }
 
 /// One update for the window.
@@ -187,10 +230,9 @@ pub struct Frame {
     pub band_hz: Option<(f64, f64)>,
     /// Status line.
     pub status: EngineStatus,
-    /// A new waterfall row, about once per history interval.
-    pub waterfall_row: Option<WaterfallRow>,
-    /// A new trend point, about once per history interval.
-    pub trend: Option<TrendPoint>,
+    /// Intervals of the history closed since the previous frame, oldest first (about one
+    /// per history interval; several when a recording plays fast).
+    pub history: Vec<HistoryEntry>,
     /// Marks since the previous frame.
     pub marks: Vec<SessionMark>,
 }
@@ -315,6 +357,13 @@ fn start_source(config: &SourceConfig, speed: Option<f64>) -> Result<(Source, f6
     };
     let rate = reader.sample_rate_hz();
     let options = AcqOptions {
+        // A recording is never dropped from (its reader waits for the engine: playback only
+        // slows down), so its history is exactly the record's; live sources never wait.
+        backpressure: if matches!(kind, SourceKind::Recording(_)) {
+            acquire::Backpressure::Block
+        } else {
+            acquire::Backpressure::DropAndCount
+        },
         channel_capacity: SOURCE_QUEUE,
         block_samples: ((rate * 0.02) as usize).clamp(256, 1 << 16),
         speed,
@@ -374,6 +423,63 @@ struct Worker {
     history_now: bool,
     /// Marks not yet published.
     marks: Vec<SessionMark>,
+    /// Samples per history interval.
+    interval_samples: u64,
+    /// The fit band of the interval analyses (follows the mode by `track`'s rule).
+    interval_band_hz: Option<(f64, f64)>,
+    /// End of the last history interval, s.
+    last_interval_end_s: Option<f64>,
+    /// The newest complete interval: its spectrum, analysis, band and length (s).
+    last_interval: Option<ShownInterval>,
+    /// Lowest and highest fitted f_m of the intervals since the source opened, with σ.
+    drift: Option<Drift>,
+    /// History intervals published since the source opened.
+    intervals_published: u64,
+}
+
+/// A history interval kept for the end of a recording.
+#[derive(Debug, Clone)]
+struct ShownInterval {
+    spectrum: Arc<Spectrum>,
+    report: Arc<Report>,
+    band_hz: Option<(f64, f64)>,
+    duration_s: f64,
+    complete: bool,
+}
+
+/// The range of the fitted mode frequency over the intervals: (f, σ) at its ends.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Drift {
+    lowest: (f64, f64),
+    highest: (f64, f64),
+}
+
+impl Drift {
+    fn add(this: Option<Self>, f: f64, sigma: f64) -> Self {
+        match this {
+            None => Self {
+                lowest: (f, sigma),
+                highest: (f, sigma),
+            },
+            Some(mut d) => {
+                if f < d.lowest.0 {
+                    d.lowest = (f, sigma);
+                }
+                if f > d.highest.0 {
+                    d.highest = (f, sigma);
+                }
+                d
+            }
+        }
+    }
+
+    /// How far the mode moved, Hz, and whether that is more than `linewidth_hz` beyond the
+    /// scatter of the two fits (2σ of their difference).
+    fn moved_beyond(&self, linewidth_hz: f64) -> Option<f64> {
+        let moved = self.highest.0 - self.lowest.0;
+        let sigma = self.highest.1.hypot(self.lowest.1);
+        (moved > linewidth_hz + 2.0 * sigma).then_some(moved)
+    }
 }
 
 impl Worker {
@@ -417,6 +523,22 @@ impl Worker {
             reconnected: false,
             history_now: false,
             marks: Vec::new(),
+            interval_samples: 0,
+            interval_band_hz: None,
+            last_interval_end_s: None,
+            last_interval: None,
+            drift: None,
+            intervals_published: 0,
+        }
+    }
+
+    /// The history's clock, s: stream time (samples / rate) on a recording, so playback
+    /// speed does not change it; the wall clock since the engine started on a live source.
+    fn clock_s(&self) -> f64 {
+        if self.status.recording && self.sample_rate_hz > 0.0 {
+            self.status.samples as f64 / self.sample_rate_hz
+        } else {
+            self.started.elapsed().as_secs_f64()
         }
     }
 
@@ -439,7 +561,7 @@ impl Worker {
     }
 
     fn mark(&mut self, text: String) {
-        let time_s = self.started.elapsed().as_secs_f64();
+        let time_s = self.clock_s();
         self.marks.push(SessionMark { time_s, text });
         self.dirty = true;
     }
@@ -507,6 +629,11 @@ impl Worker {
                 self.marks.clear();
                 self.reconnected = false;
                 self.history_now = false;
+                self.interval_band_hz = None;
+                self.last_interval_end_s = None;
+                self.last_interval = None;
+                self.drift = None;
+                self.intervals_published = 0;
                 self.last_block = Instant::now();
                 self.sample_rate_hz = rate;
                 self.source_kind = source.kind;
@@ -548,10 +675,30 @@ impl Worker {
         } else {
             1
         };
+        if channels == 1 {
+            // History intervals: the interval asked for, but at least 4 segments.
+            let hop = cfg.hop() as u64;
+            let asked = (self.config.history_interval.as_secs_f64() * self.sample_rate_hz).round();
+            let asked = if asked.is_finite() && asked >= 1.0 {
+                asked as u64
+            } else {
+                1
+            };
+            self.interval_samples = asked.max(segment as u64 + 3 * hop);
+        }
         match Averager::new(cfg, channels, 1) {
-            Ok(a) => self.averager = Some(a),
+            Ok(mut a) => {
+                a.set_intervals(self.interval_samples, self.status.samples);
+                self.averager = Some(a);
+            }
             Err(e) => self.notice(EngineNotice::Error(format!("averaging settings: {e}"))),
         }
+        self.status.interval_samples = if self.averager.as_ref().is_some_and(|a| a.channels() == 1)
+        {
+            self.interval_samples
+        } else {
+            0
+        };
         self.status.segment = segment;
         self.status.averaging = if self.two_channels() {
             "mean (two detectors: the cross-spectrum is a linear average)".to_string()
@@ -805,6 +952,207 @@ impl Worker {
         self.status.analysis_s = t0.elapsed().as_secs_f64();
     }
 
+    /// Shows `spectrum` (the running estimate, or at the end of a drifting recording its
+    /// last interval): the frame's log PSD and its min/max blocks are made here once.
+    fn show_spectrum(&mut self, spectrum: Option<Arc<Spectrum>>) {
+        self.spectrum = spectrum;
+        let Some(sp) = &self.spectrum else {
+            return;
+        };
+        let grid_changed = self
+            .frequencies_hz
+            .as_ref()
+            .is_none_or(|f| f.len() != sp.len() || f.get(1).copied() != Some(sp.resolution_hz));
+        if grid_changed {
+            self.frequencies_hz = Some(Arc::new(sp.frequencies_hz()));
+        }
+        let log_psd: Vec<f64> = sp
+            .psd_v2_per_hz
+            .iter()
+            .map(|&p| {
+                if p > 0.0 && p.is_finite() {
+                    p.log10()
+                } else {
+                    f64::NAN
+                }
+            })
+            .collect();
+        self.log_psd_blocks = Some(Arc::new(MinMaxBlocks::new(&log_psd)));
+        self.log_psd = Some(Arc::new(log_psd));
+    }
+
+    /// The history intervals closed since the last frame, each analysed on its own. At the
+    /// end of the stream the interval in progress is closed too; like `track`, a partial last
+    /// interval becomes a row only when it is the only one.
+    fn history_intervals(&mut self, ended_now: bool) -> Vec<HistoryEntry> {
+        let Some(w) = self.averager.as_mut() else {
+            return Vec::new();
+        };
+        let mut intervals = if ended_now {
+            w.finish_interval()
+        } else {
+            w.take_intervals()
+        };
+        let len = self.interval_samples;
+        if ended_now
+            && intervals.last().is_some_and(|iv| iv.end - iv.start < len)
+            && self.intervals_published + intervals.len() as u64 > 1
+        {
+            intervals.pop();
+        }
+        // A live source never waits for the engine: when several intervals closed since the
+        // last frame (the engine is behind, an analysis of a noisy interval can take seconds),
+        // only the newest is analysed; the others give waterfall rows. A recording's reader
+        // waits, so each of its intervals is analysed.
+        let count = intervals.len();
+        let recording = self.status.recording;
+        intervals
+            .into_iter()
+            .enumerate()
+            .map(|(i, iv)| {
+                let complete = iv.end - iv.start >= len;
+                self.history_entry(iv, complete, recording || i + 1 == count)
+            })
+            .collect()
+    }
+
+    /// Analyses one interval's spectrum with the window's settings and the interval band,
+    /// then moves that band onto the fitted mode by `track`'s rule.
+    fn history_entry(
+        &mut self,
+        iv: crate::dsp::IntervalSpectrum,
+        complete: bool,
+        analyse: bool,
+    ) -> HistoryEntry {
+        let rate = self.sample_rate_hz.max(f64::MIN_POSITIVE);
+        let duration_s = (iv.end - iv.start) as f64 / rate;
+        let (t_start_s, t_end_s) = if self.status.recording {
+            (iv.start as f64 / rate, iv.end as f64 / rate)
+        } else {
+            let end = self.clock_s();
+            let start = self
+                .last_interval_end_s
+                .unwrap_or(end - duration_s)
+                .min(end);
+            (start, end)
+        };
+        self.last_interval_end_s = Some(t_end_s);
+        self.intervals_published += 1;
+        let spectrum = Arc::new(iv.spectrum);
+        if self.interval_band_hz.is_none() {
+            self.interval_band_hz = self.band_hz;
+        }
+        let band = self.interval_band_hz;
+        let mut options = self.config.analysis.clone();
+        options.mode_band_hz = band;
+        // The stray-peak search is left out: nothing of a trend point depends on it.
+        let report = if analyse {
+            analysis::analyze_without_peaks(&spectrum, &options)
+                .ok()
+                .map(Arc::new)
+        } else {
+            None
+        };
+        if let Some(r) = &report {
+            if self.config.follow_mode {
+                let nyquist = 0.5 * spectrum.sample_rate_hz;
+                self.interval_band_hz = crate::model::trend::follow_band(band, r, nyquist);
+            }
+            if let (Some(f), Some(sigma)) = (r.mode.frequency_hz, r.mode.frequency_hz_uncertainty)
+                && f.is_finite()
+                && sigma.is_finite()
+            {
+                self.drift = Some(Drift::add(self.drift, f, sigma));
+            }
+            self.last_interval = Some(ShownInterval {
+                spectrum: Arc::clone(&spectrum),
+                report: Arc::clone(r),
+                band_hz: band,
+                duration_s,
+                complete,
+            });
+        }
+        if self.waterfall_range_hz.is_none() {
+            self.waterfall_range_hz = band.or(self.band_hz).map(|b| waterfall_span(b, &spectrum));
+        }
+        HistoryEntry {
+            t_start_s,
+            t_end_s,
+            duration_s,
+            waterfall_row: waterfall_row_of(
+                &spectrum,
+                self.waterfall_range_hz,
+                self.config.waterfall_columns,
+                t_end_s,
+            ),
+            trend: report.as_ref().map(|r| trend_point(r, t_end_s)),
+            report,
+            band_hz: band,
+        }
+    }
+
+    /// The end of a recording: the whole-record mean stays on the panel unless the mode
+    /// moved by more than its linewidth between the intervals, or the whole-record fit failed
+    /// while the last interval fits; then the last interval is shown, and said.
+    fn choose_final_state(&mut self) {
+        let Some(last) = self.last_interval.clone() else {
+            return;
+        };
+        let fitted = last.report.mode.frequency_hz.is_some_and(f64::is_finite);
+        let Some(gamma_last) = last
+            .report
+            .mode
+            .linewidth_hz
+            .filter(|g| g.is_finite() && fitted)
+        else {
+            return;
+        };
+        let whole_fits = self
+            .report
+            .as_ref()
+            .is_some_and(|r| r.mode.frequency_hz.is_some_and(f64::is_finite));
+        let reason = match self.drift.and_then(|d| d.moved_beyond(gamma_last)) {
+            Some(moved) => format!(
+                "the mode moved {} during the record",
+                super::format::hz_words(moved)
+            ),
+            None if !whole_fits => "the fit of the whole record found no mode".to_string(),
+            None => return,
+        };
+        let what = if last.complete {
+            format!(
+                "showing the last {} s",
+                super::format::seconds_words(last.duration_s)
+            )
+        } else {
+            format!(
+                "showing the last {} s (a partial interval)",
+                super::format::seconds_words(last.duration_s)
+            )
+        };
+        self.status.record_note = Some(format!("{reason}; {what}"));
+        self.band_hz = last.band_hz;
+        self.report = Some(last.report);
+        self.analysis_error = None;
+        self.show_spectrum(Some(last.spectrum));
+    }
+
+    /// The running estimate, made and analysed.
+    fn refresh_running(&mut self, segments: usize) {
+        let Some(a) = &self.averager else {
+            return;
+        };
+        let spectrum = if a.channels() == 2 {
+            self.cross_spectrum = a.cross_spectrum().map(Arc::new);
+            self.cross_spectrum.as_ref().map(|c| Arc::new(c.a.clone()))
+        } else {
+            a.spectrum().map(Arc::new)
+        };
+        self.show_spectrum(spectrum);
+        self.segments_at_analysis = segments;
+        self.analyse();
+    }
+
     fn publish(&mut self) {
         self.last_publish = Instant::now();
         if let Some(a) = self.averager.as_mut() {
@@ -813,42 +1161,29 @@ impl Worker {
             a.flush();
         }
         let segments = self.averager.as_ref().map_or(0, Averager::segments);
-        let fresh = segments != self.segments_at_analysis;
-        if fresh && let Some(a) = &self.averager {
-            if a.channels() == 2 {
-                self.cross_spectrum = a.cross_spectrum().map(Arc::new);
-                self.spectrum = self.cross_spectrum.as_ref().map(|c| Arc::new(c.a.clone()));
-            } else {
-                self.spectrum = a.spectrum().map(Arc::new);
-            }
-            if let Some(sp) = &self.spectrum {
-                let grid_changed = self.frequencies_hz.as_ref().is_none_or(|f| {
-                    f.len() != sp.len() || f.get(1).copied() != Some(sp.resolution_hz)
-                });
-                if grid_changed {
-                    self.frequencies_hz = Some(Arc::new(sp.frequencies_hz()));
-                }
-                self.log_psd = Some(Arc::new(
-                    sp.psd_v2_per_hz
-                        .iter()
-                        .map(|&p| {
-                            if p > 0.0 && p.is_finite() {
-                                p.log10()
-                            } else {
-                                f64::NAN
-                            }
-                        })
-                        .collect(),
-                ));
-                self.log_psd_blocks = self
-                    .log_psd
-                    .as_deref()
-                    .map(|l| Arc::new(MinMaxBlocks::new(l)));
-            }
-            self.segments_at_analysis = segments;
-            self.analyse();
+        let history_now = std::mem::take(&mut self.history_now);
+        let mut fresh = segments != self.segments_at_analysis;
+        let recording = self.status.recording;
+        if fresh && recording {
+            // The running average first: its band (found or followed) starts the intervals'.
+            self.refresh_running(segments);
         }
-        if !fresh && !self.dirty {
+        let mut history = self.history_intervals(history_now);
+        if fresh && !recording {
+            if history.iter().any(|e| e.report.is_some()) {
+                // A live source: this frame's analysis was the newest interval's; the running
+                // average is analysed at the next frame (one analysis per frame, as before
+                // the history had its own, so a live source is not dropped from for it).
+                fresh = false;
+                self.dirty = true;
+            } else {
+                self.refresh_running(segments);
+            }
+        }
+        if history_now && self.status.recording && self.status.ended.is_some() {
+            self.choose_final_state();
+        }
+        if !fresh && !self.dirty && history.is_empty() {
             return;
         }
         self.dirty = false;
@@ -883,30 +1218,37 @@ impl Worker {
         }
         self.status.elapsed_s = self.started.elapsed().as_secs_f64();
 
-        let mut waterfall_row = None;
-        let mut trend = None;
-        let history_due = self
-            .last_history
-            .is_none_or(|t| t.elapsed() >= self.config.history_interval);
-        let history_now = std::mem::take(&mut self.history_now);
-        if (fresh && history_due || history_now)
-            && !self.status.paused
-            && let Some(s) = &self.spectrum
-        {
-            self.last_history = Some(Instant::now());
-            if self.waterfall_range_hz.is_none() {
-                self.waterfall_range_hz = self.band_hz.map(|b| waterfall_span(b, s));
+        // Two detectors: a row of the running cross-spectrum once per interval of wall time.
+        if self.averager.as_ref().is_some_and(|a| a.channels() == 2) {
+            let history_due = self
+                .last_history
+                .is_none_or(|t| t.elapsed() >= self.config.history_interval);
+            if (fresh && history_due || history_now)
+                && !self.status.paused
+                && let Some(s) = self.spectrum.clone()
+            {
+                self.last_history = Some(Instant::now());
+                if self.waterfall_range_hz.is_none() {
+                    self.waterfall_range_hz = self.band_hz.map(|b| waterfall_span(b, &s));
+                }
+                let t_end_s = self.clock_s();
+                let t_start_s = self.last_interval_end_s.unwrap_or(0.0).min(t_end_s);
+                self.last_interval_end_s = Some(t_end_s);
+                history.push(HistoryEntry {
+                    t_start_s,
+                    t_end_s,
+                    duration_s: t_end_s - t_start_s,
+                    waterfall_row: waterfall_row_of(
+                        &s,
+                        self.waterfall_range_hz,
+                        self.config.waterfall_columns,
+                        t_end_s,
+                    ),
+                    trend: self.report.as_ref().map(|r| trend_point(r, t_end_s)),
+                    report: self.report.clone(),
+                    band_hz: self.band_hz,
+                });
             }
-            waterfall_row = waterfall_row_of(
-                s,
-                self.waterfall_range_hz,
-                self.config.waterfall_columns,
-                self.status.elapsed_s,
-            );
-            trend = self
-                .report
-                .as_ref()
-                .map(|r| trend_point(r, self.status.elapsed_s));
         }
         let frame = Frame {
             generation: self.generation,
@@ -920,8 +1262,7 @@ impl Worker {
             analysis_error: self.analysis_error.clone(),
             band_hz: self.band_hz,
             status: self.status.clone(),
-            waterfall_row,
-            trend,
+            history,
             marks: std::mem::take(&mut self.marks),
         };
         if let Err(TrySendError::Full(frame)) = self.frames.try_send(frame) {
@@ -1198,6 +1539,105 @@ mod tests {
         assert!((f_m - 5000.0).abs() < 4.0 * sigma + 1.0, "{f_m} ± {sigma}");
         let c = report.cross.as_ref().expect("no cross keys");
         assert!(c.coherence_noise_threshold > 0.0 && c.coherence_noise_threshold < 0.1);
+    }
+
+    /// Plays a recording as fast as the engine takes it; every frame until the end.
+    fn play_to_end(cfg: EngineConfig) -> (Vec<HistoryEntry>, Frame) {
+        let engine = Engine::start(cfg, Box::new(|| {})).unwrap();
+        let mut history = Vec::new();
+        let mut last = None;
+        let t0 = Instant::now();
+        // A deadline against a hang, not a speed requirement.
+        while t0.elapsed() < Duration::from_secs(300) {
+            if let Some(f) = engine.recv_frame_timeout(Duration::from_millis(200)) {
+                history.extend(f.history.iter().cloned());
+                let done = f.status.ended.is_some();
+                last = Some(f);
+                if done {
+                    break;
+                }
+            }
+        }
+        while let Some(f) = engine.recv_frame_timeout(Duration::from_millis(500)) {
+            history.extend(f.history.iter().cloned());
+            last = Some(f);
+        }
+        (history, last.expect("no frame"))
+    }
+
+    #[test]
+    fn a_drifting_recording_ends_on_its_last_interval_and_says_so() {
+        // The README's example: cooldown.wav with the window's defaults (the command line's
+        // segment, a mean, the band found and following the mode). f_m moves 86 100 → 86 400
+        // Hz and γ narrows 43 → 7.2 Hz: the whole-record mean smears the line, so the end
+        // shows the last interval. Check values: the record's truth (the schedule's last
+        // second: 4 K, f_m = 86 400 Hz, Q = 12 000 → γ = 7.2 Hz).
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("sample-streams")
+            .join("cooldown.wav");
+        let mut cfg = EngineConfig::new(SourceConfig::new(crate::acquire::SourceSpec::Path(path)));
+        cfg.playback_speed = None;
+        cfg.publish_interval = Duration::from_millis(50);
+        let (history, frame) = play_to_end(cfg);
+        // 6 s of record in intervals of 1 s (250 000 samples ≥ N + 3 hops at N = 65 536).
+        assert_eq!(frame.status.interval_samples, 250_000);
+        let times: Vec<(f64, f64)> = history.iter().map(|e| (e.t_start_s, e.t_end_s)).collect();
+        assert_eq!(
+            times,
+            (0..6)
+                .map(|i| (i as f64, i as f64 + 1.0))
+                .collect::<Vec<_>>()
+        );
+        let note = frame
+            .status
+            .record_note
+            .clone()
+            .expect("no note on a drifting record");
+        assert!(
+            note.contains("the mode moved") && note.contains("showing the last 1.0 s"),
+            "{note}"
+        );
+        let report = frame.report.clone().expect("no report");
+        let last = history.last().unwrap().report.clone().unwrap();
+        // The panel is the last interval, and so the strip's last point.
+        assert_eq!(report.mode.frequency_hz, last.mode.frequency_hz);
+        assert_eq!(
+            frame.spectrum.as_ref().unwrap().averages,
+            last.welch.averages
+        );
+        let (f, sf) = (
+            report.mode.frequency_hz.unwrap(),
+            report.mode.frequency_hz_uncertainty.unwrap(),
+        );
+        let (g, sg) = (
+            report.mode.linewidth_hz.unwrap(),
+            report.mode.linewidth_hz_uncertainty.unwrap(),
+        );
+        eprintln!("cooldown end: f_m {f} ± {sf} Hz, γ {g} ± {sg} Hz; {note}");
+        assert!((f - 86_400.0).abs() < 4.0 * sf + 0.5, "{f} ± {sf}");
+        assert!((g - 7.2).abs() < 4.0 * sg + 1.0, "{g} ± {sg}");
+        // The trend follows the drift: the first interval is near the start of the schedule.
+        let first = history.first().unwrap().report.clone().unwrap();
+        assert!(first.mode.frequency_hz.unwrap() < 86_250.0);
+    }
+
+    #[test]
+    fn a_steady_recording_ends_on_the_whole_record() {
+        // thermal.wav: one mode at 295 K, nothing drifts; the end shows the whole-record mean
+        // (the command line's answer) and no note.
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("sample-streams")
+            .join("thermal.wav");
+        let mut cfg = EngineConfig::new(SourceConfig::new(crate::acquire::SourceSpec::Path(path)));
+        cfg.playback_speed = None;
+        cfg.publish_interval = Duration::from_millis(50);
+        cfg.analysis.mode_band_hz = Some((85_600.0, 86_600.0));
+        let (history, frame) = play_to_end(cfg);
+        assert_eq!(frame.status.record_note, None);
+        assert_eq!(history.len(), 4);
+        let s = frame.spectrum.unwrap();
+        // Every segment of the record: ⌊(10⁶ − 65 536)/32 768⌋ + 1.
+        assert_eq!(s.averages, (1_000_000 - 65_536) / 32_768 + 1);
     }
 
     #[test]

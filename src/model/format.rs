@@ -87,6 +87,28 @@ pub(crate) fn format_rate(rate_hz: f64) -> String {
     format!("{text} {prefix}S/s")
 }
 
+/// A frequency difference in words for one plain line: "300 Hz", "4.5 Hz", "1.25 kHz".
+pub(crate) fn hz_words(hz: f64) -> String {
+    let a = hz.abs();
+    if a >= 1000.0 {
+        let text = format!("{:.2}", hz / 1000.0);
+        format!("{} kHz", text.trim_end_matches('0').trim_end_matches('.'))
+    } else if a >= 10.0 {
+        format!("{hz:.0} Hz")
+    } else {
+        format!("{hz:.1} Hz")
+    }
+}
+
+/// A duration in seconds for one plain line: "1.2" below 10 s, else whole seconds.
+pub(crate) fn seconds_words(s: f64) -> String {
+    if s.abs() < 10.0 {
+        format!("{s:.1}")
+    } else {
+        format!("{s:.0}")
+    }
+}
+
 /// A count rounded to a whole number, grouped by thousands with spaces ("320 000").
 pub(crate) fn group_thousands(count: f64) -> String {
     if !count.is_finite() {

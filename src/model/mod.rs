@@ -25,7 +25,8 @@ pub use decimate::{
     MinMaxBlocks, bench_plot_prep, decimate_minmax, decimate_minmax_with, log_columns_max,
 };
 pub use engine::{
-    Engine, EngineCommand, EngineConfig, EngineNotice, EngineStatus, Frame, SessionMark, Waker,
+    Engine, EngineCommand, EngineConfig, EngineNotice, EngineStatus, Frame, HistoryEntry,
+    SessionMark, Waker,
 };
 pub use history::{CalibrationDrift, TrendBuffer, TrendPoint, Waterfall, WaterfallRow};
 pub use snapshots::LoadedSnapshot;
@@ -107,11 +108,13 @@ impl LiveState {
             }
             self.marks.push_back(m);
         }
-        if let Some(row) = frame.waterfall_row.take() {
-            self.waterfall.push(row);
-        }
-        if let Some(p) = frame.trend.take() {
-            self.trends.push(p);
+        for entry in &mut frame.history {
+            if let Some(row) = entry.waterfall_row.take() {
+                self.waterfall.push(row);
+            }
+            if let Some(p) = entry.trend {
+                self.trends.push(p);
+            }
         }
         self.frames_applied += 1;
         self.frame = Some(frame);
@@ -142,15 +145,22 @@ mod tests {
             analysis_error: None,
             band_hz: None,
             status: EngineStatus::default(),
-            waterfall_row: Some(WaterfallRow {
-                time_s: t,
-                range_hz: (1.0, 10.0),
-                log_psd: vec![0.0; 4],
-            }),
-            trend: Some(TrendPoint {
-                time_s: t,
-                ..TrendPoint::default()
-            }),
+            history: vec![HistoryEntry {
+                t_start_s: t - 1.0,
+                t_end_s: t,
+                duration_s: 1.0,
+                waterfall_row: Some(WaterfallRow {
+                    time_s: t,
+                    range_hz: (1.0, 10.0),
+                    log_psd: vec![0.0; 4],
+                }),
+                trend: Some(TrendPoint {
+                    time_s: t,
+                    ..TrendPoint::default()
+                }),
+                report: None,
+                band_hz: None,
+            }],
             marks: Vec::new(),
         };
         live.apply(frame(1, 0.0));
@@ -160,6 +170,10 @@ mod tests {
         live.apply(frame(2, 2.0));
         assert_eq!(live.waterfall.rows().len(), 1);
         assert_eq!(live.trends.points().len(), 1);
-        assert!(live.frame.as_ref().unwrap().waterfall_row.is_none());
+        assert!(
+            live.frame.as_ref().unwrap().history[0]
+                .waterfall_row
+                .is_none()
+        );
     }
 }

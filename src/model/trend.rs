@@ -292,6 +292,44 @@ impl TrendRow {
     }
 }
 
+/// The band of the next interval, moved onto this interval's fitted mode (same width,
+/// inside 0 … Nyquist) when the fit is trustworthy: a frequency whose 1σ is below a quarter
+/// of the band. `stillpoint track` and the window's history follow the mode by this one rule.
+pub fn follow_band(
+    band: Option<(f64, f64)>,
+    report: &Report,
+    nyquist_hz: f64,
+) -> Option<(f64, f64)> {
+    let (lo, hi) = band?;
+    let width = hi - lo;
+    let fitted = match (
+        report.mode.frequency_hz,
+        report.mode.frequency_hz_uncertainty,
+    ) {
+        (Some(f), Some(s)) => Some((f, s)),
+        _ => report.sidebands.as_ref().and_then(|sb| {
+            Some((
+                sb.mechanical_frequency_hz?,
+                sb.mechanical_frequency_hz_uncertainty?,
+            ))
+        }),
+    };
+    let Some((f, sigma)) = fitted else {
+        return band;
+    };
+    if !(f.is_finite() && sigma.is_finite() && sigma < width / 4.0) {
+        return band;
+    }
+    let mut new_lo = f - width / 2.0;
+    if new_lo < 0.0 {
+        new_lo = 0.0;
+    }
+    if new_lo + width > nyquist_hz {
+        new_lo = (nyquist_hz - width).max(0.0);
+    }
+    Some((new_lo, new_lo + width))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -15,7 +15,7 @@ use eframe::egui::{self, RichText, Ui};
 use super::{MessageKind, StillpointApp, theme};
 use crate::model::journal::{self, Journal, JournalHeader, JournalWriter};
 use crate::model::trend::TrendRow;
-use crate::model::{Frame, TREND_POINTS, TrendBuffer, TrendPoint, Waterfall};
+use crate::model::{Frame, HistoryEntry, TREND_POINTS, TrendBuffer, TrendPoint, Waterfall};
 use crate::npy_writer::NpyWriter;
 
 /// The journal being written, a journal opened for comparison, and the panel's fields.
@@ -69,25 +69,21 @@ pub fn point_of_row(row: &TrendRow) -> TrendPoint {
     }
 }
 
-/// Seconds of data in a spectrum's average: `segment/fs · (1 + (K−1)(1−overlap))`.
-fn averaged_span_s(frame: &Frame) -> Option<f64> {
-    let s = frame.spectrum.as_ref()?;
-    let seg = s.segment as f64 / s.sample_rate_hz;
-    let k = s.averages.max(1) as f64;
-    let span = seg * (1.0 + (k - 1.0) * (1.0 - s.overlap));
-    (span.is_finite() && span > 0.0).then_some(span)
-}
-
-/// The journal row of a frame that carries a trend point: the analysis of the frame's
-/// spectrum, judged over the seconds of data it averages (the Γ·T test of METHODS §11), with
-/// the interval since the previous point as its times.
-pub fn row_of_frame(frame: &Frame, t_start_s: f64, calibration_asked: bool) -> Option<TrendRow> {
-    let point = frame.trend.as_ref()?;
-    let report = frame.report.as_ref()?;
-    let span = averaged_span_s(frame).unwrap_or(point.time_s - t_start_s);
-    let mut row = TrendRow::from_report(report, 0.0, span, frame.band_hz, calibration_asked);
-    row.t_start_s = t_start_s;
-    row.t_end_s = point.time_s;
+/// The journal row of a history interval: the analysis of that interval's own spectrum,
+/// judged over its length (the Γ·T test of METHODS §11), with its start and end as times —
+/// the row `stillpoint track` writes for the same interval.
+pub fn row_of_entry(entry: &HistoryEntry, calibration_asked: bool) -> Option<TrendRow> {
+    entry.trend.as_ref()?;
+    let report = entry.report.as_ref()?;
+    let mut row = TrendRow::from_report(
+        report,
+        0.0,
+        entry.duration_s,
+        entry.band_hz,
+        calibration_asked,
+    );
+    row.t_start_s = entry.t_start_s;
+    row.t_end_s = entry.t_end_s;
     Some(row)
 }
 
@@ -198,7 +194,7 @@ impl StillpointApp {
     /// Appends the frame's trend point (if it carries one) to the journal; called once per
     /// frame taken from the engine, so it writes about once a second.
     pub(super) fn journal_frame(&mut self, frame: &Frame) {
-        if frame.trend.is_none() || self.journal.failed.is_some() {
+        if frame.history.iter().all(|e| e.trend.is_none()) || self.journal.failed.is_some() {
             return;
         }
         let Some(folder) = self.journal.folder.clone() else {
@@ -224,17 +220,20 @@ impl StillpointApp {
         }
         let asked = crate::model::CalibrationMethod::of(&self.state.analysis)
             != crate::model::CalibrationMethod::None;
-        let Some(row) = row_of_frame(frame, self.journal.last_t_s, asked) else {
-            return;
-        };
-        self.journal.last_t_s = row.t_end_s;
-        let result = self
-            .journal
-            .writer
-            .as_mut()
-            .map(|w| w.append(journal::now_unix_s(), &row));
-        if let Some(Err(e)) = result {
-            self.journal_failed(e.to_string());
+        for entry in &frame.history {
+            let Some(row) = row_of_entry(entry, asked) else {
+                continue;
+            };
+            self.journal.last_t_s = row.t_end_s;
+            let result = self
+                .journal
+                .writer
+                .as_mut()
+                .map(|w| w.append(journal::now_unix_s(), &row));
+            if let Some(Err(e)) = result {
+                self.journal_failed(e.to_string());
+                return;
+            }
         }
     }
 

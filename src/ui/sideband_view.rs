@@ -120,22 +120,25 @@ impl SidebandViewState {
             self.generation = frame.generation;
             self.history.clear();
         }
-        let (Some(tp), Some(r)) = (&frame.trend, &frame.report) else {
-            return;
-        };
-        let Some(sb) = &r.sidebands else {
-            return;
-        };
         let pair = |v: Option<f64>, s: Option<f64>| {
             v.filter(|x| x.is_finite())
                 .map(|x| (x, s.filter(|y| y.is_finite()).unwrap_or(0.0)))
         };
-        self.history.push(SidebandPoint {
-            time_s: tp.time_s,
-            ratio: pair(sb.ratio, sb.ratio_uncertainty),
-            from_ratio: pair(sb.occupancy, sb.occupancy_uncertainty),
-            from_areas: pair(r.quantum.occupancy, r.quantum.occupancy_uncertainty),
-        });
+        // Each history interval's own analysis (the same intervals as the trend strips).
+        for entry in &frame.history {
+            let (Some(tp), Some(r)) = (&entry.trend, &entry.report) else {
+                continue;
+            };
+            let Some(sb) = &r.sidebands else {
+                continue;
+            };
+            self.history.push(SidebandPoint {
+                time_s: tp.time_s,
+                ratio: pair(sb.ratio, sb.ratio_uncertainty),
+                from_ratio: pair(sb.occupancy, sb.occupancy_uncertainty),
+                from_areas: pair(r.quantum.occupancy, r.quantum.occupancy_uncertainty),
+            });
+        }
         if self.history.len() > HISTORY_CAPACITY {
             let mut keep = false;
             self.history.retain(|_| {

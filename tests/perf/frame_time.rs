@@ -25,7 +25,7 @@ use egui_kittest::kittest::Queryable;
 use stillpoint::analysis::AnalysisOptions;
 use stillpoint::dsp::{Averaging, Detrend, Spectrum, WindowKind};
 use stillpoint::model::{
-    EngineStatus, Frame, MinMaxBlocks, TrendPoint, WaterfallRow, log_columns_max,
+    EngineStatus, Frame, HistoryEntry, MinMaxBlocks, TrendPoint, WaterfallRow, log_columns_max,
 };
 use stillpoint::ui::MonitorOptions;
 
@@ -119,12 +119,19 @@ fn frame(seed: u64, freqs: &Arc<Vec<f64>>, options: &AnalysisOptions) -> Frame {
         cross_channels: None,
         frequencies_hz: Some(Arc::clone(freqs)),
         log_psd: Some(Arc::new(log_psd)),
-        report,
         analysis_error: None,
         band_hz: options.mode_band_hz,
         status,
-        waterfall_row: Some(row),
-        trend,
+        history: vec![HistoryEntry {
+            t_start_s: seed as f64 - 1.0,
+            t_end_s: seed as f64,
+            duration_s: 1.0,
+            waterfall_row: Some(row),
+            trend,
+            report: report.clone(),
+            band_hz: options.mode_band_hz,
+        }],
+        report,
         marks: Vec::new(),
     }
 }
@@ -191,8 +198,7 @@ fn main() {
         f.log_psd_blocks = f.log_psd_blocks.map(|b| Arc::new((*b).clone()));
         f.report = f.report.map(|r| Arc::new((*r).clone()));
         if !seq.is_multiple_of(8) {
-            f.waterfall_row = None;
-            f.trend = None;
+            f.history.clear();
         }
         h.state_mut().show_frame(f);
     };

@@ -89,7 +89,7 @@ fn apply(job: &Job, shape: Shape, acc: &mut Accumulator) -> usize {
             .get(i * shape.bins..(i + 1) * shape.bins)
             .unwrap_or(&[]);
         if job.accepted & (1 << i) != 0 {
-            acc.add(row.iter().copied());
+            acc.add(row.iter().copied(), None);
         } else {
             acc.skip();
         }

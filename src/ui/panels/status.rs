@@ -49,6 +49,11 @@ pub fn status_line(
         if let Some(e) = &s.ended {
             let text = if s.failed {
                 window_words(e)
+            } else if let (true, Some(note)) = (s.recording, &s.record_note) {
+                format!(
+                    "{e}: {note} ({} segments); Replay plays it again",
+                    s.averages
+                )
             } else if s.recording {
                 format!(
                     "{e}: showing the result of the whole record ({} segments); Replay plays it again",
