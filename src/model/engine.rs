@@ -410,6 +410,9 @@ struct Worker {
     /// Blocks were thrown away while frozen: the next segment starts after them.
     skipped_while_paused: bool,
     dirty: bool,
+    /// A live source's last analysis was a history interval's: the running average has the
+    /// next turn (one analysis per frame, taking turns, so neither starves the other).
+    running_owed: bool,
     last_publish: Instant,
     last_history: Option<Instant>,
     last_segment_arrival: Option<Instant>,
@@ -515,6 +518,7 @@ impl Worker {
             segments_at_analysis: 0,
             skipped_while_paused: false,
             dirty: false,
+            running_owed: false,
             last_publish: Instant::now(),
             last_history: None,
             last_segment_arrival: None,
@@ -984,7 +988,7 @@ impl Worker {
     /// The history intervals closed since the last frame, each analysed on its own. At the
     /// end of the stream the interval in progress is closed too; like `track`, a partial last
     /// interval becomes a row only when it is the only one.
-    fn history_intervals(&mut self, ended_now: bool) -> Vec<HistoryEntry> {
+    fn history_intervals(&mut self, ended_now: bool, analyse_newest: bool) -> Vec<HistoryEntry> {
         let Some(w) = self.averager.as_mut() else {
             return Vec::new();
         };
@@ -1002,8 +1006,8 @@ impl Worker {
         }
         // A live source never waits for the engine: when several intervals closed since the
         // last frame (the engine is behind, an analysis of a noisy interval can take seconds),
-        // only the newest is analysed; the others give waterfall rows. A recording's reader
-        // waits, so each of its intervals is analysed.
+        // only the newest is analysed (and only on its turn, `analyse_newest`); the others give
+        // waterfall rows. A recording's reader waits, so each of its intervals is analysed.
         let count = intervals.len();
         let recording = self.status.recording;
         intervals
@@ -1011,7 +1015,11 @@ impl Worker {
             .enumerate()
             .map(|(i, iv)| {
                 let complete = iv.end - iv.start >= len;
-                self.history_entry(iv, complete, recording || i + 1 == count)
+                self.history_entry(
+                    iv,
+                    complete,
+                    recording || (analyse_newest && i + 1 == count),
+                )
             })
             .collect()
     }
@@ -1168,16 +1176,20 @@ impl Worker {
             // The running average first: its band (found or followed) starts the intervals'.
             self.refresh_running(segments);
         }
-        let mut history = self.history_intervals(history_now);
+        // A live source: one analysis per frame (as before the history had its own, so a
+        // live source is not dropped from for it), the newest closed interval's and the
+        // running average's by turns: when intervals close faster than frames (a fast
+        // source, a loaded machine) the running average is still analysed every other frame.
+        let interval_turn = recording || !self.running_owed;
+        let mut history = self.history_intervals(history_now, interval_turn);
         if fresh && !recording {
             if history.iter().any(|e| e.report.is_some()) {
-                // A live source: this frame's analysis was the newest interval's; the running
-                // average is analysed at the next frame (one analysis per frame, as before
-                // the history had its own, so a live source is not dropped from for it).
                 fresh = false;
                 self.dirty = true;
+                self.running_owed = true;
             } else {
                 self.refresh_running(segments);
+                self.running_owed = false;
             }
         }
         if history_now && self.status.recording && self.status.ended.is_some() {
