@@ -71,10 +71,20 @@ pub fn point_of_row(row: &TrendRow) -> TrendPoint {
 
 /// The journal row of a history interval: the analysis of that interval's own spectrum,
 /// judged over its length (the Γ·T test of METHODS §11), with its start and end as times —
-/// the row `stillpoint track` writes for the same interval.
-pub fn row_of_entry(entry: &HistoryEntry, calibration_asked: bool) -> Option<TrendRow> {
-    entry.trend.as_ref()?;
-    let report = entry.report.as_ref()?;
+/// the row `stillpoint track` writes for the same interval. An interval without an analysis
+/// (a live source's engine was behind and gave the frame's one analysis to the running
+/// average, or the fit failed) keeps its row, empty, with status `no_analysis`, so the
+/// journal's intervals stay contiguous.
+pub fn row_of_entry(entry: &HistoryEntry, calibration_asked: bool) -> TrendRow {
+    let Some(report) = entry.report.as_ref().filter(|_| entry.trend.is_some()) else {
+        return TrendRow::empty(
+            entry.t_start_s,
+            entry.t_end_s,
+            None,
+            entry.band_hz,
+            "no_analysis",
+        );
+    };
     let mut row = TrendRow::from_report(
         report,
         0.0,
@@ -84,7 +94,7 @@ pub fn row_of_entry(entry: &HistoryEntry, calibration_asked: bool) -> Option<Tre
     );
     row.t_start_s = entry.t_start_s;
     row.t_end_s = entry.t_end_s;
-    Some(row)
+    row
 }
 
 /// Writes the trend rows as `stillpoint track` writes its CSV, atomically.
@@ -191,10 +201,10 @@ impl StillpointApp {
         })
     }
 
-    /// Appends the frame's trend point (if it carries one) to the journal; called once per
+    /// Appends a row per history interval of the frame to the journal; called once per
     /// frame taken from the engine, so it writes about once a second.
     pub(super) fn journal_frame(&mut self, frame: &Frame) {
-        if frame.history.iter().all(|e| e.trend.is_none()) || self.journal.failed.is_some() {
+        if frame.history.is_empty() || self.journal.failed.is_some() {
             return;
         }
         let Some(folder) = self.journal.folder.clone() else {
@@ -221,9 +231,7 @@ impl StillpointApp {
         let asked = crate::model::CalibrationMethod::of(&self.state.analysis)
             != crate::model::CalibrationMethod::None;
         for entry in &frame.history {
-            let Some(row) = row_of_entry(entry, asked) else {
-                continue;
-            };
+            let row = row_of_entry(entry, asked);
             self.journal.last_t_s = row.t_end_s;
             let result = self
                 .journal
