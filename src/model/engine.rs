@@ -8,7 +8,7 @@
 //! the stream is cut into intervals of [`EngineConfig::history_interval`] (at least 4
 //! segments: `N + 3·hop` samples), and each row and point is the spectrum of that interval
 //! alone — the mean of the periodograms of the segments wholly inside it, which the Welch
-//! averager keeps beside its running estimate ([`Welch::set_intervals`], no second
+//! averager keeps beside its running estimate ([`crate::dsp::Welch::set_intervals`], no second
 //! transform) — analysed with the same settings and its own band that follows the mode by
 //! `stillpoint track`'s rule ([`crate::model::trend::follow_band`]). So the window's trend of
 //! a recording is `track`'s on the same file and interval. Times: on a recording, stream time
@@ -593,7 +593,19 @@ impl Worker {
                     Ok(cmd) => self.command(cmd),
                 },
                 recv(events) -> ev => match ev {
-                    Ok(ev) => self.event(ev),
+                    Ok(ev) => {
+                        self.event(ev);
+                        // Take in what queued up meanwhile (after an analysis of a second or
+                        // more, a live source has queued that long) before the next frame's
+                        // analysis: one event per frame would let a slow fit starve the
+                        // queue until the source drops. At most one queue's worth.
+                        for _ in 0..SOURCE_QUEUE {
+                            match events.try_recv() {
+                                Ok(ev) => self.event(ev),
+                                Err(_) => break,
+                            }
+                        }
+                    }
                     Err(_) => {
                         // The source thread went away without a Stopped event.
                         if self.status.ended.is_none() {
@@ -1183,7 +1195,9 @@ impl Worker {
         let interval_turn = recording || !self.running_owed;
         let mut history = self.history_intervals(history_now, interval_turn);
         if fresh && !recording {
-            if history.iter().any(|e| e.report.is_some()) {
+            // The newest interval's analysis was run (whether or not it found the mode):
+            // the running average waits for the next frame.
+            if interval_turn && !history.is_empty() {
                 fresh = false;
                 self.dirty = true;
                 self.running_owed = true;
