@@ -339,6 +339,37 @@ struct Source {
 /// such runs. Memory is only taken while the engine is behind (≤ 256 blocks of ≤ 64 Ki).
 const SOURCE_QUEUE: usize = 256;
 
+/// A slower source's queue holds at least this much stream (s), within
+/// [`SOURCE_QUEUE_BYTES`]: an analysis can take seconds (the `quantum` demo's fits, 500 kS/s
+/// at N = 131 072: 2.5–3.5 s on an idle 2-core machine) and the engine takes in nothing
+/// meanwhile, so 256 blocks of 20 ms (5.1 s) overflowed: 21 blocks dropped in 25 s; with 10 s,
+/// none. Memory is only taken while the engine is behind.
+const SOURCE_QUEUE_SECS: f64 = 10.0;
+
+/// Most bytes of samples the longer queue of [`SOURCE_QUEUE_SECS`] may hold (f64 samples).
+const SOURCE_QUEUE_BYTES: f64 = 64e6;
+
+/// Blocks the acquisition queue holds for blocks of `block_samples` at `rate_hz`: at least
+/// [`SOURCE_QUEUE`], more (up to [`SOURCE_QUEUE_MAX`]) to hold [`SOURCE_QUEUE_SECS`] of a
+/// slower source within [`SOURCE_QUEUE_BYTES`].
+fn source_queue(block_samples: usize, rate_hz: f64) -> usize {
+    if !(rate_hz.is_finite() && rate_hz > 0.0) {
+        return SOURCE_QUEUE;
+    }
+    let block = block_samples.max(1) as f64;
+    let by_time = SOURCE_QUEUE_SECS * rate_hz / block;
+    let by_bytes = SOURCE_QUEUE_BYTES / (8.0 * block);
+    let blocks = by_time.min(by_bytes);
+    if blocks.is_finite() && blocks > SOURCE_QUEUE as f64 {
+        (blocks.ceil() as usize).min(SOURCE_QUEUE_MAX)
+    } else {
+        SOURCE_QUEUE
+    }
+}
+
+/// The longest acquisition queue (blocks).
+const SOURCE_QUEUE_MAX: usize = 1024;
+
 /// Opens `config` and starts its acquisition thread with
 /// [`Backpressure::DropAndCount`](crate::acquire::Backpressure): the engine never makes the
 /// reader wait, blocks it cannot take in time are dropped and counted. Recordings and the demo
@@ -356,6 +387,7 @@ fn start_source(config: &SourceConfig, speed: Option<f64>) -> Result<(Source, f6
         _ => SourceKind::Live,
     };
     let rate = reader.sample_rate_hz();
+    let block_samples = ((rate * 0.02) as usize).clamp(256, 1 << 16);
     let options = AcqOptions {
         // A recording is never dropped from (its reader waits for the engine: playback only
         // slows down), so its history is exactly the record's; live sources never wait.
@@ -364,8 +396,8 @@ fn start_source(config: &SourceConfig, speed: Option<f64>) -> Result<(Source, f6
         } else {
             acquire::Backpressure::DropAndCount
         },
-        channel_capacity: SOURCE_QUEUE,
-        block_samples: ((rate * 0.02) as usize).clamp(256, 1 << 16),
+        channel_capacity: source_queue(block_samples, rate),
+        block_samples,
         speed,
         ..AcqOptions::window()
     };
@@ -599,7 +631,7 @@ impl Worker {
                         // more, a live source has queued that long) before the next frame's
                         // analysis: one event per frame would let a slow fit starve the
                         // queue until the source drops. At most one queue's worth.
-                        for _ in 0..SOURCE_QUEUE {
+                        for _ in 0..SOURCE_QUEUE_MAX {
                             match events.try_recv() {
                                 Ok(ev) => self.event(ev),
                                 Err(_) => break,
@@ -1416,6 +1448,22 @@ mod tests {
             enbw_hz: 1.5,
             psd_v2_per_hz: vec![1.0; 501],
         }
+    }
+
+    #[test]
+    fn the_source_queue_holds_ten_seconds_of_a_slow_source_within_its_bytes() {
+        // 500 kS/s in 20 ms blocks of 10 000: 500 blocks (10 s, 40 MB at most).
+        assert_eq!(source_queue(10_000, 500_000.0), 500);
+        // 48 kS/s: 10 s would be 500 blocks of 960 (3.8 MB).
+        assert_eq!(source_queue(960, 48_000.0), 500);
+        // 100 MS/s in blocks of 64 Ki: 64 MB is 122 blocks, below the 256 kept for fast
+        // sources (SOURCE_QUEUE's measurement), so 256.
+        assert_eq!(source_queue(1 << 16, 1e8), SOURCE_QUEUE);
+        // Short blocks (256 samples at 100 kS/s): 10 s would be 3906 blocks; at most
+        // SOURCE_QUEUE_MAX. A slow source's 256 blocks already hold more than 10 s.
+        assert_eq!(source_queue(256, 1e5), SOURCE_QUEUE_MAX);
+        assert_eq!(source_queue(256, 100.0), SOURCE_QUEUE);
+        assert_eq!(source_queue(0, f64::NAN), SOURCE_QUEUE);
     }
 
     #[test]
